@@ -1,0 +1,50 @@
+"""Settings in one place, read from ``LEXIGROWTH_*`` environment variables."""
+
+from __future__ import annotations
+
+from functools import lru_cache
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+
+from pydantic_settings import BaseSettings, SettingsConfigDict
+
+REPO_ROOT = Path(__file__).resolve().parent.parent
+TEMPLATES_DIR = REPO_ROOT / "templates"
+STATIC_DIR = REPO_ROOT / "static"
+DEMO_DIR = REPO_ROOT / "demo_corpora"
+
+try:
+    PROGRAM_VERSION = version("lexigrowth")
+except PackageNotFoundError:  # running from a source tree that was not installed
+    PROGRAM_VERSION = "0.0.0+source"
+
+
+class Settings(BaseSettings):
+    """Environment: LEXIGROWTH_DATA_DIR, LEXIGROWTH_DATABASE_URL, LEXIGROWTH_MAX_UPLOAD_MB, LEXIGROWTH_LOAD_DEMO."""
+
+    model_config = SettingsConfigDict(env_prefix="LEXIGROWTH_")
+
+    data_dir: Path = Path("lexigrowth-data")
+    database_url: str | None = None
+    max_upload_mb: int = 200
+    load_demo: bool = True
+
+    @property
+    def resolved_database_url(self) -> str:
+        if self.database_url:
+            return self.database_url
+        return f"sqlite:///{(self.data_dir / 'lexigrowth.sqlite3').resolve()}"
+
+    @property
+    def work_dir(self) -> Path:
+        """Scratch space for uploads and temporary type-id sequences."""
+        path = self.data_dir / "work"
+        path.mkdir(parents=True, exist_ok=True)
+        return path
+
+
+@lru_cache
+def get_settings() -> Settings:
+    settings = Settings()
+    settings.data_dir.mkdir(parents=True, exist_ok=True)
+    return settings

@@ -1,0 +1,187 @@
+"""Expected vocabulary of random samples of a known corpus (interpolation, n <= N).
+
+Only the frequency spectrum is needed. A sample of n of the N tokens drawn without replacement
+misses a type of frequency m with the hypergeometric probability C(N-m, n) / C(N, n), and holds it
+exactly k times with probability C(m, k) C(N-m, n-k) / C(N, n) (scipy.stats.hypergeom pmf at 0 and k;
+Baayen 2001, ch. 2). Hence
+
+    E[V(n)]   = sum_m V_m (1 - C(N-m, n) / C(N, n))
+    E[V_k(n)] = sum_m V_m C(m, k) C(N-m, n-k) / C(N, n)
+
+The binomial form replaces sampling without replacement by keeping each token with probability
+p = n / N: E[V(n)] = sum_m V_m (1 - (1-p)^m), E[V_k(n)] = sum_m V_m C(m,k) p^k (1-p)^(m-k).
+All binomial coefficients are handled in log-gamma arithmetic.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.special import gammaln
+
+from app.core.spectrum import Spectrum
+
+Z95 = 1.959963984540054  # standard normal 97.5% quantile
+
+
+def _log_choose(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """log C(a, b) for arrays, -inf where b < 0 or b > a."""
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    valid = (b >= 0) & (b <= a)
+    with np.errstate(invalid="ignore"):
+        out = gammaln(a + 1) - gammaln(b + 1) - gammaln(a - b + 1)
+    return np.where(valid, out, -np.inf)
+
+
+def _check_size(spectrum: Spectrum, n: float) -> int:
+    N = spectrum.tokens
+    if not 0 <= n <= N:
+        raise ValueError(f"sample size {n} must lie between 0 and the corpus size {N}")
+    return N
+
+
+def _log_miss(N: int, n: int, m: np.ndarray) -> np.ndarray:
+    """log C(N - m, n) / C(N, n) = sum_{j<m} log(1 - n / (N - j)), -inf where m > N - n.
+
+    Summed term by term (cumulatively up to the largest m) instead of as a difference of log-gamma values,
+    which would lose about eps * N log N in absolute terms and spoil E[V(n)] at small n on huge corpora.
+    """
+    m = np.asarray(m, dtype=np.int64)
+    if m.size == 0:
+        return np.zeros(0)
+    reachable = m <= N - n
+    top = int(min(m.max(), N - n))
+    j = np.arange(top, dtype=float)
+    cumulative = np.concatenate([[0.0], np.cumsum(np.log1p(-n / (N - j)))])
+    return np.where(reachable, cumulative[np.minimum(m, top)], -np.inf)
+
+
+def prob_type_unseen(spectrum: Spectrum, n: int) -> np.ndarray:
+    """C(N - m, n) / C(N, n) for every frequency m of the spectrum."""
+    N = _check_size(spectrum, n)
+    return np.exp(_log_miss(N, int(n), spectrum.m))
+
+
+def expected_types(spectrum: Spectrum, n: int) -> float:
+    """Exact E[V(n)] for a random sample of n tokens without replacement."""
+    return float(np.dot(spectrum.vm, -np.expm1(_log_miss(_check_size(spectrum, n), int(n), spectrum.m))))
+
+
+def expected_spectrum(spectrum: Spectrum, n: int, k_max: int = 20) -> np.ndarray:
+    """Exact E[V_k(n)] for k = 1..k_max (index 0 holds k = 1).
+
+    Where C(N-m, n) > 0 the hypergeometric pmf is written as
+    C(m, k) * prod_{i<k} (n - i) / (N - m - n + 1 + i) * C(N-m, n) / C(N, n), all factors computed without
+    cancellation; elsewhere (m > N - n, samples close to the whole corpus) by log-gamma differences.
+    """
+    N = _check_size(spectrum, n)
+    n = int(n)
+    k = np.arange(1, k_max + 1)[:, None]
+    m = spectrum.m[None, :]
+    i = np.arange(k_max, dtype=float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_m_falling = np.cumsum(np.log(np.maximum(m.astype(float) - i[:, None], 0)), axis=0)
+        log_ratio = np.cumsum(
+            np.log(np.maximum(n - i[:, None], 0)) - np.log(N - m - n + 1 + i[:, None]), axis=0
+        )
+        product_form = log_m_falling - gammaln(k + 1) + log_ratio + _log_miss(N, n, spectrum.m)[None, :]
+    gamma_form = _log_choose(m, k) + _log_choose(N - m, n - k) - _log_choose(N, n)
+    log_p = np.where((m <= N - n) & (m >= k), product_form, gamma_form)
+    return np.exp(log_p) @ spectrum.vm.astype(float)
+
+
+def expected_types_binomial(spectrum: Spectrum, n: float) -> float:
+    """Binomial E[V(n)] = sum_m V_m (1 - (1-p)^m), p = n / N."""
+    p = n / _check_size(spectrum, n)
+    return (
+        float(np.dot(spectrum.vm, -np.expm1(spectrum.m * np.log1p(-p)))) if p < 1 else float(spectrum.types)
+    )
+
+
+def expected_spectrum_binomial(spectrum: Spectrum, n: float, k_max: int = 20) -> np.ndarray:
+    """Binomial E[V_k(n)] = sum_{m>=k} V_m C(m, k) p^k (1-p)^(m-k), k = 1..k_max."""
+    p = n / _check_size(spectrum, n)
+    k = np.arange(1, k_max + 1, dtype=float)[:, None]
+    m = spectrum.m[None, :].astype(float)
+    if p >= 1:
+        return (m == k).astype(float) @ spectrum.vm.astype(float)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        log_p = _log_choose(m, k) + k * np.log(p) + (m - k) * np.log1p(-p)
+    return np.exp(np.where(m >= k, log_p, -np.inf)) @ spectrum.vm.astype(float)
+
+
+def _pair_frequency_counts(spectrum: Spectrum) -> tuple[np.ndarray, np.ndarray]:
+    """Self-convolution of the spectrum: c_s = sum_{m + m' = s} V_m V_m' over ordered pairs.
+
+    Computed by FFT on the dense spectrum and rounded back to the exact integers.
+    """
+    dense = np.zeros(int(spectrum.m[-1]) + 1 if spectrum.m.size else 1)
+    dense[spectrum.m] = spectrum.vm
+    size = 1 << int(2 * dense.size - 1).bit_length()
+    conv = np.fft.irfft(np.fft.rfft(dense, size) ** 2, size)[: 2 * dense.size - 1]
+    c = np.rint(conv)
+    s = np.flatnonzero(c > 0)
+    return s, c[s]
+
+
+def variance_types(spectrum: Spectrum, n: int, _pairs: tuple[np.ndarray, np.ndarray] | None = None) -> float:
+    """Exact Var[V(n)] under sampling without replacement.
+
+    With q_m = C(N-m, n)/C(N, n) (type of frequency m missed) and, for two distinct types, the chance that
+    both are missed q_{m+m'} = C(N-m-m', n)/C(N, n):
+        Var V(n) = sum_i q_i (1 - q_i) + sum_{i != j} (q_{f_i+f_j} - q_i q_j)
+                 = U - U^2 + sum_s c_s q_s - sum_m V_m q_{2m},    U = sum_m V_m q_m,
+    where c_s counts ordered pairs of types (including i = j) whose frequencies sum to s.
+    """
+    N = _check_size(spectrum, n)
+    n = int(n)
+    if n in (0, N) or spectrum.types == 0:
+        return 0.0
+    s, c = _pair_frequency_counts(spectrum) if _pairs is None else _pairs
+    vm = spectrum.vm.astype(float)
+    u = float(np.dot(vm, np.exp(_log_miss(N, n, spectrum.m))))
+    pair_sum = float(np.dot(c, np.exp(_log_miss(N, n, s))))
+    same_type = float(np.dot(vm, np.exp(_log_miss(N, n, 2 * spectrum.m))))
+    return max(u - u * u + pair_sum - same_type, 0.0)
+
+
+def variance_types_binomial(spectrum: Spectrum, n: float) -> float:
+    """Independent-types approximation Var V(n) = sum_m V_m (1-p)^m (1 - (1-p)^m)."""
+    p = n / _check_size(spectrum, n)
+    miss = (1 - p) ** spectrum.m.astype(float)
+    return float(np.dot(spectrum.vm, miss * (1 - miss)))
+
+
+@dataclass(frozen=True)
+class TypesBand:
+    """E[V(n)] with its standard deviation and a normal-approximation 95% band."""
+
+    tokens: int
+    types: float
+    sd: float
+
+    @property
+    def low(self) -> float:
+        return max(0.0, self.types - Z95 * self.sd)
+
+    @property
+    def high(self) -> float:
+        return self.types + Z95 * self.sd
+
+
+def types_band(spectrum: Spectrum, n: int) -> TypesBand:
+    """E[V(n)] and its exact standard deviation for a random sample of n tokens."""
+    return TypesBand(int(n), expected_types(spectrum, n), float(np.sqrt(variance_types(spectrum, n))))
+
+
+def growth_band(spectrum: Spectrum, sizes: np.ndarray) -> list[TypesBand]:
+    """Random-order expected type growth with its 95% band at each size."""
+    pairs = _pair_frequency_counts(spectrum)
+    return [
+        TypesBand(
+            int(n), expected_types(spectrum, int(n)), float(np.sqrt(variance_types(spectrum, int(n), pairs)))
+        )
+        for n in sizes
+    ]

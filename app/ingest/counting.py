@@ -1,0 +1,259 @@
+"""Streaming word counts of a corpus with bounded memory, and its exact text-order statistics.
+
+A corpus is one or more ``TextSource`` read in order (a line break separates two sources, so no word spans
+them). Each source is read in chunks; a chunk is tokenized up to its last safe cut (after whitespace, or
+after punctuation or a symbol that is not followed by a combining mark), and the rest is carried over to
+the next chunk, so the result never depends on where chunks end. Tokens, case folding and Unicode
+normalisation cannot reach across such a cut: no token holds whitespace, punctuation (other than the
+apostrophes, hyphens, points and commas it joins on) or symbols, and NFC never composes across a
+character of these kinds.
+
+What is kept per type is its id (its rank in order of first appearance, via a dict), and the position of
+its first occurrence. What is kept per token is its type id, written as little-endian int32 to a
+temporary file (4 bytes per token). From these, after the last chunk:
+
+- the text-order type growth V(n) is exact at every n: V(n) = #{types whose first position < n}, the
+  first positions being ascending by construction (``np.searchsorted``);
+- the frequencies, and the exact spectra of the first round(p N) tokens, come from ``np.bincount`` over
+  slices of the id file (``np.memmap``);
+- the id file stays available (``CountResult.type_ids()``) for other text-order statistics until
+  ``CountResult.close()``.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+import tempfile
+import weakref
+from collections.abc import Callable, Sequence
+from dataclasses import dataclass, field
+from fractions import Fraction
+from itertools import repeat
+from pathlib import Path
+from typing import BinaryIO
+
+import numpy as np
+import regex
+
+from app.core.spectrum import Spectrum
+from app.ingest.profiles import TokenizationProfile
+from app.ingest.readers import DEFAULT_CHUNK_CHARS, TextSource
+
+PREFIX_FRACTIONS = ("0.1", "0.25", "0.5")
+"""Shares p of the text whose exact prefix spectra (first round(p N) tokens, halves to even) are kept."""
+
+GROWTH_LOG_POINTS = 150
+GROWTH_LINEAR_POINTS = 150
+TYPE_ID_DTYPE = np.dtype("<i4")
+_READ_SLICE = 1 << 22
+_SOURCE_SEPARATOR = "\n"
+
+# A cut is safe after a character that never belongs to a token and never composes (NFC) with what
+# follows, provided the next character is not a combining mark ("<" + U+0338 composes to "≮").
+_SAFE_CUT = regex.compile(r"(?rV1)[[\s\p{P}\p{S}\p{Z}\p{Cc}]--['\u2019\-\u2010\u2011.,]](?=\P{M})")
+
+Progress = Callable[[int, int], None]
+
+
+def growth_checkpoints(
+    tokens: int, log_points: int = GROWTH_LOG_POINTS, linear_points: int = GROWTH_LINEAR_POINTS
+) -> np.ndarray:
+    """Token counts in [1, tokens] at which the growth curve is recorded: the union of ``log_points``
+    log-spaced and ``linear_points`` evenly spaced integers, always including ``tokens``."""
+    if tokens < 1:
+        raise ValueError("a growth curve needs at least one token")
+    log = np.geomspace(1, tokens, log_points)
+    linear = np.linspace(tokens / linear_points, tokens, linear_points)
+    points = np.unique(np.rint(np.concatenate([log, linear, [tokens]])).astype(np.int64))
+    return points[(points >= 1) & (points <= tokens)]
+
+
+def prefix_length(fraction: str, tokens: int) -> int:
+    """round(p N) for p given as a decimal string, in exact arithmetic (halves round to even)."""
+    return round(Fraction(fraction) * tokens)
+
+
+@dataclass
+class CountResult:
+    """Word counts of a corpus and its exact text-order statistics.
+
+    ``counts`` maps each type to its frequency in order of first appearance; the position of a type in
+    that order is its type id, as stored in ``type_ids()``. ``growth`` holds (n, V(n)) at
+    ``growth_checkpoints(tokens)``; ``prefix_spectra`` maps each of ``PREFIX_FRACTIONS`` to
+    (round(p N), spectrum of the first round(p N) tokens). ``content_hash`` is the SHA-256 of the decoded
+    text as UTF-8 (sources joined by a line break). Close the result (or use it as a context manager) to
+    delete the temporary type-id file.
+    """
+
+    names: list[str]
+    profile: TokenizationProfile
+    counts: dict[str, int]
+    tokens: int
+    types: int
+    growth: list[tuple[int, int]]
+    prefix_spectra: dict[str, tuple[int, Spectrum]]
+    first_positions: np.ndarray
+    content_hash: str
+    type_sequence_path: Path
+    _finalizer: weakref.finalize = field(init=False, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        self._finalizer = weakref.finalize(self, _remove, self.type_sequence_path)
+
+    def spectrum(self) -> Spectrum:
+        """The frequency spectrum of the whole corpus."""
+        return Spectrum.from_frequencies(np.fromiter(self.counts.values(), np.int64, count=len(self.counts)))
+
+    def types_at(self, n: int | np.ndarray) -> np.ndarray:
+        """Exact text-order V(n): the number of types among the first n tokens."""
+        return _types_among_first(self.first_positions, n)
+
+    def type_ids(self) -> np.memmap:
+        """The type id of every token in text order (read-only, on disk)."""
+        if not self._finalizer.alive:
+            raise ValueError("the count result is closed: its type-id file was deleted")
+        return np.memmap(self.type_sequence_path, dtype=TYPE_ID_DTYPE, mode="r", shape=(self.tokens,))
+
+    def close(self) -> None:
+        """Delete the temporary type-id file (idempotent)."""
+        self._finalizer()
+
+    def __enter__(self) -> CountResult:
+        return self
+
+    def __exit__(self, *exc_info: object) -> None:
+        self.close()
+
+
+def _types_among_first(first_positions: np.ndarray, n: int | np.ndarray) -> np.ndarray:
+    """V(n) = #{types whose first occurrence is at a 0-based position < n} (positions ascending)."""
+    return np.searchsorted(first_positions, np.asarray(n), side="left")
+
+
+def _remove(path: Path) -> None:
+    path.unlink(missing_ok=True)
+
+
+def _safe_cut(text: str) -> int:
+    """Length of the longest prefix of ``text`` that can be tokenized on its own (0 if none)."""
+    cut = max(text.rfind(" "), text.rfind("\n"))
+    if cut >= 0:
+        return cut + 1
+    match = _SAFE_CUT.search(text)
+    return match.end() if match else 0
+
+
+class _TypeSequence:
+    """Assigns type ids in order of first appearance and writes the id of every token to ``sink``."""
+
+    def __init__(self, sink: BinaryIO) -> None:
+        self.sink = sink
+        self.ids: dict[str, int] = {}
+        self.first_positions: list[int] = []
+        self.tokens = 0
+
+    def add(self, tokens: list[str]) -> None:
+        if not tokens:
+            return
+        ids = self.ids
+        # Known types in one C-level pass; -1 marks types not seen before this chunk.
+        seq = np.fromiter(map(ids.get, tokens, repeat(-1)), dtype=TYPE_ID_DTYPE, count=len(tokens))
+        unseen = np.flatnonzero(seq < 0)
+        if unseen.size:
+            filled = []
+            for i in unseen.tolist():
+                word = tokens[i]
+                type_id = ids.get(word)
+                if type_id is None:
+                    type_id = ids[word] = len(ids)
+                    self.first_positions.append(self.tokens + i)
+                filled.append(type_id)
+            seq[unseen] = filled
+        seq.tofile(self.sink)
+        self.tokens += len(tokens)
+
+
+def _prefix_frequencies(type_ids: np.ndarray, types: int, stops: Sequence[int]) -> list[np.ndarray]:
+    """Frequency of every type among the first s tokens, for each s in the ascending ``stops``."""
+    counts = np.zeros(types, dtype=np.int64)
+    out = []
+    position = 0
+    for stop in stops:
+        while position < stop:
+            end = min(stop, position + _READ_SLICE)
+            counts += np.bincount(type_ids[position:end], minlength=types)
+            position = end
+        out.append(counts.copy())
+    return out
+
+
+def count_sources(
+    sources: Sequence[TextSource],
+    profile: TokenizationProfile,
+    progress: Progress | None = None,
+    workdir: str | Path | None = None,
+    chunk_chars: int = DEFAULT_CHUNK_CHARS,
+) -> CountResult:
+    """Count the word tokens of ``sources`` (one corpus, in order) under ``profile``.
+
+    ``progress(done_bytes, total_bytes)`` is called after each chunk. The type-id file goes to
+    ``workdir`` (default: the system temporary directory). Raises ValueError when the corpus has no word
+    token, and UnreadableFileError for a file that cannot be read.
+    """
+    if not sources:
+        raise ValueError("no texts to count")
+    names = [source.name for source in sources]
+    tokenizer = profile.tokenizer()
+    total_bytes = sum(source.size for source in sources)
+    handle, tmp = tempfile.mkstemp(prefix="lexigrowth-types-", suffix=".i32", dir=workdir)
+    path = Path(tmp)
+    try:
+        hasher = hashlib.sha256()
+        with os.fdopen(handle, "wb") as sink:
+            sequence = _TypeSequence(sink)
+            done_before = 0
+            for index, source in enumerate(sources):
+                if index:
+                    hasher.update(_SOURCE_SEPARATOR.encode())
+                carry = ""
+                for chunk, consumed in source.chunks(chunk_chars):
+                    hasher.update(chunk.encode("utf-8", "surrogatepass"))
+                    text = carry + chunk
+                    cut = _safe_cut(text)
+                    if cut:
+                        sequence.add(tokenizer.tokens(text[:cut]))
+                    carry = text[cut:]
+                    if progress is not None:
+                        progress(done_before + consumed, total_bytes)
+                sequence.add(tokenizer.tokens(carry))
+                done_before += source.size
+        n_tokens, n_types = sequence.tokens, len(sequence.ids)
+        if n_tokens == 0:
+            raise ValueError(f"{', '.join(names)}: no word tokens found with profile {profile.name!r}")
+        type_ids = np.memmap(path, dtype=TYPE_ID_DTYPE, mode="r", shape=(n_tokens,))
+        prefix_sizes = {p: prefix_length(p, n_tokens) for p in PREFIX_FRACTIONS}
+        stops = sorted(set(prefix_sizes.values()) | {n_tokens})
+        frequencies = dict(zip(stops, _prefix_frequencies(type_ids, n_types, stops), strict=True))
+        del type_ids
+    except BaseException:
+        path.unlink(missing_ok=True)
+        raise
+    first_positions = np.asarray(sequence.first_positions, dtype=np.int64)
+    checkpoints = growth_checkpoints(n_tokens)
+    growth_types = _types_among_first(first_positions, checkpoints)
+    return CountResult(
+        names=names,
+        profile=profile,
+        counts=dict(zip(sequence.ids, frequencies[n_tokens].tolist(), strict=True)),
+        tokens=n_tokens,
+        types=n_types,
+        growth=[(int(n), int(v)) for n, v in zip(checkpoints, growth_types, strict=True)],
+        prefix_spectra={
+            p: (size, Spectrum.from_frequencies(frequencies[size][frequencies[size] > 0]))
+            for p, size in prefix_sizes.items()
+        },
+        first_positions=first_positions,
+        content_hash=hasher.hexdigest(),
+        type_sequence_path=path,
+    )

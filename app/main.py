@@ -1,0 +1,75 @@
+"""The application factory: store, jobs, demo corpora, pages, JSON API and local assets."""
+
+from __future__ import annotations
+
+import logging
+from contextlib import asynccontextmanager
+from pathlib import Path
+
+import plotly
+from fastapi import FastAPI, Request
+from fastapi.exception_handlers import http_exception_handler
+from fastapi.responses import FileResponse
+from fastapi.staticfiles import StaticFiles
+from starlette.exceptions import HTTPException as StarletteHTTPException
+
+from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
+from app.services.ingestion import load_demo_corpora
+from app.services.jobs import JobRunner
+from app.store.db import make_engine
+from app.web import api, pages
+
+PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
+log = logging.getLogger("lexigrowth")
+
+
+def create_app(settings: Settings | None = None) -> FastAPI:
+    settings = settings or get_settings()
+
+    @asynccontextmanager
+    async def lifespan(app: FastAPI):
+        if settings.load_demo:
+            loaded = load_demo_corpora(app.state.engine, settings.work_dir)
+            if loaded:
+                log.info("loaded %d demo corpora into the empty store", len(loaded))
+        yield
+        app.state.jobs.shutdown()
+
+    app = FastAPI(
+        title="Lexigrowth",
+        version=PROGRAM_VERSION,
+        description="Frequency spectra, vocabulary growth and n-legomena models for comparing corpora.",
+        lifespan=lifespan,
+    )
+    settings.data_dir.mkdir(parents=True, exist_ok=True)
+    app.state.settings = settings
+    app.state.engine = make_engine(settings.resolved_database_url)
+    app.state.jobs = JobRunner()
+
+    @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
+    def plotly_js() -> FileResponse:
+        return FileResponse(
+            PLOTLY_JS, media_type="text/javascript", headers={"Cache-Control": "max-age=86400"}
+        )
+
+    app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
+    app.include_router(api.router)
+    app.include_router(pages.router)
+
+    @app.exception_handler(StarletteHTTPException)
+    async def html_errors(request: Request, exc: StarletteHTTPException):
+        if request.url.path.startswith(("/api", "/static", "/docs", "/openapi")):
+            return await http_exception_handler(request, exc)
+        heading = {404: "Not found", 413: "Too large", 422: "Cannot use this input"}.get(
+            exc.status_code, "Error"
+        )
+        return pages.render(
+            request,
+            "error.html",
+            status_code=exc.status_code,
+            heading=heading,
+            detail=exc.detail,
+            json_url=None,
+        )
+
+    return app

@@ -1,0 +1,132 @@
+"""Ingestion: texts -> counts, spectrum, growth and text-order statistics -> the store (one transaction)."""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from dataclasses import asdict
+from pathlib import Path
+
+from sqlalchemy.engine import Engine
+
+from app.config import DEMO_DIR, PROGRAM_VERSION
+from app.core import richness, text_order
+from app.ingest.counting import count_sources
+from app.ingest.profiles import TokenizationProfile
+from app.ingest.readers import TextSource
+from app.store.corpora import CorpusRecord, count_corpora, save_corpus
+
+MAX_NAME_LENGTH = 200
+MAX_LABELS = 50
+MAX_TEXT_ORDER_TOKENS = 20_000_000  # MATTR/MTLD/segments on at most this many tokens (about 120 MB of text)
+
+ProgressCallback = Callable[[int, int], None]
+
+
+class IngestionInputError(ValueError):
+    """Input that cannot become a corpus; the message says why and nothing is stored."""
+
+
+def parse_labels(text: str | dict | None) -> dict[str, str]:
+    """Labels as a JSON object or as ``key=value`` lines (blank lines ignored)."""
+    if text is None or text == "":
+        return {}
+    if isinstance(text, dict):
+        items = text.items()
+    else:
+        stripped = text.strip()
+        if stripped.startswith("{"):
+            try:
+                parsed = json.loads(stripped)
+            except json.JSONDecodeError as exc:
+                raise IngestionInputError(f"labels: not valid JSON ({exc.msg})") from exc
+            if not isinstance(parsed, dict):
+                raise IngestionInputError("labels: expected a JSON object of key/value pairs")
+            items = parsed.items()
+        else:
+            pairs = []
+            for line in stripped.splitlines():
+                if not line.strip():
+                    continue
+                if "=" not in line:
+                    raise IngestionInputError(f"labels: line {line.strip()!r} is not of the form key=value")
+                key, value = line.split("=", 1)
+                pairs.append((key, value))
+            items = pairs
+    labels = {str(k).strip(): str(v).strip() for k, v in items}
+    if any(not k for k in labels):
+        raise IngestionInputError("labels: a label needs a non-empty key")
+    if len(labels) > MAX_LABELS or any(len(k) > 100 or len(v) > 500 for k, v in labels.items()):
+        raise IngestionInputError(
+            f"labels: at most {MAX_LABELS} labels, keys up to 100 and values up to 500 characters"
+        )
+    return labels
+
+
+def check_name(name: str) -> str:
+    name = (name or "").strip()
+    if not name:
+        raise IngestionInputError("name: a corpus needs a name")
+    if len(name) > MAX_NAME_LENGTH:
+        raise IngestionInputError(f"name: at most {MAX_NAME_LENGTH} characters")
+    return name
+
+
+def text_order_statistics(type_ids) -> dict:
+    """MATTR, MTLD and segment spreads on the text-order sequence of type ids (capped for huge corpora)."""
+    ids = type_ids[:MAX_TEXT_ORDER_TOKENS]
+    return {
+        "measured_tokens": int(ids.size),
+        "mattr": richness.mattr(ids),
+        "mtld": richness.mtld(ids),
+        "segments": [asdict(s) for s in text_order.text_order_spread(ids)],
+    }
+
+
+def ingest(
+    engine: Engine,
+    sources: list[TextSource],
+    name: str,
+    labels: dict[str, str] | None = None,
+    profile: TokenizationProfile | None = None,
+    progress: ProgressCallback | None = None,
+    work_dir: Path | None = None,
+) -> int:
+    """Count the sources as one corpus and store it; returns the new corpus id."""
+    name = check_name(name)
+    if not sources:
+        raise IngestionInputError("files: give at least one file or some pasted text")
+    profile = profile or TokenizationProfile()
+    with count_sources(sources, profile, progress=progress, workdir=work_dir) as result:
+        spectrum = result.spectrum()
+        record = CorpusRecord(
+            name=name,
+            labels=labels or {},
+            profile=profile.to_dict(),
+            sources=[s.name for s in sources],
+            tokens=result.tokens,
+            types=result.types,
+            hapaxes=spectrum.hapaxes,
+            content_hash=result.content_hash,
+            program_version=PROGRAM_VERSION,
+            counts=result.counts,
+            spectrum=[tuple(p) for p in spectrum.pairs()],
+            growth=list(result.growth),
+            prefix_spectra={
+                share: (n, [tuple(p) for p in sp.pairs()]) for share, (n, sp) in result.prefix_spectra.items()
+            },
+            text_order=text_order_statistics(result.type_ids()),
+        )
+    return save_corpus(engine, record)
+
+
+def load_demo_corpora(engine: Engine, work_dir: Path | None = None, demo_dir: Path = DEMO_DIR) -> list[int]:
+    """Load the synthetic demo corpora listed in the demo manifest, only into an empty store."""
+    manifest = demo_dir / "manifest.json"
+    if count_corpora(engine) or not manifest.exists():
+        return []
+    ids = []
+    for entry in json.loads(manifest.read_text(encoding="utf-8"))["corpora"]:
+        source = TextSource.from_path(demo_dir / entry["file"])
+        ids.append(ingest(engine, [source], entry["name"], entry.get("labels", {}), work_dir=work_dir))
+    return ids

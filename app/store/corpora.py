@@ -1,0 +1,232 @@
+"""Reading and writing corpora. One ingestion is one transaction: all of it lands, or nothing."""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field
+from typing import Any
+
+from sqlalchemy import delete, func, insert, select
+from sqlalchemy.engine import Engine
+from sqlmodel import Session
+
+from app.store.db import transaction
+from app.store.tables import (
+    CachedResult,
+    Corpus,
+    GrowthPoint,
+    PrefixSpectrumRow,
+    SpectrumRow,
+    WordCount,
+)
+
+BULK_ROWS = 20_000
+
+
+class CorpusNotFoundError(LookupError):
+    def __init__(self, corpus_id: int) -> None:
+        super().__init__(f"no corpus with id {corpus_id}")
+        self.corpus_id = corpus_id
+
+
+@dataclass
+class CorpusRecord:
+    """Everything the store keeps of one ingested corpus (plain values, no text)."""
+
+    name: str
+    labels: dict[str, str]
+    profile: dict[str, Any]
+    sources: list[str]
+    tokens: int
+    types: int
+    hapaxes: int
+    content_hash: str
+    program_version: str
+    counts: dict[str, int]
+    spectrum: list[tuple[int, int]]
+    growth: list[tuple[int, int]]
+    prefix_spectra: dict[str, tuple[int, list[tuple[int, int]]]] = field(default_factory=dict)
+    text_order: dict[str, Any] = field(default_factory=dict)
+
+
+def summary(corpus: Corpus) -> dict[str, Any]:
+    """The corpus summary of the JSON API."""
+    return {
+        "id": corpus.id,
+        "name": corpus.name,
+        "tokens": corpus.tokens,
+        "types": corpus.types,
+        "hapaxes": corpus.hapaxes,
+        "hapax_share": corpus.hapaxes / corpus.types if corpus.types else 0.0,
+        "ttr": corpus.types / corpus.tokens if corpus.tokens else 0.0,
+        "labels": json.loads(corpus.labels_json),
+        "profile": json.loads(corpus.profile_json),
+        "sources": json.loads(corpus.sources_json),
+        "content_hash": corpus.content_hash,
+        "program_version": corpus.program_version,
+        "created_at": corpus.created_at.isoformat(),
+    }
+
+
+def _bulk(session: Session, table, rows: list[dict[str, Any]]) -> None:
+    for start in range(0, len(rows), BULK_ROWS):
+        session.execute(insert(table.__table__), rows[start : start + BULK_ROWS])
+
+
+def save_corpus(engine: Engine, record: CorpusRecord) -> int:
+    """Store a corpus with its counts, spectrum, growth and prefix spectra in one transaction."""
+    with transaction(engine) as session:
+        corpus = Corpus(
+            name=record.name,
+            labels_json=json.dumps(record.labels, ensure_ascii=False),
+            profile_json=json.dumps(record.profile, ensure_ascii=False),
+            profile_name=str(record.profile.get("name", "custom")),
+            sources_json=json.dumps(record.sources, ensure_ascii=False),
+            tokens=record.tokens,
+            types=record.types,
+            hapaxes=record.hapaxes,
+            content_hash=record.content_hash,
+            program_version=record.program_version,
+            text_order_json=json.dumps(record.text_order),
+        )
+        session.add(corpus)
+        session.flush()
+        cid = corpus.id
+        _bulk(
+            session, WordCount, [{"corpus_id": cid, "word": w, "count": c} for w, c in record.counts.items()]
+        )
+        _bulk(session, SpectrumRow, [{"corpus_id": cid, "m": m, "vm": v} for m, v in record.spectrum])
+        _bulk(session, GrowthPoint, [{"corpus_id": cid, "tokens": n, "types": v} for n, v in record.growth])
+        _bulk(
+            session,
+            PrefixSpectrumRow,
+            [
+                {"corpus_id": cid, "share": share, "m": m, "vm": v, "prefix_tokens": n}
+                for share, (n, pairs) in record.prefix_spectra.items()
+                for m, v in pairs
+            ],
+        )
+        return int(cid)
+
+
+def list_corpora(engine: Engine) -> list[Corpus]:
+    with Session(engine) as session:
+        return list(session.exec(select(Corpus).order_by(Corpus.id)).scalars())
+
+
+def count_corpora(engine: Engine) -> int:
+    with Session(engine) as session:
+        return int(session.execute(select(func.count()).select_from(Corpus)).scalar_one())
+
+
+def get_corpus(engine: Engine, corpus_id: int) -> Corpus:
+    with Session(engine) as session:
+        corpus = session.get(Corpus, corpus_id)
+        if corpus is None:
+            raise CorpusNotFoundError(corpus_id)
+        return corpus
+
+
+def get_corpora(engine: Engine, corpus_ids: list[int]) -> dict[int, Corpus]:
+    """The corpora that still exist among ``corpus_ids``."""
+    with Session(engine) as session:
+        rows = session.execute(select(Corpus).where(Corpus.id.in_(corpus_ids))).scalars()
+        return {c.id: c for c in rows}
+
+
+def delete_corpus(engine: Engine, corpus_id: int) -> None:
+    with transaction(engine) as session:
+        get_corpus(engine, corpus_id)
+        for table in (WordCount, SpectrumRow, GrowthPoint, PrefixSpectrumRow, CachedResult):
+            session.execute(delete(table).where(table.corpus_id == corpus_id))
+        session.execute(delete(Corpus).where(Corpus.id == corpus_id))
+
+
+def spectrum_pairs(engine: Engine, corpus_id: int) -> list[tuple[int, int]]:
+    with Session(engine) as session:
+        rows = session.execute(
+            select(SpectrumRow.m, SpectrumRow.vm)
+            .where(SpectrumRow.corpus_id == corpus_id)
+            .order_by(SpectrumRow.m)
+        )
+        return [(int(m), int(v)) for m, v in rows]
+
+
+def growth_points(engine: Engine, corpus_id: int) -> list[tuple[int, int]]:
+    with Session(engine) as session:
+        rows = session.execute(
+            select(GrowthPoint.tokens, GrowthPoint.types)
+            .where(GrowthPoint.corpus_id == corpus_id)
+            .order_by(GrowthPoint.tokens)
+        )
+        return [(int(n), int(v)) for n, v in rows]
+
+
+def prefix_spectra(engine: Engine, corpus_id: int) -> dict[str, tuple[int, list[tuple[int, int]]]]:
+    """share -> (prefix tokens, spectrum pairs) of the first 10%, 25%, 50% of the text."""
+    out: dict[str, tuple[int, list[tuple[int, int]]]] = {}
+    with Session(engine) as session:
+        rows = session.execute(
+            select(
+                PrefixSpectrumRow.share,
+                PrefixSpectrumRow.prefix_tokens,
+                PrefixSpectrumRow.m,
+                PrefixSpectrumRow.vm,
+            )
+            .where(PrefixSpectrumRow.corpus_id == corpus_id)
+            .order_by(PrefixSpectrumRow.share, PrefixSpectrumRow.m)
+        )
+        for share, n, m, v in rows:
+            out.setdefault(share, (int(n), []))[1].append((int(m), int(v)))
+    return out
+
+
+def word_counts(
+    engine: Engine, corpus_id: int, search: str | None = None, limit: int | None = 100, offset: int = 0
+) -> tuple[int, list[tuple[str, int]]]:
+    """(number of matching types, page of (word, count) by descending count then word)."""
+    with Session(engine) as session:
+        where = [WordCount.corpus_id == corpus_id]
+        if search:
+            escaped = search.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
+            where.append(WordCount.word.like(f"%{escaped}%", escape="\\"))
+        total = session.execute(select(func.count()).select_from(WordCount).where(*where)).scalar_one()
+        query = select(WordCount.word, WordCount.count).where(*where)
+        query = query.order_by(WordCount.count.desc(), WordCount.word).offset(offset)
+        if limit is not None:
+            query = query.limit(limit)
+        return int(total), [(w, int(c)) for w, c in session.execute(query)]
+
+
+def frequencies(engine: Engine, corpus_id: int) -> dict[str, int]:
+    """Every word with its count (for distinctive words and random samples)."""
+    with Session(engine) as session:
+        rows = session.execute(
+            select(WordCount.word, WordCount.count).where(WordCount.corpus_id == corpus_id)
+        )
+        return {w: int(c) for w, c in rows}
+
+
+def cached_result(engine: Engine, corpus_id: int, kind: str, program_version: str) -> dict | None:
+    with Session(engine) as session:
+        row = session.get(CachedResult, (corpus_id, kind))
+        if row is None or row.program_version != program_version:
+            return None
+        return json.loads(row.payload_json)
+
+
+def store_cached_result(
+    engine: Engine, corpus_id: int, kind: str, program_version: str, payload: dict
+) -> None:
+    with transaction(engine) as session:
+        session.execute(
+            delete(CachedResult).where(CachedResult.corpus_id == corpus_id, CachedResult.kind == kind)
+        )
+        session.add(
+            CachedResult(
+                corpus_id=corpus_id,
+                kind=kind,
+                program_version=program_version,
+                payload_json=json.dumps(payload),
+            )
+        )

@@ -1,0 +1,47 @@
+// Upload with a progress bar: bytes sent, then the ingestion job's own progress, then the corpus page.
+(function () {
+  "use strict";
+  var form = document.getElementById("upload-form");
+  var status = document.getElementById("upload-status");
+  var bar = document.getElementById("upload-progress");
+  var message = document.getElementById("upload-message");
+
+  function show(text, value, failed) {
+    status.hidden = false;
+    status.classList.toggle("error", !!failed);
+    message.textContent = text;
+    if (value !== null) { bar.value = value; }
+  }
+
+  function poll(url) {
+    fetch(url).then(function (r) { return r.json(); }).then(function (job) {
+      if (job.status === "done") { show("Counted. Opening the corpus page…", 1); window.location = job.corpus_url; return; }
+      if (job.status === "failed") { show("Could not ingest: " + job.error, 0, true); form.querySelector("button").disabled = false; return; }
+      show("Counting words… " + Math.round(100 * job.progress) + "%", job.progress);
+      setTimeout(function () { poll(url); }, 400);
+    }).catch(function () { setTimeout(function () { poll(url); }, 1000); });
+  }
+
+  form.addEventListener("submit", function (event) {
+    event.preventDefault();
+    var data = new FormData(form);
+    var xhr = new XMLHttpRequest();
+    xhr.open("POST", "/api/corpora");
+    xhr.upload.addEventListener("progress", function (e) {
+      if (e.lengthComputable) { show("Sending… " + Math.round(100 * e.loaded / e.total) + "%", e.loaded / e.total); }
+    });
+    xhr.addEventListener("load", function () {
+      var body = {};
+      try { body = JSON.parse(xhr.responseText); } catch (err) { body = { detail: xhr.statusText }; }
+      if (xhr.status === 202) { show("Counting words…", 0); poll(body.url); return; }
+      if (xhr.status === 201) { window.location = "/corpora/" + body.id; return; }
+      var detail = Array.isArray(body.detail) ? body.detail.map(function (d) { return d.msg; }).join("; ") : body.detail;
+      show("Could not ingest: " + (detail || xhr.statusText), 0, true);
+      form.querySelector("button").disabled = false;
+    });
+    xhr.addEventListener("error", function () { show("The upload was interrupted.", 0, true); form.querySelector("button").disabled = false; });
+    form.querySelector("button").disabled = true;
+    show("Sending…", 0);
+    xhr.send(data);
+  });
+})();

@@ -1,0 +1,156 @@
+"""Random-sample interpolation checked against scipy.stats.hypergeom, binomial limits and Monte Carlo.
+
+``stdlib_docstring_tokens`` also feeds the richness and comparison tests: a corpus of real English text
+that every Python installation carries (module docstrings of the standard library).
+"""
+
+from __future__ import annotations
+
+import importlib
+import inspect
+import re
+from functools import lru_cache
+
+import numpy as np
+import pytest
+from scipy.stats import hypergeom
+
+from app.core.interpolation import (
+    expected_spectrum,
+    expected_spectrum_binomial,
+    expected_types,
+    expected_types_binomial,
+    growth_band,
+    types_band,
+    variance_types,
+)
+from app.core.spectrum import Spectrum
+
+STDLIB_MODULES = (
+    "argparse", "array", "ast", "calendar", "collections", "configparser", "copy", "csv", "difflib",
+    "doctest", "ftplib", "gzip", "hashlib", "heapq", "http.client", "inspect", "io", "itertools", "json",
+    "logging", "operator", "optparse", "os", "pdb", "pickle", "pydoc", "random", "re", "shutil", "smtplib",
+    "socket", "statistics", "string", "subprocess", "tempfile", "turtle", "typing", "unittest",
+    "urllib.parse", "uuid",
+)  # fmt: skip
+
+
+@lru_cache(maxsize=1)
+def stdlib_docstring_tokens() -> tuple[str, ...]:
+    """Lower-cased letter runs of the module docstrings of 40 standard-library modules, in a fixed order."""
+    tokens: list[str] = []
+    for name in STDLIB_MODULES:
+        text = inspect.getdoc(importlib.import_module(name)) or ""
+        tokens += re.findall(r"[^\W\d_]+", text.lower())
+    if len(tokens) < 5000:  # docstrings stripped (python -OO) or a very different standard library
+        pytest.skip(f"only {len(tokens)} docstring tokens available")
+    return tuple(tokens)
+
+
+def token_ids(tokens: tuple[str, ...]) -> np.ndarray:
+    """Type ids 0..V-1 of a token list, in text order."""
+    return np.unique(np.array(tokens), return_inverse=True)[1]
+
+
+def spectrum_of_ids(ids: np.ndarray) -> Spectrum:
+    counts = np.bincount(ids)
+    return Spectrum.from_frequencies(counts[counts > 0])
+
+
+@pytest.fixture(scope="module")
+def docstring_ids() -> np.ndarray:
+    return token_ids(stdlib_docstring_tokens())
+
+
+SMALL_FREQUENCIES = [1, 1, 1, 1, 2, 2, 3, 5, 8, 13, 40]  # a small corpus, N = 77
+
+
+@pytest.mark.parametrize("n", [0, 1, 10, 38, 76, 77])
+def test_expected_types_equals_hypergeom_type_by_type(n: int) -> None:
+    # reference: scipy.stats.hypergeom, a type of frequency f is missed with pmf(0; N, f, n)
+    spectrum = Spectrum.from_frequencies(SMALL_FREQUENCIES)
+    N = sum(SMALL_FREQUENCIES)
+    reference = sum(1 - hypergeom.pmf(0, N, f, n) for f in SMALL_FREQUENCIES)
+    assert expected_types(spectrum, n) == pytest.approx(reference, rel=1e-12, abs=1e-12)
+
+
+@pytest.mark.parametrize("n", [1, 10, 38, 76])
+def test_expected_spectrum_equals_hypergeom_type_by_type(n: int) -> None:
+    # reference: scipy.stats.hypergeom, a type of frequency f is seen k times with pmf(k; N, f, n)
+    spectrum = Spectrum.from_frequencies(SMALL_FREQUENCIES)
+    N = sum(SMALL_FREQUENCIES)
+    reference = [sum(hypergeom.pmf(k, N, f, n) for f in SMALL_FREQUENCIES) for k in range(1, 16)]
+    np.testing.assert_allclose(expected_spectrum(spectrum, n, 15), reference, rtol=1e-10, atol=1e-13)
+
+
+def test_expected_spectrum_sums_to_expected_types(docstring_ids: np.ndarray) -> None:
+    # identity: sum_k E[V_k(n)] = E[V(n)] and sum_k k E[V_k(n)] = n (Baayen 2001, ch. 2)
+    spectrum = spectrum_of_ids(docstring_ids)
+    n = spectrum.tokens // 3
+    ev = expected_spectrum(spectrum, n, int(spectrum.m[-1]))
+    assert ev.sum() == pytest.approx(expected_types(spectrum, n), rel=1e-10)
+    assert np.dot(np.arange(1, ev.size + 1), ev) == pytest.approx(n, rel=1e-10)
+
+
+def test_binomial_within_half_percent_of_exact_for_large_corpora(docstring_ids: np.ndarray) -> None:
+    # the binomial form is the large-N limit of the hypergeometric one (Baayen 2001, ch. 2): at N >= 10^4
+    # (the docstring corpus) V and the first five legomena must agree to 0.5% at every sample size
+    spectrum = spectrum_of_ids(docstring_ids)
+    N = spectrum.tokens
+    if N < 10_000:
+        pytest.skip(f"the docstring corpus has only {N} tokens here")
+    for n in (N // 20, N // 4, N // 2, 9 * N // 10):
+        assert expected_types_binomial(spectrum, n) == pytest.approx(expected_types(spectrum, n), rel=0.005)
+        np.testing.assert_allclose(
+            expected_spectrum_binomial(spectrum, n, 5), expected_spectrum(spectrum, n, 5), rtol=0.005
+        )
+
+
+def test_exact_variance_matches_monte_carlo() -> None:
+    # reference: the empirical variance of 4000 random samples; its standard error is about
+    # var * sqrt(2 / (R - 1)) for near-normal V, so 4 standard errors is a safe band
+    rng = np.random.default_rng(11)
+    frequencies = np.array(SMALL_FREQUENCIES * 4)
+    tokens = np.repeat(np.arange(frequencies.size), frequencies)
+    spectrum = Spectrum.from_frequencies(frequencies)
+    n, reps = 60, 4000
+    counts = [np.unique(rng.choice(tokens, n, replace=False)).size for _ in range(reps)]
+    empirical = np.var(counts, ddof=1)
+    exact = variance_types(spectrum, n)
+    assert abs(empirical - exact) < 4 * exact * np.sqrt(2 / (reps - 1))
+    assert np.mean(counts) == pytest.approx(expected_types(spectrum, n), abs=4 * np.sqrt(exact / reps))
+
+
+def test_variance_is_zero_at_the_ends() -> None:
+    spectrum = Spectrum.from_frequencies(SMALL_FREQUENCIES)
+    assert variance_types(spectrum, 0) == 0.0
+    assert variance_types(spectrum, spectrum.tokens) == 0.0
+
+
+def test_random_samples_of_real_text_match_expected_types(docstring_ids: np.ndarray) -> None:
+    # Monte Carlo on real text: 30 random 20% samples without replacement average to E[V(n)] within
+    # 3 standard errors of their mean (standard error from the exact sd)
+    rng = np.random.default_rng(2024)
+    spectrum = spectrum_of_ids(docstring_ids)
+    n = spectrum.tokens // 5
+    band = types_band(spectrum, n)
+    samples = [np.unique(rng.choice(docstring_ids, n, replace=False)).size for _ in range(30)]
+    assert abs(np.mean(samples) - band.types) < 3 * band.sd / np.sqrt(30)
+
+
+def test_95_percent_band_covers_about_95_percent_of_samples(docstring_ids: np.ndarray) -> None:
+    # the normal 95% band around E[V(n)] must cover 90-99% of 200 random 20% samples (binomial noise of
+    # 200 draws at 95% has a standard deviation of 1.5 points)
+    rng = np.random.default_rng(99)
+    spectrum = spectrum_of_ids(docstring_ids)
+    n = spectrum.tokens // 5
+    (band,) = growth_band(spectrum, np.array([n]))
+    samples = np.array([np.unique(rng.choice(docstring_ids, n, replace=False)).size for _ in range(200)])
+    coverage = np.mean((samples >= band.low) & (samples <= band.high))
+    assert 0.90 <= coverage <= 0.99
+
+
+def test_rejects_sizes_beyond_the_corpus() -> None:
+    spectrum = Spectrum.from_frequencies(SMALL_FREQUENCIES)
+    with pytest.raises(ValueError):
+        expected_types(spectrum, spectrum.tokens + 1)
