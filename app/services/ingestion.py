@@ -14,6 +14,7 @@ from app.core import richness, text_order
 from app.ingest.counting import count_sources
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import TextSource
+from app.services import modelling
 from app.store.corpora import CorpusRecord, count_corpora, save_corpus
 
 MAX_NAME_LENGTH = 200
@@ -117,7 +118,9 @@ def ingest(
             },
             text_order=text_order_statistics(result.type_ids()),
         )
-    return save_corpus(engine, record)
+    corpus_id = save_corpus(engine, record)
+    modelling.warm_cache(engine, corpus_id)
+    return corpus_id
 
 
 def load_demo_corpora(engine: Engine, work_dir: Path | None = None, demo_dir: Path = DEMO_DIR) -> list[int]:

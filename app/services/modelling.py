@@ -1,16 +1,37 @@
-"""Modelling service: spectra from the store in, cached numbers out (the maths lives in app.core)."""
+"""Modelling service: spectra from the store in, cached numbers out (the maths lives in app.core).
+
+Fits and backtests are computed once per corpus and program version and cached in the store; predictors
+are rebuilt from the cached parameters, so pages render without fitting anything.
+"""
 
 from __future__ import annotations
+
+import json
+from dataclasses import asdict
+from typing import Any
 
 import numpy as np
 from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
-from app.core.interpolation import growth_band
+from app.core import richness as richness_core
+from app.core import unseen
+from app.core.backtest import Ensemble, backtest
+from app.core.interpolation import expected_spectrum, growth_band, types_band
+from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
 from app.core.spectrum import Spectrum
 from app.store import corpora as store
 
 RANDOM_GROWTH_POINTS = 60
+LEGOMENA_SHOWN = 20
+SAMPLE = "sample"
+RECOMMENDED = "recommended"
+MODEL_NAMES = (SAMPLE, *MODELS, RECOMMENDED)
+MAX_PREDICTION_TOKENS = 10**12
+
+
+class PredictionError(ValueError):
+    """A prediction that cannot be made (unknown model, size out of range); the message says why."""
 
 
 def load_spectrum(engine: Engine, corpus_id: int) -> Spectrum:
@@ -52,3 +73,164 @@ def random_order_growth(engine: Engine, corpus_id: int) -> dict:
         }
 
     return cached(engine, corpus_id, "random_order_growth", compute)
+
+
+# ---------------------------------------------------------------------------------------------- models
+
+
+def _prefix_spectra(engine: Engine, corpus_id: int) -> dict[str, Spectrum]:
+    return {
+        f"first {float(share):.0%}": Spectrum.from_pairs(pairs)
+        for share, (_, pairs) in sorted(
+            store.prefix_spectra(engine, corpus_id).items(), key=lambda kv: float(kv[0])
+        )
+        if pairs
+    }
+
+
+def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
+    """Every model fitted at full size with goodness of fit, the backtests and the recommended ensemble."""
+
+    def compute() -> dict:
+        spectrum = load_spectrum(engine, corpus_id)
+        return backtest(spectrum, _prefix_spectra(engine, corpus_id)).as_dict()
+
+    return cached(engine, corpus_id, "models", compute)
+
+
+def _band(data: dict | None) -> ErrorBand | None:
+    return None if not data else ErrorBand(tuple(data["factors"]), tuple(data["rms_relative_error"]))
+
+
+def _fitted(data: dict) -> FittedModel:
+    return FittedModel(MODELS[data["model"]], data["params"], int(data["tokens"]), band=_band(data["band"]))
+
+
+def predictors(engine: Engine, corpus_id: int) -> dict[str, Predictor]:
+    """Fitted models and the recommended ensemble, rebuilt from the cached report."""
+    report = model_report(engine, corpus_id)
+    fitted = {name: _fitted(data) for name, data in report["fitted"].items()}
+    rec = report["recommended"]
+    members = tuple(fitted[name] for name in rec["weights"])
+    fitted[RECOMMENDED] = Ensemble(
+        members,
+        tuple(w["types"] for w in rec["weights"].values()),
+        tuple(w["legomena"] for w in rec["weights"].values()),
+        int(rec["tokens"]),
+        _band(rec["band"]),
+    )
+    return fitted
+
+
+def _legomena(values: np.ndarray) -> dict[str, float]:
+    return {str(k): float(v) for k, v in enumerate(values, start=1)}
+
+
+def predict(engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDED) -> dict[str, Any]:
+    """E[V(n)] with its range and E[V_k(n)], k = 1..20, by one model.
+
+    ``sample`` is the exact random-sample interpolation (n <= N). ``recommended`` uses it too for n <= N (the
+    corpus itself is the best model of its own samples) and the backtest-weighted ensemble beyond N.
+    """
+    corpus = store.get_corpus(engine, corpus_id)
+    if model not in MODEL_NAMES:
+        raise PredictionError(f"unknown model {model!r}; known: {', '.join(MODEL_NAMES)}")
+    if not 1 <= tokens <= MAX_PREDICTION_TOKENS:
+        raise PredictionError(f"tokens must lie between 1 and {MAX_PREDICTION_TOKENS:,}")
+    extrapolated = tokens > corpus.tokens
+    if model == SAMPLE or (model == RECOMMENDED and not extrapolated):
+        if extrapolated:
+            raise PredictionError(
+                f"the 'sample' interpolation covers sizes up to the corpus size {corpus.tokens:,}; "
+                "choose a model to extrapolate"
+            )
+        spectrum = load_spectrum(engine, corpus_id)
+        band = types_band(spectrum, tokens)
+        return {
+            "tokens": tokens,
+            "model": model,
+            "method": "exact random-sample interpolation (hypergeometric)",
+            "extrapolated": False,
+            "types": band.types,
+            "types_sd": band.sd,
+            "types_low": band.low,
+            "types_high": band.high,
+            "legomena": _legomena(expected_spectrum(spectrum, tokens, LEGOMENA_SHOWN)),
+        }
+    predictor = predictors(engine, corpus_id).get(model)
+    if predictor is None:
+        reason = model_report(engine, corpus_id)["failures"].get(model, "the fit failed")
+        raise PredictionError(f"model {model!r} could not be fitted to this corpus: {reason}")
+    return {
+        "tokens": tokens,
+        "model": model,
+        "method": "backtest-weighted average of the fitted models"
+        if model == RECOMMENDED
+        else predictor.model.title,
+        "extrapolated": extrapolated,
+        "types": float(predictor.types(tokens)),
+        "types_low": float(predictor.types_low(tokens)),
+        "types_high": float(predictor.types_high(tokens)),
+        "legomena": _legomena(predictor.spectrum(tokens, LEGOMENA_SHOWN)),
+    }
+
+
+# ------------------------------------------------------------------------------------ richness, unseen
+
+
+def warm_cache(engine: Engine, corpus_id: int) -> str | None:
+    """Compute the cached results of a new corpus now, so that its pages render at once; returns the
+    reason when the models cannot be fitted (the corpus is still stored and usable)."""
+    random_order_growth(engine, corpus_id)
+    try:
+        model_report(engine, corpus_id)
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        return str(exc)
+    return None
+
+
+def richness(engine: Engine, corpus_id: int, common_size: int | None = None) -> dict[str, Any]:
+    """Richness indices at the corpus size (MATTR and MTLD measured in text order at ingestion) and, when
+    asked, the size-dependent ones at a common size by exact interpolation."""
+    corpus = store.get_corpus(engine, corpus_id)
+    spectrum = load_spectrum(engine, corpus_id)
+    text_order = json.loads(corpus.text_order_json)
+    at_size = asdict(richness_core.richness_indices(spectrum))
+    at_size["mattr"] = text_order.get("mattr")
+    at_size["mtld"] = text_order.get("mtld")
+    out: dict[str, Any] = {
+        "tokens": corpus.tokens,
+        "at_corpus_size": at_size,
+        "text_order_tokens": text_order.get("measured_tokens"),
+    }
+    if common_size is not None:
+        if not 1 <= common_size <= corpus.tokens:
+            raise PredictionError(f"common size must lie between 1 and the corpus size {corpus.tokens:,}")
+        out["common_size"] = common_size
+        out["at_common_size"] = asdict(richness_core.richness_at_size(spectrum, common_size))
+    return out
+
+
+def unseen_vocabulary(engine: Engine, corpus_id: int) -> list[dict[str, Any]]:
+    """Good-Toulmin, smoothed Good-Toulmin, Efron-Thisted, Chao1, coverage and new-type rate."""
+    return [asdict(e) for e in unseen.unseen_summary(load_spectrum(engine, corpus_id))]
+
+
+def random_sample_spectrum(engine: Engine, corpus_id: int, tokens: int, random_state: int) -> dict[str, Any]:
+    """Draw an actual random sample of ``tokens`` tokens (without replacement) from the stored counts and
+    return its observed spectrum next to the exact expectation."""
+    spectrum = load_spectrum(engine, corpus_id)
+    if not 1 <= tokens <= spectrum.tokens:
+        raise PredictionError(f"sample size must lie between 1 and the corpus size {spectrum.tokens:,}")
+    frequencies = np.repeat(spectrum.m, spectrum.vm)
+    rng = np.random.default_rng(random_state)
+    drawn = rng.multivariate_hypergeometric(frequencies, tokens, method="marginals")
+    observed = Spectrum.from_frequencies(drawn[drawn > 0])
+    return {
+        "tokens": tokens,
+        "random_state": random_state,
+        "types": observed.types,
+        "expected_types": types_band(spectrum, tokens).types,
+        "observed": [int(v) for v in observed.dense(LEGOMENA_SHOWN)],
+        "expected": [float(v) for v in expected_spectrum(spectrum, tokens, LEGOMENA_SHOWN)],
+    }

@@ -4,9 +4,10 @@ from __future__ import annotations
 
 from collections.abc import Iterator
 from contextlib import contextmanager
+from pathlib import Path
 
 from sqlalchemy import event
-from sqlalchemy.engine import Engine
+from sqlalchemy.engine import Engine, make_url
 from sqlmodel import Session, SQLModel, create_engine
 
 from app.store import tables  # noqa: F401  (registers the tables on SQLModel.metadata)
@@ -15,6 +16,9 @@ from app.store import tables  # noqa: F401  (registers the tables on SQLModel.me
 def make_engine(url: str) -> Engine:
     """Create the engine and the tables; SQLite gets WAL, foreign keys and a busy timeout."""
     is_sqlite = url.startswith("sqlite")
+    database = make_url(url).database
+    if is_sqlite and database and database != ":memory:":
+        Path(database).parent.mkdir(parents=True, exist_ok=True)
     engine = create_engine(url, connect_args={"check_same_thread": False, "timeout": 30} if is_sqlite else {})
     if is_sqlite:
 

@@ -1,0 +1,64 @@
+"""Finite Zipf-Mandelbrot LNRE model (Evert 2004).
+
+Type density g(pi) = C pi^(-a-1) on A <= pi <= B, 0 < a < 1, C = (1 - a) / (B^(1-a) - A^(1-a)); the
+population holds S = C (A^(-a) - B^(-a)) / a types. Under Poisson sampling of n tokens
+
+    E[V_m(n)] = C n^a / m! [gamma(m - a, n B) - gamma(m - a, n A)]
+    E[V(n)]   = S - integral_A^B e^(-n pi) C pi^(-a-1) dpi, with, by parts,
+    integral_A^B e^(-n pi) pi^(-a-1) dpi = (A^(-a) e^(-n A) - B^(-a) e^(-n B)) / a
+                                         - (n^a / a) [gamma(1-a, n B) - gamma(1-a, n A)].
+
+Parameters are fitted as (logit a, log B, logit(A / B)) so that 0 < A < B always holds.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping
+
+import numpy as np
+from scipy.special import expit, logit
+
+from app.core.models.base import ArrayLike, Params, VocabularyModel
+from app.core.models.zipf_mandelbrot import (
+    hapax_exponent,
+    power_law_scale,
+    power_law_spectrum,
+    power_law_types,
+)
+from app.core.spectrum import Spectrum
+
+
+class FiniteZipfMandelbrot(VocabularyModel):
+    """Finite Zipf-Mandelbrot LNRE model: g(pi) = C pi^(-a-1) on [A, B] (module docstring, Evert 2004)."""
+
+    name = "finite_zipf_mandelbrot"
+    title = "finite Zipf-Mandelbrot (LNRE)"
+    parameter_names = ("a", "A", "B")
+
+    def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
+        return power_law_types(n, params["a"], params["A"], params["B"])
+
+    def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
+        return power_law_spectrum(n, m, params["a"], params["A"], params["B"])
+
+    def to_unconstrained(self, params: Mapping[str, float]) -> np.ndarray:
+        return np.array(
+            [float(logit(params["a"])), math.log(params["B"]), float(logit(params["A"] / params["B"]))]
+        )
+
+    def from_unconstrained(self, theta: np.ndarray) -> Params:
+        B = math.exp(theta[1])
+        return {"a": float(expit(theta[0])), "A": B * float(expit(theta[2])), "B": B}
+
+    def initial_guesses(self, spectrum: Spectrum) -> list[Params]:
+        """a and B as for Zipf-Mandelbrot; A from a population of 2, 5 or 20 times the observed types,
+        using S ~ C A^(-a) / a with C ~ (1 - a) B^(a-1) (A << B)."""
+        a = hapax_exponent(spectrum)
+        B = power_law_scale(spectrum, a)
+        C = (1 - a) * B ** (a - 1)
+        guesses = []
+        for multiple in (2.0, 5.0, 20.0):
+            A = (a * multiple * spectrum.types / C) ** (-1 / a)
+            guesses.append({"a": a, "A": min(A, 0.5 * B), "B": B})
+        return guesses

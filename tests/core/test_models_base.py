@@ -1,0 +1,84 @@
+"""Shared model machinery: registry, parameter transforms, predictions, serialisation, error bands."""
+
+from __future__ import annotations
+
+import json
+import math
+
+import numpy as np
+import pytest
+
+from app.core.models import MODELS, ErrorBand
+from app.core.spectrum import Spectrum
+from tests.core.lnre_samples import gigp_density, poisson_sample, stratified_population
+
+
+@pytest.fixture(scope="module")
+def corpus() -> Spectrum:
+    # A text-like sample: 3e5 tokens from a GIGP population (Sichel 1975 parameters of the usual shape).
+    pi = stratified_population(gigp_density(0.02, 0.01, -0.6), 1e-12, 1.0)
+    return poisson_sample(pi, 3e5, np.random.default_rng(4))
+
+
+def test_registry_holds_the_models_the_api_names():
+    # The JSON contract names these models (predict?model=NAME); each registry key is the model's name.
+    for name in ("perfect_zipf", "heaps", "zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp"):
+        assert MODELS[name].name == name
+    assert all(key == model.name and model.title for key, model in MODELS.items())
+
+
+@pytest.mark.parametrize("name", ["zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp", "perfect_zipf"])
+def test_parameter_transforms_round_trip(name, corpus):
+    model = MODELS[name]
+    params = model.fit(corpus).params
+    back = model.from_unconstrained(model.to_unconstrained(params))
+    for key in model.parameter_names:
+        assert back[key] == pytest.approx(params[key], rel=1e-12)
+
+
+@pytest.mark.parametrize("name", list(MODELS))
+def test_every_model_predicts_far_beyond_the_corpus(name, corpus):
+    fitted = MODELS[name].fit(corpus)
+    sizes = np.geomspace(100, 1e9, 25)
+    types = fitted.types(sizes)
+    assert isinstance(fitted.types(1e9), float)
+    assert np.all(np.isfinite(types)) and np.all(np.diff(types) >= 0)  # finite populations saturate
+    for n in (1e3, corpus.tokens, 1e9):
+        legomena = fitted.spectrum(n, 20)
+        assert np.all(np.isfinite(legomena)) and np.all(legomena >= 0)
+        assert legomena.sum() <= fitted.types(n) * (1 + 1e-9)  # the V_k are a part of V
+
+
+@pytest.mark.parametrize("name", list(MODELS))
+def test_fitted_models_serialise_to_json(name, corpus):
+    data = json.loads(json.dumps(MODELS[name].fit(corpus).as_dict()))
+    assert data["model"] == name and set(data["params"]) == set(MODELS[name].parameter_names)
+    gof = data["goodness_of_fit"]
+    assert (gof["chi_square"] is None) == (gof["reason"] is not None)
+
+
+def test_lnre_fits_close_to_the_observed_totals(corpus):
+    # The cost weighs V and V_1..V_15 by 1 / E (Pearson); a sample from GIGP is fitted by GIGP to within a
+    # few Poisson standard deviations of V and V_1.
+    fitted = MODELS["gigp"].fit(corpus)
+    assert abs(fitted.types(corpus.tokens) - corpus.types) < 4 * math.sqrt(corpus.types)
+    assert abs(fitted.spectrum(corpus.tokens, 1)[0] - corpus.hapaxes) < 4 * math.sqrt(corpus.hapaxes)
+
+
+def test_fit_rejects_an_empty_spectrum():
+    with pytest.raises(ValueError):
+        MODELS["gigp"].fit(Spectrum.from_pairs([]))
+
+
+def test_error_band_grows_with_the_extrapolation_factor():
+    band = ErrorBand((2.0, 4.0, 10.0), (0.01, 0.02, 0.05))
+    assert band.relative_error(1.0) == 0.0
+    np.testing.assert_allclose(band.relative_error([2.0, 4.0, 10.0]), [0.01, 0.02, 0.05])
+    # linear in log t between factors, proportional to log t beyond the last, symmetric for t < 1
+    assert band.relative_error(math.sqrt(8.0)) == pytest.approx(0.015)
+    assert band.relative_error(100.0) == pytest.approx(0.10)
+    assert band.relative_error(0.25) == pytest.approx(0.02)
+    low, high = band.limits(10.0, 1000.0)
+    # 95% normal range of the signed error e = (prediction - truth) / truth: truth = prediction / (1 + e)
+    assert low == pytest.approx(1000 / (1 + 1.959963984540054 * 0.05))
+    assert high == pytest.approx(1000 / (1 - 1.959963984540054 * 0.05))
