@@ -16,7 +16,9 @@ def test_ingest_list_export(tmp_path):
     text_file = tmp_path / "speech.txt"
     text_file.write_text(GETTYSBURG, encoding="utf-8")
     data = ["--data-dir", str(tmp_path / "data")]
-    result = runner.invoke(app, ["ingest", str(text_file), "--name", "Speech", "--label", "author=Lincoln", *data])
+    result = runner.invoke(
+        app, ["ingest", str(text_file), "--name", "Speech", "--label", "author=Lincoln", *data]
+    )
     assert result.exit_code == 0, result.output
     counts = expected_counts(GETTYSBURG)
     assert f"{sum(counts.values()):,} tokens" in result.output
@@ -27,7 +29,9 @@ def test_ingest_list_export(tmp_path):
     exported = runner.invoke(app, ["export", "1", *data])
     lines = exported.output.strip().splitlines()
     assert lines[0] == "m\tV_m"
-    assert [tuple(map(int, line.split("\t"))) for line in lines[1:]] == sorted(Counter(counts.values()).items())
+    assert [tuple(map(int, line.split("\t"))) for line in lines[1:]] == sorted(
+        Counter(counts.values()).items()
+    )
 
 
 def test_bad_file_and_unknown_corpus(tmp_path):

@@ -6,11 +6,12 @@ from typing import Annotated
 
 from fastapi import APIRouter, Depends, File, Form, HTTPException, Query, Response, UploadFile
 from fastapi.responses import JSONResponse
+from pydantic import BaseModel, Field, field_validator
 from sqlalchemy.engine import Engine
 
 from app.config import Settings
 from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import ingestion, modelling
+from app.services import estimator, ingestion, modelling
 from app.services.jobs import JobRunner
 from app.store import corpora as store
 from app.web import downloads
@@ -138,3 +139,97 @@ def spectrum_tsv(corpus_id: int, engine: EngineDep) -> Response:
 def words_csv(corpus_id: int, engine: EngineDep) -> Response:
     corpus = corpus_or_404(engine, corpus_id)
     return downloads.word_counts_csv_response(corpus, store.word_counts(engine, corpus_id, limit=None)[1])
+
+
+# ------------------------------------------------------------------------------------------- modelling
+
+ModelName = Annotated[str, Query(max_length=60, description="sample, a model name, or recommended")]
+Tokens = Annotated[int, Query(ge=1, le=modelling.MAX_PREDICTION_TOKENS)]
+
+
+def _modelling_call(function, *args):
+    try:
+        return function(*args)
+    except modelling.PredictionError as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+    except (ValueError, ArithmeticError) as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+
+
+@router.get("/corpora/{corpus_id}/predict")
+def predict(
+    corpus_id: int, engine: EngineDep, tokens: Tokens, model: ModelName = modelling.RECOMMENDED
+) -> dict:
+    """E[V(n)] with its range and E[V_k(n)] for k = 1..20 by one model (``sample`` = exact interpolation)."""
+    corpus_or_404(engine, corpus_id)
+    return _modelling_call(modelling.predict, engine, corpus_id, tokens, model)
+
+
+@router.get("/corpora/{corpus_id}/models")
+def models(corpus_id: int, engine: EngineDep) -> dict:
+    """Every fitted model: parameters, goodness of fit, backtest errors, and the recommended ensemble."""
+    corpus_or_404(engine, corpus_id)
+    return _modelling_call(modelling.model_report, engine, corpus_id)
+
+
+@router.get("/corpora/{corpus_id}/richness")
+def richness(
+    corpus_id: int, engine: EngineDep, common_size: Annotated[int | None, Query(ge=1, le=10**12)] = None
+) -> dict:
+    """Lexical richness indices at the corpus size and, optionally, at a common size."""
+    corpus_or_404(engine, corpus_id)
+    return _modelling_call(modelling.richness, engine, corpus_id, common_size)
+
+
+@router.get("/corpora/{corpus_id}/unseen")
+def unseen(corpus_id: int, engine: EngineDep) -> list[dict]:
+    """Estimates of unseen vocabulary, each with its range of validity."""
+    corpus_or_404(engine, corpus_id)
+    return _modelling_call(modelling.unseen_vocabulary, engine, corpus_id)
+
+
+@router.get("/corpora/{corpus_id}/sample")
+def random_sample(
+    corpus_id: int,
+    engine: EngineDep,
+    tokens: Tokens,
+    random_state: Annotated[int, Query(ge=0, le=2**32 - 1)] = 0,
+) -> dict:
+    """Draw a real random sample of ``tokens`` tokens from the stored counts: its observed spectrum beside
+    the exact expectation."""
+    corpus_or_404(engine, corpus_id)
+    return _modelling_call(modelling.random_sample_spectrum, engine, corpus_id, tokens, random_state)
+
+
+class TotalsEstimate(BaseModel):
+    tokens: int = Field(ge=1, le=10**12, description="tokens N of the text")
+    types: int = Field(ge=1, le=10**12, description="types V of the text")
+    hapaxes: int | None = Field(default=None, ge=1, le=10**12, description="hapax legomena V_1, if known")
+    sizes: list[int] = Field(default_factory=list, max_length=50, description="sizes to predict at")
+
+    @field_validator("sizes")
+    @classmethod
+    def _sizes_in_range(cls, sizes: list[int]) -> list[int]:
+        if any(not 1 <= n <= 10**12 for n in sizes):
+            raise ValueError("every size must lie between 1 and 10^12 tokens")
+        return sizes
+
+
+class UniformEstimate(BaseModel):
+    types: int = Field(ge=1, le=10**9, description="k: number of types")
+    repeats: int = Field(ge=1, le=10**9, description="r: occurrences of each type")
+    draws: list[int] = Field(min_length=1, max_length=200, description="numbers of tokens drawn")
+
+
+@router.post("/estimate")
+def estimate(request: TotalsEstimate) -> dict:
+    """From tokens and types (and hapax legomena when known): predicted legomena and growth."""
+    return _modelling_call(
+        estimator.estimate_from_totals, request.tokens, request.types, request.hapaxes, request.sizes
+    )
+
+
+@router.post("/estimate/uniform")
+def estimate_uniform(request: UniformEstimate) -> dict:
+    """k types each occurring r times: exact and closed-form expected types after n draws."""
+    return _modelling_call(estimator.uniform_design, request.types, request.repeats, request.draws)

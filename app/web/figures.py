@@ -36,10 +36,10 @@ def figure(
     """A figure with our common layout; the page supplies the title (a finding) and the caption."""
     base = {
         "font": FONT,
-        "margin": {"l": 70, "r": 20, "t": 20, "b": 60},
+        "margin": {"l": 70, "r": 20, "t": 20, "b": 80},
         "paper_bgcolor": "white",
         "plot_bgcolor": "white",
-        "legend": {"orientation": "h", "y": -0.22, "x": 0},
+        "legend": {"orientation": "h", "y": -0.28, "x": 0},
         "hovermode": "closest",
         "xaxis": axis(x_title, log_x),
         "yaxis": axis(y_title, log_y),
@@ -75,8 +75,43 @@ def band(x, low, high, name: str, colour_hex: str) -> list[dict[str, Any]]:
     ]
 
 
-def spectrum_bars(pairs: list[tuple[int, int]], k_max: int = 20) -> dict[str, Any]:
-    """Observed V_1..V_k_max as bars."""
+def extrapolation_shading(start: float, end: float) -> dict[str, Any]:
+    """Layout pieces that shade the x range [start, end] and label it "extrapolated"."""
+    return {
+        "shapes": [
+            {
+                "type": "rect",
+                "xref": "x",
+                "yref": "paper",
+                "x0": start,
+                "x1": end,
+                "y0": 0,
+                "y1": 1,
+                "fillcolor": "rgba(120,130,150,0.08)",
+                "line": {"width": 0},
+                "layer": "below",
+            }
+        ],
+        "annotations": [
+            {
+                "x": 1,
+                "xref": "paper",
+                "xanchor": "right",
+                "y": 1,
+                "yref": "paper",
+                "yanchor": "top",
+                "text": "extrapolated",
+                "showarrow": False,
+                "font": {"color": "#5b6675"},
+            }
+        ],
+    }
+
+
+def spectrum_bars(
+    pairs: list[tuple[int, int]], models: dict[str, list[float]] | None = None, k_max: int = 20
+):
+    """Observed V_1..V_k_max as bars, with each model's expected values at the corpus size as dashed lines."""
     dense = dict(pairs)
     ks = list(range(1, k_max + 1))
     bars = {
@@ -84,18 +119,51 @@ def spectrum_bars(pairs: list[tuple[int, int]], k_max: int = 20) -> dict[str, An
         "x": ks,
         "y": [dense.get(k, 0) for k in ks],
         "name": "observed V_m",
-        "marker": {"color": colour(0)},
-        "hovertemplate": "V_%{x} = %{y:,}<extra></extra>",
+        "marker": {"color": "#9fb3c8"},
+        "hovertemplate": "observed V_%{x} = %{y:,}<extra></extra>",
     }
+    lines = [
+        line(ks, values[:k_max], name, colour(i), dashed=True, mode="lines+markers", marker={"size": 5})
+        for i, (name, values) in enumerate((models or {}).items())
+    ]
     return figure(
-        [bars], "m (occurrences per type)", "V_m (types)", xaxis=axis("m (occurrences per type)", dtick=1)
+        [bars, *lines],
+        "m (occurrences per type)",
+        "V_m (types)",
+        xaxis=axis("m (occurrences per type)", dtick=1),
     )
 
 
-def growth_lines(text_order: list[tuple[int, int]], random_order: list[dict]) -> dict[str, Any]:
-    """Text-order type growth (solid) with the random-order expectation and its 95% band."""
+def rank_frequency(pairs: list[tuple[int, int]]) -> dict[str, Any]:
+    """Zipf's rank-frequency plot from the spectrum: the types of frequency m hold the ranks just below those
+    of all more frequent types, so the last rank of frequency m is the number of types with f >= m."""
+    ranks, freqs = [], []
+    covered = 0
+    for m, v in sorted(pairs, reverse=True):
+        ranks += [covered + 1, covered + v]
+        freqs += [m, m]
+        covered += v
+    trace = line(
+        ranks, freqs, "observed", colour(0), hovertemplate="rank %{x:,}: %{y:,} tokens<extra></extra>"
+    )
+    return figure([trace], "rank", "frequency (tokens)", log_x=True, log_y=True, showlegend=False)
+
+
+def growth_lines(
+    text_order: list[tuple[int, int]],
+    random_order: list[dict],
+    models: dict[str, tuple[list[float], list[float]]] | None = None,
+    recommended_band: tuple[list[float], list[float], list[float]] | None = None,
+    corpus_tokens: int | None = None,
+) -> dict[str, Any]:
+    """Text-order type growth (solid), the random-order expectation with its 95% band, and model curves
+    (dashed) reaching into a shaded extrapolated range beyond the corpus size."""
     xs = [p["tokens"] for p in random_order]
-    data = band(
+    data = []
+    if recommended_band:
+        bx, low, high = recommended_band
+        data += band(bx, low, high, "recommended: backtest error band", "#000000")
+    data += band(
         xs,
         [p["low"] for p in random_order],
         [p["high"] for p in random_order],
@@ -105,7 +173,15 @@ def growth_lines(text_order: list[tuple[int, int]], random_order: list[dict]) ->
     data.append(
         line(xs, [p["types"] for p in random_order], "random order: expected types", colour(1), dashed=True)
     )
+    for i, (name, (mx, my)) in enumerate((models or {}).items(), start=2):
+        style = {"color": "#000000", "width": 2.5, "dash": "dash"} if name.startswith("recommended") else None
+        data.append(line(mx, my, name, colour(i), dashed=True, **({"line": style} if style else {})))
     data.append(
         line([n for n, _ in text_order], [v for _, v in text_order], "text order (observed)", colour(0))
     )
-    return figure(data, "tokens", "types")
+    layout: dict[str, Any] = {}
+    if models and corpus_tokens:
+        horizon = max(max(mx) for mx, _ in models.values())
+        if horizon > corpus_tokens:
+            layout = extrapolation_shading(corpus_tokens, horizon)
+    return figure(data, "tokens", "types", **layout)

@@ -4,15 +4,15 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Depends, Query, Request
+from fastapi import APIRouter, Depends, HTTPException, Query, Request
 from fastapi.responses import HTMLResponse
 from sqlalchemy.engine import Engine
 
 from app.config import TEMPLATES_DIR
 from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import modelling
+from app.services import estimator
 from app.store import corpora as store
-from app.web import figures
+from app.web import corpus_view, figures
 from app.web.deps import corpus_or_404, engine_of
 from app.web.glossary import GLOSSARY
 from app.web.templating import make_templates
@@ -21,7 +21,6 @@ router = APIRouter(include_in_schema=False)
 templates = make_templates(TEMPLATES_DIR)
 templates.env.globals["glossary"] = GLOSSARY
 EngineDep = Annotated[Engine, Depends(engine_of)]
-WORDS_PER_PAGE = 50
 
 
 def render(request: Request, name: str, status_code: int = 200, **context) -> HTMLResponse:
@@ -57,27 +56,72 @@ def corpus_page(
     engine: EngineDep,
     q: Annotated[str | None, Query(max_length=200)] = None,
     page: Annotated[int, Query(ge=1, le=10**7)] = 1,
+    sizes: Annotated[str | None, Query(max_length=500)] = None,
+    horizon: Annotated[float, Query(ge=1, le=1000)] = 10.0,
+    common_size: Annotated[int | None, Query(ge=1, le=10**12)] = None,
 ):
-    corpus = corpus_or_404(engine, corpus_id)
-    summary = store.summary(corpus)
-    pairs = store.spectrum_pairs(engine, corpus_id)
-    text_order = store.growth_points(engine, corpus_id)
-    random_order = modelling.random_order_growth(engine, corpus_id)["points"]
-    total_words, word_rows = store.word_counts(
-        engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
-    )
-    dense = dict(pairs)
+    corpus_or_404(engine, corpus_id)
+    try:
+        context = corpus_view.corpus_context(engine, corpus_id, q, page, sizes, horizon, common_size)
+    except ValueError as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+    return render(request, "corpus.html", **context)
+
+
+@router.get("/estimate", response_class=HTMLResponse)
+def estimate_page(
+    request: Request,
+    tokens: Annotated[int | None, Query(ge=1, le=10**12)] = None,
+    types: Annotated[int | None, Query(ge=1, le=10**12)] = None,
+    hapaxes: Annotated[int | None, Query(ge=1, le=10**12)] = None,
+    sizes: Annotated[str | None, Query(max_length=500)] = None,
+    uniform_types: Annotated[int | None, Query(ge=1, le=10**9)] = None,
+    repeats: Annotated[int | None, Query(ge=1, le=10**9)] = None,
+    draws: Annotated[str | None, Query(max_length=500)] = None,
+):
+    result = uniform = error = None
+    try:
+        if tokens and types:
+            result = estimator.estimate_from_totals(
+                tokens, types, hapaxes, corpus_view.parse_sizes(sizes, tokens)
+            )
+        if uniform_types and repeats:
+            total = uniform_types * repeats
+            drawn = (
+                corpus_view.parse_sizes(draws, total) if draws else sorted({1, total // 4, total // 2, total})
+            )
+            uniform = estimator.uniform_design(uniform_types, repeats, drawn)
+    except ValueError as exc:
+        error = str(exc)
     return render(
         request,
-        "corpus.html",
-        corpus=summary,
-        spectrum_rows=[(m, dense.get(m, 0)) for m in range(1, 21)],
-        spectrum_figure=figures.spectrum_bars(pairs),
-        growth_figure=figures.growth_lines(text_order, random_order),
-        words=word_rows,
-        words_total=total_words,
-        words_query=q or "",
-        words_page=page,
-        words_pages=max(1, -(-total_words // WORDS_PER_PAGE)),
-        json_url=f"/api/corpora/{corpus_id}",
+        "estimate.html",
+        result=result,
+        uniform=uniform,
+        error=error,
+        form={
+            "tokens": tokens,
+            "types": types,
+            "hapaxes": hapaxes,
+            "sizes": sizes or "",
+            "uniform_types": uniform_types,
+            "repeats": repeats,
+            "draws": draws or "",
+        },
+        growth_figure=estimate_figure(result) if result else None,
+        json_url="/docs#/api/estimate_api_estimate_post",
     )
+
+
+def estimate_figure(result: dict) -> dict:
+    rows = result["predictions"]
+    xs = [r["tokens"] for r in rows]
+    trace = figures.line(
+        xs,
+        [r["types"] for r in rows],
+        "perfect-Zipf prediction",
+        figures.colour(0),
+        dashed=True,
+        mode="lines+markers",
+    )
+    return figures.figure([trace], "tokens", "types", log_x=True)

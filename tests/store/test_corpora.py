@@ -46,7 +46,9 @@ def test_round_trip(engine):
 
 def test_failed_save_leaves_nothing(engine):
     store.save_corpus(engine, record("kept"))
-    broken = record("broken", spectrum=[(1, 3), (1, 3)])  # duplicate key: fails after the corpus row is written
+    broken = record(
+        "broken", spectrum=[(1, 3), (1, 3)]
+    )  # duplicate key: fails after the corpus row is written
     with pytest.raises(IntegrityError):
         store.save_corpus(engine, broken)
     assert [c.name for c in store.list_corpora(engine)] == ["kept"]

@@ -1,0 +1,177 @@
+"""Everything the Corpus page shows, gathered from the services (cached fits; nothing is fitted here)."""
+
+from __future__ import annotations
+
+import json
+from typing import Any
+
+import numpy as np
+from sqlalchemy.engine import Engine
+
+from app.services import modelling
+from app.store import corpora as store
+from app.web import figures
+
+WORDS_PER_PAGE = 50
+CURVE_POINTS = 60
+INDEX_NAMES = {
+    "ttr": "TTR (V/N)",
+    "guiraud_r": "Guiraud's R",
+    "herdan_c": "Herdan's C",
+    "dugast_u": "Dugast's U",
+    "maas_a2": "Maas a²",
+    "honore_h": "Honoré's H",
+    "sichel_s": "Sichel's S",
+    "brunet_w": "Brunet's W",
+    "yule_k": "Yule's K",
+    "simpson_d": "Simpson's D",
+    "hd_d": "HD-D",
+    "mattr": "MATTR (window 50)",
+    "mtld": "MTLD",
+}
+
+
+def parse_sizes(text: str | None, tokens: int) -> list[int]:
+    """Sizes typed by the user ("10000, 1e6, 2x, 10x"): plain numbers or multiples of the corpus size."""
+    if not text:
+        return sorted({max(1, tokens // 10), max(1, tokens // 2), tokens, 2 * tokens, 10 * tokens})
+    sizes = set()
+    for part in text.replace(";", ",").split(","):
+        part = part.strip().lower().replace("_", "")
+        if not part:
+            continue
+        try:
+            value = float(part[:-1]) * tokens if part.endswith("x") else float(part)
+        except ValueError as exc:
+            raise ValueError(
+                f"sizes: {part!r} is neither a number of tokens nor a multiple like '10x'"
+            ) from exc
+        if not 1 <= value <= modelling.MAX_PREDICTION_TOKENS:
+            raise ValueError(f"sizes: {part!r} is outside 1 .. {modelling.MAX_PREDICTION_TOKENS:,} tokens")
+        sizes.add(int(round(value)))
+    if len(sizes) > 30:
+        raise ValueError("sizes: at most 30 sizes at once")
+    return sorted(sizes)
+
+
+def _backtest_table(report: dict) -> dict[str, dict[str, float | None]]:
+    """model -> {"random 10%": median signed error of V, ..., "first 10%": ...}."""
+    table: dict[str, dict[str, float | None]] = {}
+    for row in report["summary"]:
+        label = f"random {float(row['label']):.0%}" if row["kind"] == "random" else row["label"]
+        table.setdefault(row["model"], {})[label] = row["types_error_percent"]
+    return table
+
+
+def model_section(
+    engine: Engine, corpus_id: int, tokens: int, horizon: int, sizes: list[int]
+) -> dict[str, Any]:
+    """Model table, prediction table and the model curves for the figures (or the reason there are none)."""
+    try:
+        report = modelling.model_report(engine, corpus_id)
+        predictors = modelling.predictors(engine, corpus_id)
+    except (ValueError, ArithmeticError) as exc:
+        return {"models_error": str(exc)}
+    backtests = _backtest_table(report)
+    weights = report["recommended"]["weights"]
+    rows = [
+        {
+            "name": name,
+            "title": data["title"],
+            "params": data["params"],
+            "gof": data["goodness_of_fit"],
+            "backtests": backtests.get(name, {}),
+            "weight": weights.get(name, {}).get("types"),
+        }
+        for name, data in report["fitted"].items()
+    ]
+    columns = list(dict.fromkeys(label for row in rows for label in row["backtests"]))
+    curve_x = np.unique(np.geomspace(max(1, tokens // 100), horizon, CURVE_POINTS).astype(np.int64))
+    curves = {
+        ("recommended (extrapolation)" if name == "recommended" else name): (
+            curve_x.tolist(),
+            np.asarray(p.types(curve_x.astype(float)), dtype=float).tolist(),
+        )
+        for name, p in predictors.items()
+        if name != "perfect_zipf_totals"
+    }
+    rec = predictors["recommended"]
+    beyond = curve_x[curve_x >= tokens].astype(float)
+    rec_band = (
+        beyond.tolist(),
+        np.asarray(rec.types_low(beyond)).tolist(),
+        np.asarray(rec.types_high(beyond)).tolist(),
+    )
+    predictions = [
+        {
+            "tokens": n,
+            "extrapolated": n > tokens,
+            "models": {
+                name: modelling.predict(engine, corpus_id, n, name)
+                for name in ("recommended", *report["fitted"])
+            },
+        }
+        for n in sizes
+    ]
+    return {
+        "models_error": None,
+        "model_rows": rows,
+        "backtest_columns": columns,
+        "failures": report["failures"],
+        "recommended_band": report["recommended"]["band"],
+        "curves": curves,
+        "recommended_curve_band": rec_band,
+        "expected_at_corpus_size": {
+            name: p.spectrum(tokens, 20).tolist()
+            for name, p in predictors.items()
+            if name != "perfect_zipf_totals"
+        },
+        "predictions": predictions,
+    }
+
+
+def corpus_context(
+    engine: Engine,
+    corpus_id: int,
+    q: str | None,
+    page: int,
+    sizes_text: str | None,
+    horizon_factor: float,
+    common_size: int | None,
+) -> dict[str, Any]:
+    corpus = store.get_corpus(engine, corpus_id)
+    summary = store.summary(corpus)
+    tokens = corpus.tokens
+    pairs = store.spectrum_pairs(engine, corpus_id)
+    dense = dict(pairs)
+    sizes = parse_sizes(sizes_text, tokens)
+    horizon = int(max(tokens * horizon_factor, tokens + 1))
+    models = model_section(engine, corpus_id, tokens, horizon, sizes)
+    text_order = store.growth_points(engine, corpus_id)
+    random_order = modelling.random_order_growth(engine, corpus_id)["points"]
+    common = common_size or min(tokens, 10_000)
+    total_words, word_rows = store.word_counts(
+        engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
+    )
+    return {
+        "corpus": summary,
+        "text_order_stats": json.loads(corpus.text_order_json),
+        "spectrum_rows": [(m, dense.get(m, 0)) for m in range(1, 21)],
+        "spectrum_figure": figures.spectrum_bars(pairs, models.get("expected_at_corpus_size")),
+        "rank_figure": figures.rank_frequency(pairs),
+        "growth_figure": figures.growth_lines(
+            text_order, random_order, models.get("curves"), models.get("recommended_curve_band"), tokens
+        ),
+        "sizes_text": sizes_text or "",
+        "horizon_factor": horizon_factor,
+        "horizon": horizon,
+        "richness": modelling.richness(engine, corpus_id, min(common, tokens)),
+        "index_names": INDEX_NAMES,
+        "unseen": modelling.unseen_vocabulary(engine, corpus_id),
+        "words": word_rows,
+        "words_total": total_words,
+        "words_query": q or "",
+        "words_page": page,
+        "words_pages": max(1, -(-total_words // WORDS_PER_PAGE)),
+        "json_url": f"/api/corpora/{corpus_id}",
+    } | models

@@ -1,0 +1,147 @@
+"""Modelling endpoints (predict, models, richness, unseen, sample, estimate) against outside references."""
+
+from __future__ import annotations
+
+import re
+from collections import Counter
+
+import numpy as np
+import pytest
+from scipy.stats import hypergeom
+
+from tests.conftest import stdlib_docstrings
+
+
+@pytest.fixture(scope="module")
+def docstring_corpus(tmp_path_factory):
+    """The standard library's docstrings, ingested once through the API."""
+    from fastapi.testclient import TestClient
+
+    from app.config import Settings
+    from app.main import create_app
+
+    settings = Settings(data_dir=tmp_path_factory.mktemp("data"), load_demo=False)
+    text = stdlib_docstrings()
+    with TestClient(create_app(settings)) as client:
+        response = client.post("/api/corpora?wait=1", data={"name": "stdlib docstrings", "text": text})
+        assert response.status_code == 201, response.text
+        yield client, response.json()["id"], text
+
+
+def test_predict_sample_equals_scipy_hypergeom(docstring_corpus):
+    client, cid, _ = docstring_corpus
+    rows = client.get(f"/api/corpora/{cid}/words.csv").text.strip().splitlines()[1:]
+    counts = np.array([int(line.rsplit(",", 1)[1]) for line in rows])
+    total = client.get(f"/api/corpora/{cid}").json()["tokens"]
+    assert counts.size == client.get(f"/api/corpora/{cid}").json()["types"]
+    n = total // 3
+    body = client.get(f"/api/corpora/{cid}/predict", params={"tokens": n, "model": "sample"}).json()
+    # Reference: scipy.stats.hypergeom, type by type (MATH.md section 2).
+    assert body["types"] == pytest.approx(np.sum(1 - hypergeom.pmf(0, total, counts, n)), rel=1e-9)
+    for k in (1, 2, 3):
+        assert body["legomena"][str(k)] == pytest.approx(np.sum(hypergeom.pmf(k, total, counts, n)), rel=1e-9)
+    assert body["types_low"] < body["types"] < body["types_high"]
+    assert client.get(f"/api/corpora/{cid}/predict", params={"tokens": n}).json()["types"] == body["types"]
+
+
+def test_models_and_extrapolation(docstring_corpus):
+    client, cid, _ = docstring_corpus
+    report = client.get(f"/api/corpora/{cid}/models").json()
+    assert {"perfect_zipf", "heaps", "zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp"} <= set(
+        report["fitted"]
+    )
+    summary = client.get(f"/api/corpora/{cid}").json()
+    # The perfect-Zipf fit reproduces the corpus's own V (MATH.md section 3).
+    pz = client.get(
+        f"/api/corpora/{cid}/predict", params={"tokens": summary["tokens"], "model": "perfect_zipf"}
+    ).json()
+    assert pz["types"] == pytest.approx(summary["types"], rel=1e-6)
+    far = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 10 * summary["tokens"]}).json()
+    assert far["model"] == "recommended" and far["extrapolated"]
+    assert summary["types"] < far["types_low"] <= far["types"] <= far["types_high"]
+    for name in report["fitted"]:
+        body = client.get(
+            f"/api/corpora/{cid}/predict", params={"tokens": 10 * summary["tokens"], "model": name}
+        ).json()
+        assert np.isfinite(body["types"]) and body["types"] > 0, name
+    bad = client.get(
+        f"/api/corpora/{cid}/predict", params={"tokens": 10 * summary["tokens"], "model": "sample"}
+    )
+    assert bad.status_code == 422 and "corpus size" in bad.json()["detail"]
+    assert (
+        client.get(f"/api/corpora/{cid}/predict", params={"tokens": 5, "model": "nonsense"}).status_code
+        == 422
+    )
+    assert client.get(f"/api/corpora/{cid}/predict", params={"tokens": -5}).status_code == 422
+    assert client.get(f"/api/corpora/{cid}/predict", params={"tokens": 10**30}).status_code == 422
+
+
+def test_richness_and_unseen(docstring_corpus):
+    client, cid, text = docstring_corpus
+    body = client.get(f"/api/corpora/{cid}/richness", params={"common_size": 1000}).json()
+    tokens = re.findall(r"[^\W\d_]+(?:['’-][^\W\d_]+)*", text.lower())
+    counts = Counter(tokens)
+    # TTR by its definition V/N (Templin 1957; common practice), on a reference tokenization of this text.
+    assert body["at_corpus_size"]["ttr"] == pytest.approx(len(counts) / len(tokens), rel=0.02)
+    assert body["at_common_size"]["tokens"] == 1000
+    assert 0 < body["at_corpus_size"]["mattr"] < 1 and body["at_corpus_size"]["mtld"] > 10
+    unseen = client.get(f"/api/corpora/{cid}/unseen").json()
+    coverage = next(e for e in unseen if e["method"] == "Good-Turing coverage")
+    summary = client.get(f"/api/corpora/{cid}").json()
+    assert coverage["value"] == pytest.approx(1 - summary["hapaxes"] / summary["tokens"])  # Good (1953)
+    assert all(e["validity"] for e in unseen)
+
+
+def test_random_samples_scatter_around_the_prediction(docstring_corpus):
+    client, cid, _ = docstring_corpus
+    n = client.get(f"/api/corpora/{cid}").json()["tokens"] // 5
+    draws = [
+        client.get(f"/api/corpora/{cid}/sample", params={"tokens": n, "random_state": s}).json()
+        for s in range(20)
+    ]
+    types = np.array([d["types"] for d in draws])
+    sd = client.get(f"/api/corpora/{cid}/predict", params={"tokens": n, "model": "sample"}).json()["types_sd"]
+    # The mean of 20 real samples lies within 4 standard errors of the exact expectation (Monte Carlo check).
+    assert abs(types.mean() - draws[0]["expected_types"]) < 4 * sd / np.sqrt(len(types))
+    assert len({tuple(d["observed"]) for d in draws}) > 1
+
+
+def test_estimate_from_totals_and_uniform(client):
+    # Totals only: perfectly Zipfian at its own size, V_k / V = 1 / (k (k+1)) (Zipf's second law; fact of the trade).
+    body = client.post("/api/estimate", json={"tokens": 50_000, "types": 8_000, "sizes": [500_000]}).json()
+    at_size = body["predictions"][0]
+    assert [at_size["legomena"][str(k)] / 8_000 for k in (1, 2, 3, 4)] == pytest.approx(
+        [1 / 2, 1 / 6, 1 / 12, 1 / 20]
+    )
+    assert body["predictions"][1]["types"] > 8_000 and "assum" in body["assumption"]
+    with_hapaxes = client.post(
+        "/api/estimate", json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400}
+    ).json()
+    assert with_hapaxes["predictions"][0]["legomena"]["1"] == pytest.approx(4_400, rel=1e-6)
+    # Uniform design: exact value equals scipy.stats.hypergeom (k types of r tokens each).
+    k, r, n = 40, 7, 100
+    uniform = client.post("/api/estimate/uniform", json={"types": k, "repeats": r, "draws": [n]}).json()[
+        "rows"
+    ][0]
+    assert uniform["types_exact"] == pytest.approx(k * (1 - hypergeom.pmf(0, k * r, r, n)), rel=1e-9)
+    assert uniform["types_closed_form"] == pytest.approx(uniform["types_exact"], rel=0.01)
+    assert client.post("/api/estimate", json={"tokens": 10, "types": 20}).status_code == 422
+    assert client.post("/api/estimate", json={"tokens": -1, "types": 2}).status_code == 422
+    page = client.get(
+        "/estimate", params={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400, "sizes": "10x"}
+    )
+    assert page.status_code == 200 and "500,000" in page.text
+
+
+def test_corpus_page_shows_models(docstring_corpus):
+    client, cid, _ = docstring_corpus
+    html = client.get(f"/corpora/{cid}", params={"sizes": "1000, 10x", "horizon": 20}).text
+    for needle in (
+        "Models and backtests",
+        "finite Zipf-Mandelbrot",
+        "recommended",
+        "Unseen vocabulary",
+        "Yule&#39;s K",
+    ):
+        assert needle in html
+    assert client.get(f"/corpora/{cid}", params={"sizes": "lots"}).status_code == 422
