@@ -4,11 +4,14 @@ from __future__ import annotations
 
 from typing import Any
 
+import numpy as np
+
 from app.core.models import fit_from_totals
 from app.core.models.perfect_zipf import PerfectZipf
 from app.core.uniform import uniform_expected_types_closed_form, uniform_expected_types_exact
 
 LEGOMENA_SHOWN = 10
+CURVE_POINTS = 50
 MAX_UNIFORM_TOKENS = 10**9
 
 ASSUMPTION_WITH_HAPAXES = (
@@ -37,10 +40,12 @@ def estimate_from_totals(tokens: int, types: int, hapaxes: int | None, sizes: li
             "legomena": {str(k): float(v) for k, v in enumerate(fitted.spectrum(n, LEGOMENA_SHOWN), start=1)},
             "extrapolated": n > tokens,
         }
-        for n in [tokens, *sizes]
+        for n in sorted({tokens, *sizes})
     ]
+    curve = np.unique(np.geomspace(max(1, tokens / 100), max([10 * tokens, *sizes]), CURVE_POINTS).round())
     return {
         "input": {"tokens": tokens, "types": types, "hapaxes": hapaxes},
+        "curve": {"tokens": curve.tolist(), "types": np.asarray(fitted.types(curve), dtype=float).tolist()},
         "model": fitted.model.name,
         "params": {k: float(v) for k, v in fitted.params.items()},
         "zipf_size": float(fitted.params["Z"]),

@@ -115,13 +115,19 @@ def estimate_page(
 
 def estimate_figure(result: dict) -> dict:
     rows = result["predictions"]
-    xs = [r["tokens"] for r in rows]
-    trace = figures.line(
-        xs,
-        [r["types"] for r in rows],
+    curve = figures.line(
+        result["curve"]["tokens"],
+        result["curve"]["types"],
         "perfect-Zipf prediction",
         figures.colour(0),
         dashed=True,
-        mode="lines+markers",
     )
-    return figures.figure([trace], "tokens", "types", log_x=True)
+    points = figures.line(
+        [r["tokens"] for r in rows],
+        [r["types"] for r in rows],
+        "sizes of the table",
+        figures.colour(3),
+        mode="markers",
+        marker={"size": 8},
+    )
+    return figures.figure([curve, points], "tokens", "types", log_x=True)

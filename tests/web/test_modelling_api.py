@@ -109,15 +109,16 @@ def test_random_samples_scatter_around_the_prediction(docstring_corpus):
 def test_estimate_from_totals_and_uniform(client):
     # Totals only: perfectly Zipfian at its own size, V_k / V = 1 / (k (k+1)) (Zipf's second law; fact of the trade).
     body = client.post("/api/estimate", json={"tokens": 50_000, "types": 8_000, "sizes": [500_000]}).json()
-    at_size = body["predictions"][0]
+    at_size = next(row for row in body["predictions"] if row["tokens"] == 50_000)
     assert [at_size["legomena"][str(k)] / 8_000 for k in (1, 2, 3, 4)] == pytest.approx(
         [1 / 2, 1 / 6, 1 / 12, 1 / 20]
     )
-    assert body["predictions"][1]["types"] > 8_000 and "assum" in body["assumption"]
+    assert body["predictions"][-1]["types"] > 8_000 and "assum" in body["assumption"]
     with_hapaxes = client.post(
         "/api/estimate", json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400}
     ).json()
-    assert with_hapaxes["predictions"][0]["legomena"]["1"] == pytest.approx(4_400, rel=1e-6)
+    given = next(row for row in with_hapaxes["predictions"] if row["tokens"] == 50_000)
+    assert given["legomena"]["1"] == pytest.approx(4_400, rel=1e-6)
     # Uniform design: exact value equals scipy.stats.hypergeom (k types of r tokens each).
     k, r, n = 40, 7, 100
     uniform = client.post("/api/estimate/uniform", json={"types": k, "repeats": r, "draws": [n]}).json()[
