@@ -6,8 +6,6 @@ that every Python installation carries (module docstrings of the standard librar
 
 from __future__ import annotations
 
-import importlib
-import inspect
 import re
 from functools import lru_cache
 
@@ -25,23 +23,13 @@ from app.core.interpolation import (
     variance_types,
 )
 from app.core.spectrum import Spectrum
-
-STDLIB_MODULES = (
-    "argparse", "array", "ast", "calendar", "collections", "configparser", "copy", "csv", "difflib",
-    "doctest", "ftplib", "gzip", "hashlib", "heapq", "http.client", "inspect", "io", "itertools", "json",
-    "logging", "operator", "optparse", "os", "pdb", "pickle", "pydoc", "random", "re", "shutil", "smtplib",
-    "socket", "statistics", "string", "subprocess", "tempfile", "turtle", "typing", "unittest",
-    "urllib.parse", "uuid",
-)  # fmt: skip
+from tests.conftest import stdlib_docstrings
 
 
 @lru_cache(maxsize=1)
 def stdlib_docstring_tokens() -> tuple[str, ...]:
-    """Lower-cased letter runs of the module docstrings of 40 standard-library modules, in a fixed order."""
-    tokens: list[str] = []
-    for name in STDLIB_MODULES:
-        text = inspect.getdoc(importlib.import_module(name)) or ""
-        tokens += re.findall(r"[^\W\d_]+", text.lower())
+    """Lower-cased letter runs of standard-library docstrings (``tests.conftest``), in a fixed order."""
+    tokens = re.findall(r"[^\W\d_]+", stdlib_docstrings().lower())
     if len(tokens) < 5000:  # docstrings stripped (python -OO) or a very different standard library
         pytest.skip(f"only {len(tokens)} docstring tokens available")
     return tuple(tokens)
