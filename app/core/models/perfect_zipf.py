@@ -35,6 +35,7 @@ from app.core.models.base import ArrayLike, FittedModel, Params, VocabularyModel
 from app.core.spectrum import Spectrum
 
 _LOG_X_LIMIT = 700.0  # |ln x| beyond which x over- or underflows a double
+_TINY_X = 1e-15  # below this fraction the leading terms of E_k(x) are exact to double precision
 _SERIES_LIMIT = 1e-3  # below |ln x| = 1e-3 the Bernoulli series is used (its next term, s^5/30240, < 1e-19)
 
 
@@ -59,6 +60,13 @@ def hapax_share(x: ArrayLike) -> np.ndarray:
 def legomena_shares(x: float, k: ArrayLike) -> np.ndarray:
     """E_k(x) / W for the frequencies k (any shape), by adaptive quadrature (module docstring)."""
     k = np.asarray(k, dtype=float)
+    if x < _TINY_X:
+        # x -> 0: E_1 / W = x (x - 1 - ln x) / (x - 1)^2 and E_k / W = x / (k (k-1)) + O(x^2 ln x) for k >= 2
+        # (the leading term of the binomial series); here x is below double resolution next to 1, where the
+        # quadrature's breakpoint 1 / (1 + x) would sit on the end of the interval.
+        hapax = x * (x - 1 - math.log(x)) / (x - 1) ** 2
+        with np.errstate(divide="ignore"):
+            return np.where(k == 1, hapax, x / (k * (k - 1)))
 
     def integrand(w: float) -> np.ndarray:
         return x * w * (1 - w) ** (k - 1) / (x * w + 1 - w)
