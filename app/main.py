@@ -17,7 +17,7 @@ from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
 from app.services.ingestion import load_demo_corpora
 from app.services.jobs import JobRunner
 from app.store.db import make_engine
-from app.web import api, pages
+from app.web import api, compare, pages
 
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
@@ -55,6 +55,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)
+    app.include_router(compare.router)
 
     @app.exception_handler(StarletteHTTPException)
     async def html_errors(request: Request, exc: StarletteHTTPException):

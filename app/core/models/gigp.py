@@ -23,35 +23,6 @@ from app.core.models.base import ArrayLike, Params, VocabularyModel, as_output
 from app.core.spectrum import Spectrum
 
 
-_SERIES_BELOW = 0.5  # b sqrt(1 + n c) below which the Bessel difference is summed as a series
-_SERIES_TERMS = 30
-
-
-def _bessel_difference_series(b: float, g: float, log_r2: np.ndarray) -> np.ndarray:
-    """K_g(b) - R^(-g) K_g(b R) with R^2 = 1 + n c (log_r2 = ln R^2), without cancellation.
-
-    From K_g = pi (I_{-g} - I_g) / (2 sin(g pi)) and I_nu(z) = sum_k (z/2)^(nu+2k) / (k! Gamma(nu+k+1))
-    (Abramowitz & Stegun 9.6.2, 9.6.10), each term of R^(-g) I_{+-g}(b R) is the term of I_{+-g}(b) times
-    R^(2k -+ ... ), so the difference is a series of terms (1 - R^(2k-2g)) and (1 - R^(2k)), each computed with
-    expm1. For b R < 0.5 thirty terms are far below double precision. Needed when b is tiny: the population
-    (and the cancellation in 1 - ratio) is then huge while E[V(n)] at small n is of order n.
-    """
-    log_r2 = np.atleast_1d(log_r2)
-    k = np.arange(_SERIES_TERMS, dtype=float)[:, None]
-    log_half_b = np.log(b / 2)
-
-    def log_expm1(x: np.ndarray) -> np.ndarray:
-        with np.errstate(divide="ignore"):
-            return x + np.log(-np.expm1(-x))  # log(e^x - 1), exact for large x as well
-
-    # 1 - R^(2k-2g) and 1 - R^(2k) are <= 0: combine their logs with the term's log to avoid inf * 0.
-    minus = np.exp(
-        (2 * k - g) * log_half_b - gammaln(k + 1) - gammaln(k - g + 1) + log_expm1((k - g) * log_r2)
-    )
-    plus = np.exp((2 * k + g) * log_half_b - gammaln(k + 1) - gammaln(k + g + 1) + log_expm1(k * log_r2))
-    return np.pi / (2 * np.sin(g * np.pi)) * (plus.sum(axis=0) - minus.sum(axis=0))
-
-
 class GIGP(VocabularyModel):
     """Generalised inverse Gauss-Poisson LNRE model (module docstring, Sichel 1975)."""
 
@@ -68,17 +39,7 @@ class GIGP(VocabularyModel):
         # written as b n c / (root + 1) to keep small n exact.
         log_ratio = -0.5 * g * np.log1p(nc) + np.log(kve(g, b * root) / kve(g, b)) - b * nc / (root + 1)
         population = 2 / (b * c) * kve(g, b) / kve(g + 1, b)
-        direct = np.asarray(-population * np.expm1(log_ratio), dtype=float)
-        small = b * root < _SERIES_BELOW
-        if np.any(small):
-            series = (
-                _bessel_difference_series(b, g, np.log1p(nc)).reshape(nc.shape)
-                * 2
-                / (b * c)
-                / (kve(g + 1, b) * np.exp(-b))
-            )
-            direct = np.where(small, series, direct)
-        return as_output(direct, n)
+        return as_output(-population * np.expm1(log_ratio), n)
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
         b, c, g = params["b"], params["c"], params["g"]

@@ -1,0 +1,645 @@
+"""Comparison service: 2 to 8 corpora side by side at one common size, as a snapshot of plain numbers.
+
+A snapshot holds everything a comparison page shows: the resolved settings, the corpora as they were, the
+size-matched table with pairwise z tests, the text-order and random-order spreads, the curves of the figures
+(thinned), the legomena profiles, rank-frequency points, distinctive words of one pair, and the warnings.
+Live pages build a snapshot (kept in a small in-memory cache), permalinks store it, and both render from it,
+so a saved comparison shows the same numbers later, whatever happens to the library.
+
+Sizes up to a corpus's own N are exact random-sample interpolations (app.core.interpolation); sizes beyond it
+come from the recommended model of the modelling service and are marked model-based.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import threading
+from collections import OrderedDict
+from dataclasses import asdict, dataclass
+from datetime import UTC, datetime
+from typing import Any
+
+import numpy as np
+from sqlalchemy.engine import Engine
+
+from app.config import PROGRAM_VERSION
+from app.core import richness
+from app.core.comparison import distinctive_words, pairwise_z_tests, size_matched
+from app.core.interpolation import Z95, expected_spectrum, types_band
+from app.core.models import Predictor
+from app.core.spectrum import Spectrum
+from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
+from app.services import modelling
+from app.services.export import table_text
+from app.store import comparisons as saved
+from app.store import corpora as store
+from app.store.corpora import CorpusNotFoundError
+from app.store.tables import Corpus
+
+MIN_CORPORA, MAX_CORPORA = 2, 8
+MAX_TOKENS = modelling.MAX_PREDICTION_TOKENS
+MAX_MIN_FREQ = 10**9
+DEFAULT_MIN_FREQ = 5
+DEFAULT_LIMIT, MAX_LIMIT = 100, 5000
+LEGOMENA_K = 10
+CURVE_POINTS = 120
+RANK_POINTS = 150
+MODEL_POINTS = 40
+MTLD_MIN_TOKENS = 100  # McCarthy & Jarvis (2010) advise at least 100 tokens (common practice)
+EXTRAPOLATION_WARNING_FACTOR = 10
+SPREAD_MIN_SEGMENTS = 10
+CACHE_SIZE = 32
+MODEL_ERRORS = (ValueError, ArithmeticError, KeyError, np.linalg.LinAlgError)
+
+CAUTION = (
+    "Vocabulary statistics alone are not evidence of authorship or misconduct. Differences in vocabulary "
+    "also come from topic, register, genre, editing, transcription and tokenization; read them as a "
+    "description of the texts, never as proof about the people who wrote them."
+)
+SPREAD_NOTE = (
+    "Random order: the spread of the type count over random samples of {n} tokens of the corpus, as if its "
+    "words were shuffled (exact hypergeometric). Text order: the spread over consecutive stretches of {n} "
+    "tokens of the actual text, measured at ingestion. Real texts cluster words by topic, so the text-order "
+    "spread is usually the wider one, and the random-order figures understate how much real texts of this "
+    "size vary."
+)
+TABLE_COLUMNS = (
+    "corpus_id",
+    "name",
+    "tokens",
+    "basis",
+    "types",
+    "types_sd",
+    "types_low",
+    "types_high",
+    "hapaxes",
+    "dis_legomena",
+    "ttr",
+    "ttr_sd",
+    "hd_d",
+    "mtld",
+    "yule_k",
+)
+UNTESTED_REASON = {
+    "model-based": "model-based value: its range is a backtest error, not a sampling spread",
+    "unavailable": "no value at this size",
+}
+DISTINCTIVE_COLUMNS = ("word", "count1", "count2", "g2", "p", "p_holm", "log_ratio")
+
+
+class ComparisonInputError(ValueError):
+    """Settings that cannot make a comparison; the message says why."""
+
+
+@dataclass(frozen=True)
+class ComparisonSettings:
+    """What the user chose: corpus ids (2..8), optional common size and horizon (tokens), the pair for
+    distinctive words, its minimum frequency and the number of words kept."""
+
+    corpora: tuple[int, ...]
+    common_size: int | None = None
+    horizon: int | None = None
+    pair: tuple[int, int] | None = None
+    min_freq: int = DEFAULT_MIN_FREQ
+    limit: int = DEFAULT_LIMIT
+
+    def as_dict(self) -> dict[str, Any]:
+        out = asdict(self)
+        out["corpora"] = list(self.corpora)
+        out["pair"] = list(self.pair) if self.pair else None
+        return out
+
+
+def _bounded(name: str, value: int | None, low: int, high: int) -> int | None:
+    if value is None:
+        return None
+    if isinstance(value, bool) or not isinstance(value, int):
+        raise ComparisonInputError(f"{name} must be a whole number")
+    if not low <= value <= high:
+        raise ComparisonInputError(f"{name} must lie between {low:,} and {high:,} (got {value:,})")
+    return value
+
+
+def check_settings(
+    corpora: list[int],
+    common_size: int | None = None,
+    horizon: int | None = None,
+    pair: list[int] | tuple[int, ...] | None = None,
+    min_freq: int | None = None,
+    limit: int | None = None,
+) -> ComparisonSettings:
+    """Validate the settings (not yet whether the corpora exist); a repeated id counts once, and None means
+    the default."""
+    ids = tuple(dict.fromkeys(corpora))
+    if not MIN_CORPORA <= len(ids) <= MAX_CORPORA:
+        raise ComparisonInputError(
+            f"choose between {MIN_CORPORA} and {MAX_CORPORA} different corpora to compare (got {len(ids):,})"
+        )
+    if pair is not None:
+        pair = tuple(pair)
+        if len(pair) != 2 or pair[0] == pair[1] or not set(pair) <= set(ids):
+            raise ComparisonInputError(
+                "the pair for distinctive words must be two different compared corpora"
+            )
+    return ComparisonSettings(
+        ids,
+        _bounded("common_size", common_size, 1, MAX_TOKENS),
+        _bounded("horizon", horizon, 1, MAX_TOKENS),
+        pair,
+        _bounded("min_freq", DEFAULT_MIN_FREQ if min_freq is None else min_freq, 1, MAX_MIN_FREQ),
+        _bounded("limit", DEFAULT_LIMIT if limit is None else limit, 1, MAX_LIMIT),
+    )
+
+
+# ------------------------------------------------------------------------------------------ helpers
+
+
+def _num(value: float | None) -> float | None:
+    """A JSON-safe number: None for missing or non-finite values."""
+    if value is None:
+        return None
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def _nums(values) -> list[float | None]:
+    return [_num(v) for v in np.asarray(values, dtype=float)]
+
+
+def thin_curve(points: list[tuple[int, int]], count: int = CURVE_POINTS) -> list[tuple[int, int]]:
+    """At most about ``count`` of the (tokens, types) points, nearest to log-spaced and evenly spaced targets,
+    always keeping the first and the last."""
+    if len(points) <= count:
+        return list(points)
+    tokens = np.array([n for n, _ in points], dtype=float)
+    targets = np.concatenate(
+        [np.geomspace(tokens[0], tokens[-1], count // 2), np.linspace(tokens[0], tokens[-1], count // 2)]
+    )
+    keep = np.unique(np.clip(np.searchsorted(tokens, targets), 0, len(points) - 1))
+    return [points[i] for i in np.union1d(keep, [0, len(points) - 1])]
+
+
+def rank_frequency_points(spectrum: Spectrum, count: int = RANK_POINTS) -> tuple[list[int], list[int]]:
+    """Frequency at about ``count`` log-spaced ranks, from the spectrum alone.
+
+    With types sorted by descending frequency, the types of frequency m take the ranks from (number of types
+    with f > m) + 1 to (number of types with f >= m), so the frequency at rank r is m of the first class,
+    from the top, whose last rank reaches r.
+    """
+    if spectrum.types == 0:
+        return [], []
+    m_desc = spectrum.m[::-1]
+    last_rank = np.cumsum(spectrum.vm[::-1])
+    ranks = np.unique(np.rint(np.geomspace(1, spectrum.types, count)).astype(np.int64))
+    return ranks.tolist(), m_desc[np.searchsorted(last_rank, ranks)].tolist()
+
+
+@dataclass(frozen=True)
+class _Member:
+    """One compared corpus with what the snapshot needs of it."""
+
+    corpus: Corpus
+    spectrum: Spectrum
+    text_order: dict[str, Any]
+    predictor: Predictor | None
+    model_failure: str | None
+
+
+def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
+    """The corpus with its spectrum, text-order statistics and, only when a size beyond the corpus is asked
+    for (``largest_size``), its recommended model (fits are cached by the modelling service)."""
+    spectrum = modelling.load_spectrum(engine, corpus.id)
+    predictor = failure = None
+    if largest_size > corpus.tokens:
+        try:
+            predictor = modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED]
+        except MODEL_ERRORS as exc:
+            failure = str(exc) or type(exc).__name__
+    return _Member(corpus, spectrum, json.loads(corpus.text_order_json or "{}"), predictor, failure)
+
+
+def _corpus_entry(corpus: Corpus, index: int) -> dict[str, Any]:
+    summary = store.summary(corpus)
+    return {
+        "id": corpus.id,
+        "name": corpus.name,
+        "labels": summary["labels"],
+        "profile": summary["profile"],
+        "tokens": corpus.tokens,
+        "types": corpus.types,
+        "hapaxes": corpus.hapaxes,
+        "content_hash": corpus.content_hash,
+        "created_at": summary["created_at"],
+        "program_version": corpus.program_version,
+        "colour_index": index,
+    }
+
+
+# ------------------------------------------------------------------------------------- size matching
+
+
+def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
+    corpus, spectrum = member.corpus, member.spectrum
+    row: dict[str, Any] = {
+        "corpus_id": corpus.id,
+        "name": corpus.name,
+        "tokens": n0,
+        "hd_d": _num(richness.hd_d(spectrum)),
+        "mtld": _num(member.text_order.get("mtld")),
+        "yule_k": _num(richness.yule_k(spectrum)),
+        "extrapolation_factor": n0 / corpus.tokens,
+    }
+    if n0 <= corpus.tokens:
+        matched = size_matched([spectrum], n0)[0]
+        legomena = expected_spectrum(spectrum, n0, LEGOMENA_K)
+        return row | {
+            "basis": "interpolated",
+            "method": "exact random-sample interpolation (hypergeometric)",
+            "types": _num(matched.types),
+            "types_sd": _num(matched.sd_population),
+            "types_sd_random": _num(matched.sd),
+            "types_low": _num(matched.types - Z95 * matched.sd_population),
+            "types_high": _num(matched.types + Z95 * matched.sd_population),
+            "hapaxes": _num(matched.hapaxes),
+            "dis_legomena": _num(matched.dis_legomena),
+            "ttr": _num(matched.types / n0),
+            "ttr_sd": _num(matched.sd_population / n0),
+            "legomena": _nums(legomena),
+        }
+    predictor = member.predictor
+    values = None
+    if predictor is not None:
+        values = (predictor.types(n0), predictor.types_low(n0), predictor.types_high(n0))
+        legomena = predictor.spectrum(n0, LEGOMENA_K)
+    if values is None or not math.isfinite(values[0]):
+        return row | {
+            "basis": "unavailable",
+            "method": f"no model could extrapolate this corpus: {member.model_failure or 'no finite value'}",
+            **dict.fromkeys(
+                ("types", "types_sd", "types_sd_random", "types_low", "types_high", "hapaxes"), None
+            ),
+            **dict.fromkeys(("dis_legomena", "ttr", "ttr_sd", "legomena"), None),
+        }
+    types, low, high = values
+    return row | {
+        "basis": "model-based",
+        "method": "recommended model (backtest-weighted average of the fitted models), extrapolated",
+        "types": _num(types),
+        "types_sd": None,
+        "types_sd_random": None,
+        "types_low": _num(low),
+        "types_high": _num(high),
+        "hapaxes": _num(legomena[0]),
+        "dis_legomena": _num(legomena[1]),
+        "ttr": _num(types / n0),
+        "ttr_sd": None,
+        "legomena": _nums(legomena),
+    }
+
+
+def _tests(rows: list[dict[str, Any]]) -> tuple[list[dict[str, Any]], list[dict[str, Any]]]:
+    """Pairwise z tests of E[V(n0)] among interpolated rows (Holm over those), and the pairs left untested."""
+    tested = [r for r in rows if r["basis"] == "interpolated"]
+    results = pairwise_z_tests(
+        [r["types"] for r in tested],
+        [r["types_sd"] or 0.0 for r in tested],
+        [str(r["corpus_id"]) for r in tested],
+    )
+    tests = [
+        {
+            "first": int(t.first),
+            "second": int(t.second),
+            "difference": _num(t.difference),
+            "z": _num(t.z),
+            "p": _num(t.p),
+            "p_holm": _num(t.p_holm),
+        }
+        for t in results
+    ]
+    untested = [
+        {
+            "first": a["corpus_id"],
+            "second": b["corpus_id"],
+            "reason": UNTESTED_REASON[b["basis"] if a["basis"] == "interpolated" else a["basis"]],
+        }
+        for i, a in enumerate(rows)
+        for b in rows[i + 1 :]
+        if a["basis"] != "interpolated" or b["basis"] != "interpolated"
+    ]
+    return tests, untested
+
+
+def _segments(member: _Member) -> list[SegmentSpread]:
+    return [SegmentSpread(**s) for s in member.text_order.get("segments") or []]
+
+
+def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
+    """Random-order and text-order spread of V at one size: n0, or less where needed so that every corpus
+    with text segments has at least SPREAD_MIN_SEGMENTS non-overlapping stretches of that size."""
+    measured = [(m, _segments(m), m.text_order.get("measured_tokens") or m.corpus.tokens) for m in members]
+    lengths = [length for _, segments, length in measured if segments]
+    if not lengths:
+        return {
+            "tokens": None,
+            "rows": [],
+            "note": "No corpus is long enough (100 tokens) for text segments.",
+        }
+    size = max(1, min(n0, min(lengths) // SPREAD_MIN_SEGMENTS))
+    rows = []
+    for member, segments, length in measured:
+        random_band = types_band(member.spectrum, size) if size <= member.spectrum.tokens else None
+        text = interpolate_spread(segments, size)
+        rows.append(
+            {
+                "corpus_id": member.corpus.id,
+                "random_types": _num(random_band.types) if random_band else None,
+                "random_sd": _num(random_band.sd) if random_band else None,
+                "text_types": _num(text[0]) if text else None,
+                "text_sd": _num(text[1]) if text else None,
+                "segments": min(length // size, MAX_SEGMENTS) if text else 0,
+            }
+        )
+    note = SPREAD_NOTE.format(n=f"{size:,}")
+    if size < n0:
+        note += (
+            f" The size is below the common size so that every corpus gives at least {SPREAD_MIN_SEGMENTS} "
+            "stretches."
+        )
+    return {"tokens": size, "rows": rows, "note": note}
+
+
+# --------------------------------------------------------------------------------------------- curves
+
+
+def _growth(engine: Engine, member: _Member, horizon: int) -> dict[str, Any]:
+    corpus = member.corpus
+    text_order = thin_curve(store.growth_points(engine, corpus.id))
+    random_points = modelling.random_order_growth(engine, corpus.id)["points"]
+    model = None
+    if member.predictor is not None and horizon > corpus.tokens:
+        sizes = np.unique(np.rint(np.geomspace(corpus.tokens, horizon, MODEL_POINTS))).astype(float)
+        model = {
+            "name": modelling.RECOMMENDED,
+            "tokens": sizes.astype(np.int64).tolist(),
+            "types": _nums(member.predictor.types(sizes)),
+            "low": _nums(member.predictor.types_low(sizes)),
+            "high": _nums(member.predictor.types_high(sizes)),
+        }
+    return {
+        "corpus_id": corpus.id,
+        "text_order": {"tokens": [n for n, _ in text_order], "types": [v for _, v in text_order]},
+        "random_order": {
+            "tokens": [p["tokens"] for p in random_points],
+            **{key: [_num(p[key]) for p in random_points] for key in ("types", "low", "high")},
+        },
+        "model": model,
+    }
+
+
+def _legomena(members: list[_Member], rows: list[dict[str, Any]]) -> dict[str, Any]:
+    profiles = []
+    for member, row in zip(members, rows, strict=True):
+        spectrum = member.spectrum
+        observed = spectrum.dense(LEGOMENA_K) / spectrum.types if spectrum.types else None
+        predicted = (
+            [None if v is None else v / row["types"] for v in row["legomena"]]
+            if row["legomena"] and row["types"]
+            else None
+        )
+        profiles.append(
+            {
+                "corpus_id": member.corpus.id,
+                "observed": None if observed is None else _nums(observed),
+                "predicted": predicted,
+            }
+        )
+    return {"k": list(range(1, LEGOMENA_K + 1)), "rows": profiles}
+
+
+def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: int) -> dict[str, Any]:
+    counts = [store.frequencies(engine, cid) for cid in pair]
+    words = distinctive_words(counts[0], counts[1], min_freq) if all(counts) else []
+    return {
+        "first": pair[0],
+        "second": pair[1],
+        "min_freq": min_freq,
+        "limit": limit,
+        "tested": len(words),
+        "words": [
+            {
+                "word": w.word,
+                "count1": w.count1,
+                "count2": w.count2,
+                "g2": _num(w.g2),
+                "p": _num(w.p),
+                "p_holm": _num(w.p_holm),
+                "log_ratio": _num(w.log_ratio),
+            }
+            for w in words[:limit]
+        ],
+    }
+
+
+# ------------------------------------------------------------------------------------------- warnings
+
+
+def _warnings(members: list[_Member], rows: list[dict[str, Any]], n0: int, horizon: int) -> list[dict]:
+    out: list[dict[str, str]] = []
+    profiles = {json.dumps(json.loads(m.corpus.profile_json), sort_keys=True) for m in members}
+    if len(profiles) > 1:
+        named = "; ".join(f"{m.corpus.name}: {m.corpus.profile_name}" for m in members)
+        out.append(
+            {
+                "kind": "profiles",
+                "message": "The corpora were tokenized with different tokenization profiles "
+                f"({named}). Their counts of tokens and types are not directly comparable.",
+            }
+        )
+    versions = {m.corpus.program_version for m in members}
+    if len(versions) > 1:
+        out.append(
+            {
+                "kind": "versions",
+                "message": f"The corpora were counted by different program versions ({', '.join(sorted(versions))}).",
+            }
+        )
+    for member, row in zip(members, rows, strict=True):
+        corpus = member.corpus
+        if corpus.tokens < MTLD_MIN_TOKENS:
+            out.append(
+                {
+                    "kind": "small",
+                    "message": f"{corpus.name} has only {corpus.tokens:,} tokens: MTLD is unreliable under "
+                    f"{MTLD_MIN_TOKENS} tokens, and text segments (at least 50 tokens, two of them) are missing.",
+                }
+            )
+        if row["hd_d"] is None:
+            out.append(
+                {
+                    "kind": "small",
+                    "message": f"HD-D needs at least {richness.HDD_DRAWS} tokens; {corpus.name} has {corpus.tokens:,}.",
+                }
+            )
+        if row["basis"] == "model-based":
+            factor = n0 / corpus.tokens
+            text = (
+                f"At {n0:,} tokens the values of {corpus.name} are model-based: the recommended model "
+                f"extrapolates {factor:.1f}x beyond its {corpus.tokens:,} tokens."
+            )
+            if factor > EXTRAPOLATION_WARNING_FACTOR:
+                text += f" Extrapolating more than {EXTRAPOLATION_WARNING_FACTOR}x is uncertain."
+            out.append({"kind": "extrapolated", "message": text})
+        elif row["basis"] == "unavailable":
+            out.append({"kind": "model", "message": f"{corpus.name}: {row['method']}."})
+        if member.model_failure is not None and row["basis"] != "unavailable":
+            out.append(
+                {
+                    "kind": "model",
+                    "message": f"No model curve for {corpus.name}: the models could not be fitted "
+                    f"({member.model_failure}).",
+                }
+            )
+    far = [m.corpus.name for m in members if horizon > EXTRAPOLATION_WARNING_FACTOR * m.corpus.tokens]
+    if far:
+        out.append(
+            {
+                "kind": "horizon",
+                "message": f"The horizon of {horizon:,} tokens is more than {EXTRAPOLATION_WARNING_FACTOR}x the "
+                f"size of {', '.join(far)}: those model curves are uncertain there.",
+            }
+        )
+    return out
+
+
+# ------------------------------------------------------------------------------------------ snapshots
+
+
+def _corpora(engine: Engine, ids: tuple[int, ...]) -> list[Corpus]:
+    found = store.get_corpora(engine, list(ids))
+    missing = [i for i in ids if i not in found]
+    if missing:
+        raise CorpusNotFoundError(missing[0])
+    return [found[i] for i in ids]
+
+
+def _resolve(settings: ComparisonSettings, corpora: list[Corpus]) -> ComparisonSettings:
+    smallest = min(c.tokens for c in corpora)
+    largest = max(c.tokens for c in corpora)
+    common = settings.common_size or smallest
+    return ComparisonSettings(
+        settings.corpora,
+        common,
+        settings.horizon or min(max(2 * largest, common), MAX_TOKENS),
+        settings.pair or settings.corpora[:2],
+        settings.min_freq,
+        settings.limit,
+    )
+
+
+def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[Corpus]) -> dict[str, Any]:
+    """Every number of the comparison page for resolved settings (see the module docstring)."""
+    n0, horizon = settings.common_size, settings.horizon
+    members = [_member(engine, c, max(n0, horizon)) for c in corpora]
+    rows = [_size_matched_row(m, n0) for m in members]
+    tests, untested = _tests(rows)
+    return {
+        "kind": "lexigrowth comparison",
+        "program_version": PROGRAM_VERSION,
+        "computed_at": datetime.now(UTC).isoformat(),
+        "settings": settings.as_dict(),
+        "caution": CAUTION,
+        "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
+        "warnings": _warnings(members, rows, n0, horizon),
+        "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested},
+        "spread": _spread(members, n0),
+        "growth": [_growth(engine, m, horizon) for m in members],
+        "legomena": _legomena(members, rows),
+        "rank_frequency": [
+            dict(zip(("ranks", "frequencies"), rank_frequency_points(m.spectrum), strict=True))
+            | {"corpus_id": m.corpus.id}
+            for m in members
+        ],
+        "distinctive": _distinctive(engine, settings.pair, settings.min_freq, settings.limit),
+    }
+
+
+_cache: OrderedDict[tuple, dict[str, Any]] = OrderedDict()
+_cache_lock = threading.Lock()
+
+
+def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, Any]:
+    """The snapshot for these settings on the current library (cached in memory per corpus versions);
+    raises CorpusNotFoundError for an unknown id and ComparisonInputError for unusable settings."""
+    corpora = _corpora(engine, settings.corpora)
+    resolved = _resolve(settings, corpora)
+    key = (
+        str(engine.url),
+        PROGRAM_VERSION,
+        resolved,
+        tuple((c.id, c.content_hash, c.created_at.isoformat()) for c in corpora),
+    )
+    with _cache_lock:
+        if key in _cache:
+            _cache.move_to_end(key)
+            return _cache[key]
+    snapshot = build_snapshot(engine, resolved, corpora)
+    with _cache_lock:
+        _cache[key] = snapshot
+        while len(_cache) > CACHE_SIZE:
+            _cache.popitem(last=False)
+    return snapshot
+
+
+def save(engine: Engine, settings: ComparisonSettings) -> str:
+    """Store the live snapshot of these settings under a new unguessable slug; returns the slug."""
+    snapshot = live_comparison(engine, settings)
+    row = saved.save_comparison(
+        engine, list(settings.corpora), snapshot["settings"], snapshot, snapshot["program_version"]
+    )
+    return row.slug
+
+
+def permalink(slug: str) -> str:
+    return f"/compare/{slug}"
+
+
+def saved_comparison(engine: Engine, slug: str) -> dict[str, Any]:
+    """The stored snapshot of a permalink with notices for corpora deleted (or replaced) since it was saved;
+    raises ComparisonNotFoundError for an unknown slug."""
+    row = saved.get_comparison(engine, slug)
+    snapshot = json.loads(row.snapshot_json)
+    current = store.get_corpora(engine, [c["id"] for c in snapshot["corpora"]])
+    notices = []
+    for entry in snapshot["corpora"]:
+        now = current.get(entry["id"])
+        entry["available"] = bool(now) and (now.content_hash, store.summary(now)["created_at"]) == (
+            entry["content_hash"],
+            entry["created_at"],
+        )
+        if not entry["available"]:
+            notices.append(
+                f"The corpus {entry['name']} (id {entry['id']}) has been deleted from the library since this "
+                "comparison was saved. The numbers below are the ones saved then."
+            )
+    return snapshot | {
+        "slug": row.slug,
+        "url": permalink(row.slug),
+        "saved_at": row.created_at.isoformat(),
+        "notices": notices,
+    }
+
+
+# ------------------------------------------------------------------------------------------ downloads
+
+
+def size_matched_csv(snapshot: dict[str, Any]) -> str:
+    """The size-matched table as CSV with the JSON field names as columns."""
+    rows = snapshot["size_matched"]["rows"]
+    return table_text(TABLE_COLUMNS, [[r.get(c) for c in TABLE_COLUMNS] for r in rows])
+
+
+def distinctive_csv(snapshot: dict[str, Any]) -> str:
+    """The distinctive words of the snapshot's pair as CSV (count1 = first corpus, count2 = second)."""
+    words = snapshot["distinctive"]["words"]
+    return table_text(DISTINCTIVE_COLUMNS, [[w[c] for c in DISTINCTIVE_COLUMNS] for w in words])

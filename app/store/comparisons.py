@@ -1,0 +1,57 @@
+"""Saved comparisons (permalinks): corpora, settings and a snapshot of the numbers shown, under a random slug."""
+
+from __future__ import annotations
+
+import json
+import secrets
+from typing import Any
+
+from sqlalchemy.engine import Engine
+from sqlmodel import Session
+
+from app.store.db import transaction
+from app.store.tables import SavedComparison
+
+SLUG_BYTES = 12  # 96 random bits, 16 URL-safe characters
+
+
+class ComparisonNotFoundError(LookupError):
+    def __init__(self, slug: str) -> None:
+        super().__init__(f"no saved comparison {slug!r}")
+        self.slug = slug
+
+
+def new_slug() -> str:
+    """An unguessable slug: ``SLUG_BYTES`` bytes from the operating system's CSPRNG, base64url-encoded."""
+    return secrets.token_urlsafe(SLUG_BYTES)
+
+
+def save_comparison(
+    engine: Engine,
+    corpus_ids: list[int],
+    settings: dict[str, Any],
+    snapshot: dict[str, Any],
+    program_version: str,
+) -> SavedComparison:
+    """Store a comparison under a fresh slug and return the stored row."""
+    row = SavedComparison(
+        slug=new_slug(),
+        corpus_ids_json=json.dumps(corpus_ids),
+        settings_json=json.dumps(settings),
+        snapshot_json=json.dumps(snapshot, ensure_ascii=False, allow_nan=False),
+        program_version=program_version,
+    )
+    with transaction(engine) as session:
+        session.add(row)
+        session.flush()
+        session.refresh(row)
+        session.expunge(row)
+    return row
+
+
+def get_comparison(engine: Engine, slug: str) -> SavedComparison:
+    with Session(engine) as session:
+        row = session.get(SavedComparison, slug)
+        if row is None:
+            raise ComparisonNotFoundError(slug)
+        return row

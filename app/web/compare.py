@@ -1,0 +1,264 @@
+"""Comparison pages and their JSON twins: a live view with its state in the URL, and saved permalinks.
+
+Pages:  GET /compare?corpus=1&corpus=2[&common_size=&horizon=&first=&second=&min_freq=&limit=&scale=share]
+        POST /compare (form: the same fields) -> 303 to /compare/{slug}
+        GET /compare/{slug}
+JSON:   POST /api/comparisons, GET /api/comparisons/{slug}[?download=1], GET /api/compare?corpus=...,
+        and the CSV tables under both: .../table.csv, .../distinctive.csv
+"""
+
+from __future__ import annotations
+
+import re
+from typing import Annotated, Any
+from urllib.parse import urlencode
+
+from fastapi import APIRouter, Depends, Form, HTTPException, Query, Request
+from fastapi.responses import HTMLResponse, JSONResponse, RedirectResponse, Response
+from pydantic import BaseModel, ConfigDict, Field
+from sqlalchemy.engine import Engine
+
+from app.services import comparisons as service
+from app.store.comparisons import ComparisonNotFoundError
+from app.store.corpora import CorpusNotFoundError
+from app.web.compare_figures import comparison_figures
+from app.web.deps import engine_of
+from app.web.downloads import attachment
+from app.web.figures import PALETTE
+from app.web.pages import render
+
+router = APIRouter()
+EngineDep = Annotated[Engine, Depends(engine_of)]
+SLUG = re.compile(r"[A-Za-z0-9_-]{16,86}")
+
+
+class ComparisonRequest(BaseModel):
+    """Body of POST /api/comparisons."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    corpora: list[int] = Field(description="ids of the 2 to 8 corpora to compare, in legend order")
+    common_size: int | None = Field(None, description="tokens; default: the smallest corpus")
+    horizon: int | None = Field(None, description="tokens the model curves reach; default: twice the largest")
+    pair: list[int] | None = Field(
+        None, description="two of the corpora for distinctive words; default: first two"
+    )
+    min_freq: int | None = Field(None, description="minimum count of a word in the pair together (default 5)")
+    limit: int | None = Field(None, description="distinctive words kept, by G^2 (default 100)")
+
+
+def _optional_int(name: str, text: str | None) -> int | None:
+    """A whole number from a query or form field; blank means "use the default"."""
+    if text is None or not text.strip():
+        return None
+    cleaned = text.strip().replace(",", "").replace("_", "")
+    if not re.fullmatch(r"[+-]?\d{1,40}", cleaned):
+        raise service.ComparisonInputError(f"{name} must be a whole number of tokens (got {text[:40]!r})")
+    return int(cleaned)
+
+
+def _settings(
+    corpus: list[str],
+    common_size: str | None,
+    horizon: str | None,
+    first: str | None,
+    second: str | None,
+    min_freq: str | None,
+    limit: str | None,
+) -> service.ComparisonSettings:
+    """Settings from query or form fields, with a 422 that says what is wrong."""
+    try:
+        ids = [_optional_int("corpus", c) for c in corpus]
+        pair = [_optional_int("first", first), _optional_int("second", second)]
+        return service.check_settings(
+            [i for i in ids if i is not None],
+            _optional_int("common_size", common_size),
+            _optional_int("horizon", horizon),
+            pair if None not in pair else None,
+            _optional_int("min_freq", min_freq),
+            _optional_int("limit", limit),
+        )
+    except service.ComparisonInputError as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+
+
+def _query_settings(
+    corpus: Annotated[list[str], Query(description="corpus ids (2 to 8)")] = [],  # noqa: B006
+    common_size: Annotated[str | None, Query(max_length=60)] = None,
+    horizon: Annotated[str | None, Query(max_length=60)] = None,
+    first: Annotated[str | None, Query(max_length=20)] = None,
+    second: Annotated[str | None, Query(max_length=20)] = None,
+    min_freq: Annotated[str | None, Query(max_length=20)] = None,
+    limit: Annotated[str | None, Query(max_length=20)] = None,
+) -> service.ComparisonSettings:
+    return _settings(corpus, common_size, horizon, first, second, min_freq, limit)
+
+
+def _form_settings(
+    corpus: Annotated[list[str], Form()] = [],  # noqa: B006
+    common_size: Annotated[str | None, Form(max_length=60)] = None,
+    horizon: Annotated[str | None, Form(max_length=60)] = None,
+    first: Annotated[str | None, Form(max_length=20)] = None,
+    second: Annotated[str | None, Form(max_length=20)] = None,
+    min_freq: Annotated[str | None, Form(max_length=20)] = None,
+    limit: Annotated[str | None, Form(max_length=20)] = None,
+) -> service.ComparisonSettings:
+    return _settings(corpus, common_size, horizon, first, second, min_freq, limit)
+
+
+QuerySettings = Annotated[service.ComparisonSettings, Depends(_query_settings)]
+
+
+def _live(engine: Engine, settings: service.ComparisonSettings) -> dict[str, Any]:
+    try:
+        return service.live_comparison(engine, settings)
+    except CorpusNotFoundError as exc:
+        raise HTTPException(status_code=404, detail=f"{exc}: it cannot be compared") from exc
+    except service.ComparisonInputError as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+
+
+def _saved(engine: Engine, slug: str) -> dict[str, Any]:
+    if not SLUG.fullmatch(slug):
+        raise HTTPException(status_code=404, detail="no saved comparison at this address")
+    try:
+        return service.saved_comparison(engine, slug)
+    except ComparisonNotFoundError as exc:
+        raise HTTPException(status_code=404, detail="no saved comparison at this address") from exc
+
+
+def live_query(snapshot: dict[str, Any]) -> str:
+    """The URL query of the live view that recomputes this snapshot's settings."""
+    s = snapshot["settings"]
+    fields = [("corpus", cid) for cid in s["corpora"]] + [
+        ("common_size", s["common_size"]),
+        ("horizon", s["horizon"]),
+        ("first", s["pair"][0]),
+        ("second", s["pair"][1]),
+        ("min_freq", s["min_freq"]),
+        ("limit", s["limit"]),
+    ]
+    return urlencode(fields)
+
+
+def _page(request: Request, snapshot: dict[str, Any], saved: bool, scale: str | None) -> HTMLResponse:
+    query = live_query(snapshot)
+    base = f"/api/comparisons/{snapshot['slug']}" if saved else "/api/compare"
+    suffix = "" if saved else f"?{query}"
+    return render(
+        request,
+        "compare.html",
+        snapshot=snapshot,
+        saved=saved,
+        corpora={c["id"]: c for c in snapshot["corpora"]},
+        figures=comparison_figures(snapshot),
+        palette=PALETTE,
+        scale="share" if scale == "share" else "tokens",
+        live_query=query,
+        json_url=f"{base}{suffix}",
+        downloads={
+            "table": f"{base}/table.csv{suffix}",
+            "distinctive": f"{base}/distinctive.csv{suffix}",
+            "json": f"{base}{suffix}{'&' if suffix else '?'}download=1",
+        },
+    )
+
+
+def _stem(snapshot: dict[str, Any]) -> str:
+    return f"comparison-{snapshot['slug']}" if snapshot.get("slug") else "comparison"
+
+
+def _json(snapshot: dict[str, Any], download: bool) -> JSONResponse:
+    headers = {"Content-Disposition": f'attachment; filename="{_stem(snapshot)}.json"'} if download else None
+    return JSONResponse(snapshot, headers=headers)
+
+
+def _table_csv(snapshot: dict[str, Any]) -> Response:
+    return attachment(
+        service.size_matched_csv(snapshot), f"{_stem(snapshot)}-size-matched.csv", "text/csv; charset=utf-8"
+    )
+
+
+def _distinctive_csv(snapshot: dict[str, Any]) -> Response:
+    return attachment(
+        service.distinctive_csv(snapshot),
+        f"{_stem(snapshot)}-distinctive-words.csv",
+        "text/csv; charset=utf-8",
+    )
+
+
+# ------------------------------------------------------------------------------------------------ pages
+
+
+@router.get("/compare", response_class=HTMLResponse, include_in_schema=False)
+def compare_page(
+    request: Request,
+    engine: EngineDep,
+    settings: QuerySettings,
+    scale: Annotated[str | None, Query(max_length=10)] = None,
+):
+    return _page(request, _live(engine, settings), saved=False, scale=scale)
+
+
+@router.post("/compare", include_in_schema=False)
+def save_from_page(
+    engine: EngineDep, settings: Annotated[service.ComparisonSettings, Depends(_form_settings)]
+) -> RedirectResponse:
+    _live(engine, settings)  # 404/422 before saving anything
+    return RedirectResponse(service.permalink(service.save(engine, settings)), status_code=303)
+
+
+@router.get("/compare/{slug}", response_class=HTMLResponse, include_in_schema=False)
+def saved_page(
+    request: Request, slug: str, engine: EngineDep, scale: Annotated[str | None, Query(max_length=10)] = None
+):
+    return _page(request, _saved(engine, slug), saved=True, scale=scale)
+
+
+# ------------------------------------------------------------------------------------------------- JSON
+
+
+@router.post("/api/comparisons", status_code=201, tags=["comparisons"])
+def create_comparison(body: ComparisonRequest, engine: EngineDep) -> dict:
+    """Save a comparison of 2 to 8 corpora; the permalink shows the numbers computed now, for good."""
+    try:
+        settings = service.check_settings(
+            body.corpora, body.common_size, body.horizon, body.pair, body.min_freq, body.limit
+        )
+    except service.ComparisonInputError as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+    _live(engine, settings)
+    slug = service.save(engine, settings)
+    return {"slug": slug, "url": service.permalink(slug)}
+
+
+@router.get("/api/compare", tags=["comparisons"])
+def live_comparison(engine: EngineDep, settings: QuerySettings, download: bool = False) -> JSONResponse:
+    """The live comparison (not saved) of the corpora given as ``corpus=ID`` (2 to 8 times)."""
+    return _json(_live(engine, settings), download)
+
+
+@router.get("/api/compare/table.csv", tags=["comparisons"])
+def live_table_csv(engine: EngineDep, settings: QuerySettings) -> Response:
+    return _table_csv(_live(engine, settings))
+
+
+@router.get("/api/compare/distinctive.csv", tags=["comparisons"])
+def live_distinctive_csv(engine: EngineDep, settings: QuerySettings) -> Response:
+    return _distinctive_csv(_live(engine, settings))
+
+
+@router.get("/api/comparisons/{slug}", tags=["comparisons"])
+def saved_comparison(slug: str, engine: EngineDep, download: bool = False) -> JSONResponse:
+    """A saved comparison: the numbers as they were saved, with notices about corpora deleted since."""
+    return _json(_saved(engine, slug), download)
+
+
+@router.get("/api/comparisons/{slug}/table.csv", tags=["comparisons"])
+def saved_table_csv(slug: str, engine: EngineDep) -> Response:
+    return _table_csv(_saved(engine, slug))
+
+
+@router.get("/api/comparisons/{slug}/distinctive.csv", tags=["comparisons"])
+def saved_distinctive_csv(slug: str, engine: EngineDep) -> Response:
+    return _distinctive_csv(_saved(engine, slug))
