@@ -284,7 +284,7 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
     types, low, high = values
     return row | {
         "basis": "model-based",
-        "method": "recommended model (backtest-weighted average of the fitted models), extrapolated",
+        "method": "recommended model (perfect Zipf unless the backtests clearly prefer other models), extrapolated",
         "types": _num(types),
         "types_sd": None,
         "types_sd_random": None,

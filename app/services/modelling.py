@@ -130,7 +130,7 @@ def predict(engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDE
     """E[V(n)] with its range and E[V_k(n)], k = 1..20, by one model.
 
     ``sample`` is the exact random-sample interpolation (n <= N). ``recommended`` uses it too for n <= N (the
-    corpus itself is the best model of its own samples) and the backtest-weighted ensemble beyond N.
+    corpus itself is the best model of its own samples) and the backtest-chosen ``Ensemble`` beyond N.
     """
     corpus = store.get_corpus(engine, corpus_id)
     if model not in MODEL_NAMES:
@@ -164,9 +164,7 @@ def predict(engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDE
     return {
         "tokens": tokens,
         "model": model,
-        "method": "backtest-weighted average of the fitted models"
-        if model == RECOMMENDED
-        else predictor.model.title,
+        "method": predictor.title if model == RECOMMENDED else predictor.model.title,
         "extrapolated": extrapolated,
         "types": float(predictor.types(tokens)),
         "types_low": float(predictor.types_low(tokens)),
