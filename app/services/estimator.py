@@ -6,6 +6,7 @@ from typing import Any
 
 import numpy as np
 
+from app.core import planning
 from app.core.models import fit_from_totals
 from app.core.models.perfect_zipf import PerfectZipf
 from app.core.uniform import uniform_expected_types_closed_form, uniform_expected_types_exact
@@ -26,8 +27,11 @@ ASSUMPTION_TOTALS_ONLY = (
 )
 
 
-def estimate_from_totals(tokens: int, types: int, hapaxes: int | None, sizes: list[int]) -> dict[str, Any]:
-    """Predicted legomena at the given size and type growth at ``sizes`` by the perfect-Zipf model."""
+def estimate_from_totals(
+    tokens: int, types: int, hapaxes: int | None, sizes: list[int], target: planning.Target | None = None
+) -> dict[str, Any]:
+    """Predicted legomena at the given size and type growth at ``sizes`` by the perfect-Zipf model; with a
+    ``target`` also the size at which the model reaches it (planning)."""
     if types > tokens:
         raise ValueError("types cannot exceed tokens")
     if hapaxes is not None and not 0 < hapaxes < types:
@@ -53,6 +57,19 @@ def estimate_from_totals(tokens: int, types: int, hapaxes: int | None, sizes: li
         if isinstance(fitted.model, PerfectZipf)
         else ASSUMPTION_TOTALS_ONLY,
         "predictions": rows,
+        "plan": None if target is None else _plan(fitted, target),
+    }
+
+
+def _plan(fitted, target: planning.Target) -> dict[str, Any]:
+    try:
+        needed = planning.plan(fitted, target)
+    except planning.UnreachableTargetError as exc:
+        return {"target": {"kind": target.kind, "value": target.value}, "error": str(exc)}
+    return {
+        "target": {"kind": target.kind, "value": target.value},
+        "tokens": needed,
+        "model": fitted.model.name,
     }
 
 

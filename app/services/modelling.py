@@ -14,8 +14,8 @@ import numpy as np
 from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
+from app.core import planning, unseen
 from app.core import richness as richness_core
-from app.core import unseen
 from app.core.backtest import Ensemble, backtest
 from app.core.interpolation import expected_spectrum, growth_band, types_band
 from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
@@ -231,4 +231,63 @@ def random_sample_spectrum(engine: Engine, corpus_id: int, tokens: int, random_s
         "expected_types": types_band(spectrum, tokens).types,
         "observed": [int(v) for v in observed.dense(LEGOMENA_SHOWN)],
         "expected": [float(v) for v in expected_spectrum(spectrum, tokens, LEGOMENA_SHOWN)],
+    }
+
+
+# -------------------------------------------------------------------------------------------- planning
+
+
+def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = RECOMMENDED) -> dict[str, Any]:
+    """The corpus size at which ``model`` reaches ``target``, with the range given by every other fitted
+    model and by the recommended model's backtest band (types targets)."""
+    corpus = store.get_corpus(engine, corpus_id)
+    if model not in (*MODELS, RECOMMENDED):
+        raise PredictionError(f"unknown model {model!r}; known: {', '.join((*MODELS, RECOMMENDED))}")
+    fitted = predictors(engine, corpus_id)
+    if model not in fitted:
+        raise PredictionError(f"model {model!r} could not be fitted to this corpus")
+
+    def population(name: str) -> float | None:
+        return None if name == RECOMMENDED else fitted[name].model.population_size(fitted[name].params)
+
+    chao1 = unseen.chao1(load_spectrum(engine, corpus_id)).value
+    try:
+        tokens = planning.plan(fitted[model], target, population(model))
+    except planning.UnreachableTargetError as exc:
+        extra = (
+            f" (Chao1's lower bound of the total vocabulary: {chao1:,.0f} types)"
+            if target.kind == "share"
+            else ""
+        )
+        raise planning.UnreachableTargetError(f"{exc}{extra}") from exc
+    by_model: dict[str, Any] = {}
+    for name in fitted:
+        if name in ("perfect_zipf_totals",):
+            continue
+        try:
+            by_model[name] = planning.plan(fitted[name], target, population(name))
+        except (planning.UnreachableTargetError, ValueError, ArithmeticError) as exc:
+            by_model[name] = str(exc)
+    band: dict[str, float] = {}
+    rec = fitted[RECOMMENDED]
+    if target.kind == "types" and model == RECOMMENDED:
+        for side, curve in (("low", rec.types_high), ("high", rec.types_low)):
+            try:
+                band[side] = planning.tokens_for_types(curve, target.value)
+            except planning.UnreachableTargetError:
+                continue
+    candidates = [tokens, *band.values(), *(v for v in by_model.values() if isinstance(v, float))]
+    return {
+        "tokens": tokens,
+        "low": min(candidates),
+        "high": max(candidates),
+        "model": model,
+        "target": {"kind": target.kind, "value": target.value},
+        "corpus_tokens": corpus.tokens,
+        "times_corpus": tokens / corpus.tokens,
+        "already_reached": tokens <= corpus.tokens,
+        "by_model": by_model,
+        "backtest_band": band or None,
+        "population": population(model),
+        "chao1": chao1,
     }

@@ -10,6 +10,7 @@ from pydantic import BaseModel, Field, field_validator
 from sqlalchemy.engine import Engine
 
 from app.config import Settings
+from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.services import estimator, ingestion, modelling
 from app.services.jobs import JobRunner
@@ -206,6 +207,12 @@ class TotalsEstimate(BaseModel):
     types: int = Field(ge=1, le=10**12, description="types V of the text")
     hapaxes: int | None = Field(default=None, ge=1, le=10**12, description="hapax legomena V_1, if known")
     sizes: list[int] = Field(default_factory=list, max_length=50, description="sizes to predict at")
+    plan_types: float | None = Field(
+        default=None, gt=0, le=1e13, description="planning: tokens until this many types"
+    )
+    plan_new_type_rate: float | None = Field(
+        default=None, gt=0, lt=1, description="planning: until this new-type rate"
+    )
 
     @field_validator("sizes")
     @classmethod
@@ -224,8 +231,11 @@ class UniformEstimate(BaseModel):
 @router.post("/estimate")
 def estimate(request: TotalsEstimate) -> dict:
     """From tokens and types (and hapax legomena when known): predicted legomena and growth."""
+    target = None
+    if request.plan_types is not None or request.plan_new_type_rate is not None:
+        target = planning_target(request.plan_types, request.plan_new_type_rate, None, None)
     return _modelling_call(
-        estimator.estimate_from_totals, request.tokens, request.types, request.hapaxes, request.sizes
+        estimator.estimate_from_totals, request.tokens, request.types, request.hapaxes, request.sizes, target
     )
 
 
@@ -233,3 +243,50 @@ def estimate(request: TotalsEstimate) -> dict:
 def estimate_uniform(request: UniformEstimate) -> dict:
     """k types each occurring r times: exact and closed-form expected types after n draws."""
     return _modelling_call(estimator.uniform_design, request.types, request.repeats, request.draws)
+
+
+def planning_target(
+    types: float | None, new_type_rate: float | None, coverage: float | None, share: float | None
+) -> planning.Target:
+    """Exactly one of the four planning targets, as a Target (a clear 422 otherwise)."""
+    given = {
+        k: v
+        for k, v in {
+            "types": types,
+            "new_type_rate": new_type_rate,
+            "coverage": coverage,
+            "share": share,
+        }.items()
+        if v is not None
+    }
+    if len(given) != 1:
+        raise HTTPException(
+            status_code=422, detail="give exactly one target: types, new_type_rate, coverage or share"
+        )
+    ((kind, value),) = given.items()
+    try:
+        return planning.Target(kind, value)
+    except ValueError as exc:
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
+
+
+@router.get("/corpora/{corpus_id}/plan")
+def plan(
+    corpus_id: int,
+    engine: EngineDep,
+    types: Annotated[float | None, Query(gt=0, le=1e13, description="target number of types V*")] = None,
+    new_type_rate: Annotated[
+        float | None, Query(gt=0, lt=1, description="target chance that the next token is new")
+    ] = None,
+    coverage: Annotated[
+        float | None, Query(gt=0, lt=1, description="target coverage 1 - new-type rate")
+    ] = None,
+    share: Annotated[
+        float | None, Query(gt=0, lt=1, description="target share of the whole population")
+    ] = None,
+    model: ModelName = modelling.RECOMMENDED,
+) -> dict:
+    """How many tokens until the corpus reaches a vocabulary target, with the range over models."""
+    corpus_or_404(engine, corpus_id)
+    target = planning_target(types, new_type_rate, coverage, share)
+    return _modelling_call(modelling.plan, engine, corpus_id, target, model)

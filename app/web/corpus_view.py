@@ -8,6 +8,7 @@ from typing import Any
 import numpy as np
 from sqlalchemy.engine import Engine
 
+from app.core import planning
 from app.services import modelling
 from app.store import corpora as store
 from app.web import figures
@@ -130,6 +131,26 @@ def model_section(
     }
 
 
+PLAN_LABELS = {
+    "types": "types",
+    "new_type_rate": "new-type rate",
+    "coverage": "coverage",
+    "share": "share of the population",
+}
+
+
+def plan_section(
+    engine: Engine, corpus_id: int, target: planning.Target | None, model: str
+) -> dict[str, Any]:
+    """The planning answer (or why there is none) for the Planning panel."""
+    if target is None:
+        return {"plan": None, "plan_error": None}
+    try:
+        return {"plan": modelling.plan(engine, corpus_id, target, model), "plan_error": None}
+    except (ValueError, ArithmeticError) as exc:
+        return {"plan": None, "plan_error": str(exc)}
+
+
 def corpus_context(
     engine: Engine,
     corpus_id: int,
@@ -138,6 +159,8 @@ def corpus_context(
     sizes_text: str | None,
     horizon_factor: float,
     common_size: int | None,
+    target: planning.Target | None = None,
+    plan_model: str = "recommended",
 ) -> dict[str, Any]:
     corpus = store.get_corpus(engine, corpus_id)
     summary = store.summary(corpus)
@@ -145,7 +168,14 @@ def corpus_context(
     pairs = store.spectrum_pairs(engine, corpus_id)
     dense = dict(pairs)
     sizes = parse_sizes(sizes_text, tokens)
+    planned = plan_section(engine, corpus_id, target, plan_model)
     horizon = int(max(tokens * horizon_factor, tokens + 1))
+    marker = None
+    if planned["plan"]:
+        answer = planned["plan"]["tokens"]
+        horizon = int(min(max(horizon, 1.25 * answer), 1000 * tokens))
+        if answer <= horizon:
+            marker = (answer, f"target reached: {answer:,.0f} tokens")
     models = model_section(engine, corpus_id, tokens, horizon, sizes)
     text_order = store.growth_points(engine, corpus_id)
     random_order = modelling.random_order_growth(engine, corpus_id)["points"]
@@ -153,25 +183,37 @@ def corpus_context(
     total_words, word_rows = store.word_counts(
         engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
     )
-    return {
-        "corpus": summary,
-        "text_order_stats": json.loads(corpus.text_order_json),
-        "spectrum_rows": [(m, dense.get(m, 0)) for m in range(1, 21)],
-        "spectrum_figure": figures.spectrum_bars(pairs, models.get("expected_at_corpus_size")),
-        "rank_figure": figures.rank_frequency(pairs),
-        "growth_figure": figures.growth_lines(
-            text_order, random_order, models.get("curves"), models.get("recommended_curve_band"), tokens
-        ),
-        "sizes_text": sizes_text or "",
-        "horizon_factor": horizon_factor,
-        "horizon": horizon,
-        "richness": modelling.richness(engine, corpus_id, min(common, tokens)),
-        "index_names": INDEX_NAMES,
-        "unseen": modelling.unseen_vocabulary(engine, corpus_id),
-        "words": word_rows,
-        "words_total": total_words,
-        "words_query": q or "",
-        "words_page": page,
-        "words_pages": max(1, -(-total_words // WORDS_PER_PAGE)),
-        "json_url": f"/api/corpora/{corpus_id}",
-    } | models
+    return (
+        {
+            "corpus": summary,
+            "text_order_stats": json.loads(corpus.text_order_json),
+            "spectrum_rows": [(m, dense.get(m, 0)) for m in range(1, 21)],
+            "spectrum_figure": figures.spectrum_bars(pairs, models.get("expected_at_corpus_size")),
+            "rank_figure": figures.rank_frequency(pairs),
+            "growth_figure": figures.growth_lines(
+                text_order,
+                random_order,
+                models.get("curves"),
+                models.get("recommended_curve_band"),
+                tokens,
+                marker,
+            ),
+            "sizes_text": sizes_text or "",
+            "horizon_factor": horizon_factor,
+            "horizon": horizon,
+            "richness": modelling.richness(engine, corpus_id, min(common, tokens)),
+            "index_names": INDEX_NAMES,
+            "unseen": modelling.unseen_vocabulary(engine, corpus_id),
+            "words": word_rows,
+            "words_total": total_words,
+            "words_query": q or "",
+            "words_page": page,
+            "words_pages": max(1, -(-total_words // WORDS_PER_PAGE)),
+            "json_url": f"/api/corpora/{corpus_id}",
+            "plan_target": target,
+            "plan_model": plan_model,
+            "plan_labels": PLAN_LABELS,
+        }
+        | models
+        | planned
+    )

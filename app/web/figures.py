@@ -155,6 +155,7 @@ def growth_lines(
     models: dict[str, tuple[list[float], list[float]]] | None = None,
     recommended_band: tuple[list[float], list[float], list[float]] | None = None,
     corpus_tokens: int | None = None,
+    marker: tuple[float, str] | None = None,
 ) -> dict[str, Any]:
     """Text-order type growth (solid), the random-order expectation with its 95% band, and model curves
     (dashed) reaching into a shaded extrapolated range beyond the corpus size."""
@@ -184,4 +185,32 @@ def growth_lines(
         horizon = max(max(mx) for mx, _ in models.values())
         if horizon > corpus_tokens:
             layout = extrapolation_shading(corpus_tokens, horizon)
-    return figure(data, "tokens", "types", **layout)
+    if marker:
+        x, label = marker
+        layout.setdefault("shapes", []).append(
+            {
+                "type": "line",
+                "xref": "x",
+                "yref": "paper",
+                "x0": x,
+                "x1": x,
+                "y0": 0,
+                "y1": 1,
+                "line": {"color": "#CC79A7", "width": 2, "dash": "dot"},
+            }
+        )
+        layout.setdefault("annotations", []).append(
+            {
+                "x": x,
+                "xref": "x",
+                "y": 0.92,
+                "yref": "paper",
+                "text": label,
+                "showarrow": False,
+                "xanchor": "right",
+                "font": {"color": "#8a3f6f"},
+                "bgcolor": "rgba(255,255,255,0.8)",
+            }
+        )
+    log_x = bool(corpus_tokens and models and max(max(mx) for mx, _ in models.values()) > 50 * corpus_tokens)
+    return figure(data, "tokens", "types", log_x=log_x, **layout)

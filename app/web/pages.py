@@ -12,7 +12,7 @@ from app.config import TEMPLATES_DIR
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.services import estimator
 from app.store import corpora as store
-from app.web import corpus_view, figures
+from app.web import api, corpus_view, figures
 from app.web.deps import corpus_or_404, engine_of
 from app.web.glossary import GLOSSARY
 from app.web.templating import make_templates
@@ -59,10 +59,19 @@ def corpus_page(
     sizes: Annotated[str | None, Query(max_length=500)] = None,
     horizon: Annotated[float, Query(ge=1, le=1000)] = 10.0,
     common_size: Annotated[int | None, Query(ge=1, le=10**12)] = None,
+    types: Annotated[float | None, Query(gt=0, le=1e13)] = None,
+    new_type_rate: Annotated[float | None, Query(gt=0, lt=1)] = None,
+    coverage: Annotated[float | None, Query(gt=0, lt=1)] = None,
+    share: Annotated[float | None, Query(gt=0, lt=1)] = None,
+    plan_model: Annotated[str, Query(max_length=60)] = "recommended",
 ):
     corpus_or_404(engine, corpus_id)
+    asked = [v for v in (types, new_type_rate, coverage, share) if v is not None]
+    target = api.planning_target(types, new_type_rate, coverage, share) if asked else None
     try:
-        context = corpus_view.corpus_context(engine, corpus_id, q, page, sizes, horizon, common_size)
+        context = corpus_view.corpus_context(
+            engine, corpus_id, q, page, sizes, horizon, common_size, target, plan_model
+        )
     except ValueError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
     return render(request, "corpus.html", **context)
@@ -75,6 +84,8 @@ def estimate_page(
     types: Annotated[int | None, Query(ge=1, le=10**12)] = None,
     hapaxes: Annotated[int | None, Query(ge=1, le=10**12)] = None,
     sizes: Annotated[str | None, Query(max_length=500)] = None,
+    plan_types: Annotated[float | None, Query(gt=0, le=1e13)] = None,
+    plan_new_type_rate: Annotated[float | None, Query(gt=0, lt=1)] = None,
     uniform_types: Annotated[int | None, Query(ge=1, le=10**9)] = None,
     repeats: Annotated[int | None, Query(ge=1, le=10**9)] = None,
     draws: Annotated[str | None, Query(max_length=500)] = None,
@@ -82,8 +93,10 @@ def estimate_page(
     result = uniform = error = None
     try:
         if tokens and types:
+            asked = plan_types is not None or plan_new_type_rate is not None
+            target = api.planning_target(plan_types, plan_new_type_rate, None, None) if asked else None
             result = estimator.estimate_from_totals(
-                tokens, types, hapaxes, corpus_view.parse_sizes(sizes, tokens)
+                tokens, types, hapaxes, corpus_view.parse_sizes(sizes, tokens), target
             )
         if uniform_types and repeats:
             total = uniform_types * repeats
@@ -104,6 +117,8 @@ def estimate_page(
             "types": types,
             "hapaxes": hapaxes,
             "sizes": sizes or "",
+            "plan_types": plan_types,
+            "plan_new_type_rate": plan_new_type_rate,
             "uniform_types": uniform_types,
             "repeats": repeats,
             "draws": draws or "",

@@ -146,3 +146,42 @@ def test_corpus_page_shows_models(docstring_corpus):
     ):
         assert needle in html
     assert client.get(f"/corpora/{cid}", params={"sizes": "lots"}).status_code == 422
+
+
+def test_plan_api(docstring_corpus):
+    client, cid, _ = docstring_corpus
+    N = client.get(f"/api/corpora/{cid}").json()["tokens"]
+    target = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 20 * N}).json()["types"]
+    body = client.get(f"/api/corpora/{cid}/plan", params={"types": target}).json()
+    assert body["tokens"] == pytest.approx(20 * N, rel=1e-3)  # round trip with the forward prediction
+    assert body["low"] <= body["tokens"] <= body["high"] and body["model"] == "recommended"
+    assert body["target"] == {"kind": "types", "value": target}
+    rate = client.get(f"/api/corpora/{cid}/plan", params={"new_type_rate": 0.001, "model": "gigp"})
+    assert rate.status_code == 200 and rate.json()["tokens"] > N
+    for params in (
+        {"share": 0.9},
+        {"share": 0.9, "types": 10},
+        {"coverage": 1.5},
+        {},
+        {"types": 10, "model": "x"},
+    ):
+        response = client.get(f"/api/corpora/{cid}/plan", params=params)
+        assert response.status_code == 422 and response.json()["detail"], params
+    assert "Chao1" in client.get(f"/api/corpora/{cid}/plan", params={"share": 0.9}).json()["detail"]
+    page = client.get(f"/corpora/{cid}", params={"coverage": 0.99})
+    assert page.status_code == 200 and "About " in page.text and "target reached" in page.text
+
+
+def test_estimator_plans_from_totals(client):
+    forward = client.post(
+        "/api/estimate", json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400, "sizes": [400_000]}
+    )
+    types_at = next(r for r in forward.json()["predictions"] if r["tokens"] == 400_000)["types"]
+    back = client.post(
+        "/api/estimate", json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400, "plan_types": types_at}
+    )
+    assert back.json()["plan"]["tokens"] == pytest.approx(
+        400_000, rel=1e-3
+    )  # round trip with the forward model
+    both = {"tokens": 50_000, "types": 8_000, "plan_types": 9_000, "plan_new_type_rate": 0.01}
+    assert client.post("/api/estimate", json=both).status_code == 422

@@ -209,6 +209,11 @@ class VocabularyModel(ABC):
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
         """E[V_m(n)]."""
 
+    def population_size(self, params: Mapping[str, float]) -> float | None:
+        """S, the number of types in the whole population, or None when the model's population is infinite
+        (vocabulary grows without bound)."""
+        return None
+
     def initial_guesses(self, spectrum: Spectrum) -> list[Params]:
         """Starting points for the shared fit (models with a closed-form fit do not need any)."""
         raise NotImplementedError(f"{self.name} is fitted in closed form")

@@ -22,6 +22,7 @@ from scipy.special import expit, logit
 from app.core.models.base import ArrayLike, Params, VocabularyModel
 from app.core.models.zipf_mandelbrot import (
     hapax_exponent,
+    power_law_constant,
     power_law_scale,
     power_law_spectrum,
     power_law_types,
@@ -38,6 +39,11 @@ class FiniteZipfMandelbrot(VocabularyModel):
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
         return power_law_types(n, params["a"], params["A"], params["B"])
+
+    def population_size(self, params: Mapping[str, float]) -> float | None:
+        """S = C (A^(-a) - B^(-a)) / a (module docstring)."""
+        a, A, B = params["a"], params["A"], params["B"]
+        return float(power_law_constant(a, A, B) * (A**-a - B**-a) / a)
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
         return power_law_spectrum(n, m, params["a"], params["A"], params["B"])

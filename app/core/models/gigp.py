@@ -41,6 +41,11 @@ class GIGP(VocabularyModel):
         population = 2 / (b * c) * kve(g, b) / kve(g + 1, b)
         return as_output(-population * np.expm1(log_ratio), n)
 
+    def population_size(self, params: Mapping[str, float]) -> float | None:
+        """S = (2 / (b c)) K_g(b) / K_{g+1}(b), the limit of E[V(n)] as n grows (module docstring)."""
+        b, c, g = params["b"], params["c"], params["g"]
+        return float(2 / (b * c) * kve(g, b) / kve(g + 1, b))
+
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
         b, c, g = params["b"], params["c"], params["g"]
         n = np.asarray(n, dtype=float)
