@@ -3,12 +3,17 @@
 from __future__ import annotations
 
 import json
+from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
+from itertools import islice
 from typing import Any
 
+import psycopg
+from psycopg import sql
 from sqlalchemy import delete, func, insert, select
 from sqlalchemy.engine import Engine
-from sqlmodel import Session
+from sqlalchemy.exc import DBAPIError
+from sqlmodel import Session, SQLModel
 
 from app.store.db import transaction
 from app.store.tables import (
@@ -68,9 +73,34 @@ def summary(corpus: Corpus) -> dict[str, Any]:
     }
 
 
-def _bulk(session: Session, table, rows: list[dict[str, Any]]) -> None:
-    for start in range(0, len(rows), BULK_ROWS):
-        session.execute(insert(table.__table__), rows[start : start + BULK_ROWS])
+def _batches(rows: Iterable[tuple], size: int) -> Iterator[list[tuple]]:
+    iterator = iter(rows)
+    while batch := list(islice(iterator, size)):
+        yield batch
+
+
+def _bulk(session: Session, table: type[SQLModel], columns: tuple[str, ...], rows: Iterable[tuple]) -> None:
+    """Insert ``rows`` (values in the order of ``columns``) within the session's transaction.
+
+    With psycopg (PostgreSQL) the rows stream through one COPY, several times faster than INSERTs;
+    other drivers get executemany INSERTs of ``BULK_ROWS`` rows at a time, on the session's connection
+    itself (``Session.execute`` would add the ORM's bookkeeping, about half again the time on SQLite).
+    """
+    connection = session.connection()
+    if connection.dialect.driver == "psycopg":
+        copy_sql = sql.SQL("COPY {} ({}) FROM STDIN").format(
+            sql.Identifier(table.__tablename__), sql.SQL(", ").join(map(sql.Identifier, columns))
+        )
+        try:
+            with connection.connection.driver_connection.cursor() as cursor, cursor.copy(copy_sql) as copy:
+                for row in rows:
+                    copy.write_row(row)
+        except psycopg.Error as exc:  # raised as SQLAlchemy raises driver errors (IntegrityError...)
+            raise DBAPIError.instance(copy_sql.as_string(), None, exc, psycopg.Error) from exc
+        return
+    statement = insert(table.__table__)
+    for batch in _batches(rows, BULK_ROWS):
+        connection.execute(statement, [dict(zip(columns, row, strict=True)) for row in batch])
 
 
 def save_corpus(engine: Engine, record: CorpusRecord) -> int:
@@ -92,19 +122,18 @@ def save_corpus(engine: Engine, record: CorpusRecord) -> int:
         session.add(corpus)
         session.flush()
         cid = corpus.id
+        # In key order: appending to the primary-key B-tree is much faster than inserting at random places.
+        counts = record.counts
         _bulk(
-            session, WordCount, [{"corpus_id": cid, "word": w, "count": c} for w, c in record.counts.items()]
+            session, WordCount, ("corpus_id", "word", "count"), ((cid, w, counts[w]) for w in sorted(counts))
         )
-        _bulk(session, SpectrumRow, [{"corpus_id": cid, "m": m, "vm": v} for m, v in record.spectrum])
-        _bulk(session, GrowthPoint, [{"corpus_id": cid, "tokens": n, "types": v} for n, v in record.growth])
+        _bulk(session, SpectrumRow, ("corpus_id", "m", "vm"), ((cid, m, v) for m, v in record.spectrum))
+        _bulk(session, GrowthPoint, ("corpus_id", "tokens", "types"), ((cid, n, v) for n, v in record.growth))
         _bulk(
             session,
             PrefixSpectrumRow,
-            [
-                {"corpus_id": cid, "share": share, "m": m, "vm": v, "prefix_tokens": n}
-                for share, (n, pairs) in record.prefix_spectra.items()
-                for m, v in pairs
-            ],
+            ("corpus_id", "share", "m", "vm", "prefix_tokens"),
+            ((cid, share, m, v, n) for share, (n, pairs) in record.prefix_spectra.items() for m, v in pairs),
         )
         return int(cid)
 
@@ -188,8 +217,10 @@ def word_counts(
     with Session(engine) as session:
         where = [WordCount.corpus_id == corpus_id]
         if search:
+            # Case-insensitive for A-Z only, on every backend: SQLite's LIKE and ILIKE under the "C"
+            # collation of the word column on PostgreSQL. Wildcards typed by the user match literally.
             escaped = search.replace("\\", "\\\\").replace("%", "\\%").replace("_", "\\_")
-            where.append(WordCount.word.like(f"%{escaped}%", escape="\\"))
+            where.append(WordCount.word.ilike(f"%{escaped}%", escape="\\"))
         total = session.execute(select(func.count()).select_from(WordCount).where(*where)).scalar_one()
         query = select(WordCount.word, WordCount.count).where(*where)
         query = query.order_by(WordCount.count.desc(), WordCount.word).offset(offset)

@@ -1,11 +1,21 @@
-"""SQLModel tables of the store. Raw text is never stored: only counts, spectra and curves."""
+"""SQLModel tables of the store. Raw text is never stored: only counts, spectra and curves.
+
+Every count (tokens, types, frequencies, spectrum indexes) is a 64-bit integer: a corpus of more than
+2^31 tokens is possible, and PostgreSQL's ``integer`` is 32 bits (SQLite stores any integer in 64).
+Timestamps are aware datetimes in UTC on every backend (``timestamptz`` on PostgreSQL).
+"""
 
 from __future__ import annotations
 
 from datetime import UTC, datetime
 
-from sqlalchemy import Column, ForeignKey, Integer, Text
+from sqlalchemy import BigInteger, Column, ForeignKey, Integer, String, Text
 from sqlmodel import Field, SQLModel
+from sqlmodel.sql.sqltypes import UTCDateTime
+
+# Keys that pages are ordered by compare by code point everywhere, as SQLite's BINARY collation does;
+# a PostgreSQL database's default collation may be linguistic (en_US: "a" < "B" < "b").
+CODE_POINT_STRING = String().with_variant(String(collation="C"), "postgresql")
 
 
 def _utcnow() -> datetime:
@@ -25,47 +35,47 @@ class Corpus(SQLModel, table=True):
     profile_json: str = Field(sa_column=Column(Text, nullable=False))
     profile_name: str
     sources_json: str = Field(default="[]", sa_column=Column(Text, nullable=False, default="[]"))
-    tokens: int
-    types: int
-    hapaxes: int
+    tokens: int = Field(sa_type=BigInteger)
+    types: int = Field(sa_type=BigInteger)
+    hapaxes: int = Field(sa_type=BigInteger)
     content_hash: str = Field(index=True)
     program_version: str
     text_order_json: str = Field(default="{}", sa_column=Column(Text, nullable=False, default="{}"))
-    created_at: datetime = Field(default_factory=_utcnow)
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
 
 
 class WordCount(SQLModel, table=True):
     """How often each type (word) occurs in a corpus."""
 
     corpus_id: int = Field(sa_column=_corpus_fk())
-    word: str = Field(primary_key=True)
-    count: int
+    word: str = Field(primary_key=True, sa_type=CODE_POINT_STRING)
+    count: int = Field(sa_type=BigInteger)
 
 
 class SpectrumRow(SQLModel, table=True):
     """V_m: the number of types occurring exactly m times."""
 
     corpus_id: int = Field(sa_column=_corpus_fk())
-    m: int = Field(primary_key=True)
-    vm: int
+    m: int = Field(primary_key=True, sa_type=BigInteger)
+    vm: int = Field(sa_type=BigInteger)
 
 
 class GrowthPoint(SQLModel, table=True):
     """Exact text-order type growth: V after the first ``tokens`` tokens."""
 
     corpus_id: int = Field(sa_column=_corpus_fk())
-    tokens: int = Field(primary_key=True)
-    types: int
+    tokens: int = Field(primary_key=True, sa_type=BigInteger)
+    types: int = Field(sa_type=BigInteger)
 
 
 class PrefixSpectrumRow(SQLModel, table=True):
     """Spectrum of the first share of the text (for text-order backtests)."""
 
     corpus_id: int = Field(sa_column=_corpus_fk())
-    share: str = Field(primary_key=True)
-    m: int = Field(primary_key=True)
-    vm: int
-    prefix_tokens: int
+    share: str = Field(primary_key=True, sa_type=CODE_POINT_STRING)
+    m: int = Field(primary_key=True, sa_type=BigInteger)
+    vm: int = Field(sa_type=BigInteger)
+    prefix_tokens: int = Field(sa_type=BigInteger)
 
 
 class CachedResult(SQLModel, table=True):
@@ -75,7 +85,7 @@ class CachedResult(SQLModel, table=True):
     kind: str = Field(primary_key=True)
     program_version: str
     payload_json: str = Field(sa_column=Column(Text, nullable=False))
-    created_at: datetime = Field(default_factory=_utcnow)
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
 
 
 class SavedComparison(SQLModel, table=True):
@@ -86,4 +96,4 @@ class SavedComparison(SQLModel, table=True):
     settings_json: str = Field(sa_column=Column(Text, nullable=False))
     snapshot_json: str = Field(sa_column=Column(Text, nullable=False))
     program_version: str
-    created_at: datetime = Field(default_factory=_utcnow)
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
