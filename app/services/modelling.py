@@ -7,7 +7,7 @@ are rebuilt from the cached parameters, so pages render without fitting anything
 from __future__ import annotations
 
 import json
-from dataclasses import asdict
+from dataclasses import asdict, dataclass
 from typing import Any
 
 import numpy as np
@@ -126,25 +126,45 @@ def _legomena(values: np.ndarray) -> dict[str, float]:
     return {str(k): float(v) for k, v in enumerate(values, start=1)}
 
 
-def predict(engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDED) -> dict[str, Any]:
+@dataclass(frozen=True)
+class LoadedModels:
+    """A corpus's spectrum and rebuilt predictors, loaded once for many predictions (one page)."""
+
+    tokens: int
+    spectrum: Spectrum
+    predictors: dict[str, Predictor]
+    failures: dict[str, str]
+
+
+def load_models(engine: Engine, corpus_id: int) -> LoadedModels:
+    spectrum = load_spectrum(engine, corpus_id)
+    failures = model_report(engine, corpus_id)["failures"]
+    return LoadedModels(spectrum.tokens, spectrum, predictors(engine, corpus_id), failures)
+
+
+def predict(
+    engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDED, loaded: LoadedModels | None = None
+) -> dict[str, Any]:
     """E[V(n)] with its range and E[V_k(n)], k = 1..20, by one model.
 
     ``sample`` is the exact random-sample interpolation (n <= N). ``recommended`` uses it too for n <= N (the
     corpus itself is the best model of its own samples) and the backtest-chosen ``Ensemble`` beyond N.
+    ``loaded`` saves reloading the corpus's models when a page asks for many predictions.
     """
-    corpus = store.get_corpus(engine, corpus_id)
+    corpus = store.get_corpus(engine, corpus_id) if loaded is None else None
+    corpus_tokens = corpus.tokens if corpus is not None else loaded.tokens
     if model not in MODEL_NAMES:
         raise PredictionError(f"unknown model {model!r}; known: {', '.join(MODEL_NAMES)}")
     if not 1 <= tokens <= MAX_PREDICTION_TOKENS:
         raise PredictionError(f"tokens must lie between 1 and {MAX_PREDICTION_TOKENS:,}")
-    extrapolated = tokens > corpus.tokens
+    extrapolated = tokens > corpus_tokens
     if model == SAMPLE or (model == RECOMMENDED and not extrapolated):
         if extrapolated:
             raise PredictionError(
-                f"the 'sample' interpolation covers sizes up to the corpus size {corpus.tokens:,}; "
+                f"the 'sample' interpolation covers sizes up to the corpus size {corpus_tokens:,}; "
                 "choose a model to extrapolate"
             )
-        spectrum = load_spectrum(engine, corpus_id)
+        spectrum = load_spectrum(engine, corpus_id) if loaded is None else loaded.spectrum
         band = types_band(spectrum, tokens)
         return {
             "tokens": tokens,
@@ -157,9 +177,10 @@ def predict(engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDE
             "types_high": band.high,
             "legomena": _legomena(expected_spectrum(spectrum, tokens, LEGOMENA_SHOWN)),
         }
-    predictor = predictors(engine, corpus_id).get(model)
+    predictor = (predictors(engine, corpus_id) if loaded is None else loaded.predictors).get(model)
     if predictor is None:
-        reason = model_report(engine, corpus_id)["failures"].get(model, "the fit failed")
+        failures = model_report(engine, corpus_id)["failures"] if loaded is None else loaded.failures
+        reason = failures.get(model, "the fit failed")
         raise PredictionError(f"model {model!r} could not be fitted to this corpus: {reason}")
     return {
         "tokens": tokens,

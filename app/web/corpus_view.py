@@ -70,7 +70,8 @@ def model_section(
     """Model table, prediction table and the model curves for the figures (or the reason there are none)."""
     try:
         report = modelling.model_report(engine, corpus_id)
-        predictors = modelling.predictors(engine, corpus_id)
+        loaded = modelling.load_models(engine, corpus_id)
+        predictors = loaded.predictors
     except (ValueError, ArithmeticError) as exc:
         return {"models_error": str(exc)}
     backtests = _backtest_table(report)
@@ -108,7 +109,7 @@ def model_section(
             "tokens": n,
             "extrapolated": n > tokens,
             "models": {
-                name: modelling.predict(engine, corpus_id, n, name)
+                name: modelling.predict(engine, corpus_id, n, name, loaded)
                 for name in ("recommended", *report["fitted"])
             },
         }
