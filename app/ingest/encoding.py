@@ -3,8 +3,9 @@
 Order of the checks:
 1. A byte-order mark wins: UTF-8 (EF BB BF), UTF-32 LE/BE, UTF-16 LE/BE. The decoder strips it.
 2. Otherwise NUL bytes, or more than ``CONTROL_SHARE`` of other C0 control bytes, mean binary data.
-3. A sample that decodes as UTF-8 is UTF-8 (pure ASCII included). Bytes further on that are not valid
-   UTF-8 are decoded one by one as Windows-1252, the usual culprit in mixed files.
+3. A sample that decodes as UTF-8 is UTF-8 (pure ASCII included); so is a mixed sample whose valid UTF-8
+   multi-byte sequences outnumber its stray high bytes. Bytes that are not valid UTF-8 are decoded one by one
+   as Windows-1252, the usual culprit in mixed files.
 4. Otherwise charset-normalizer chooses. On short samples it often cannot tell the Western European
    single-byte code pages apart (it may pick Latin-2 or Latin-6 for Dutch or French), so Windows-1252 (a
    superset of the printable Latin-1 range) is taken whenever charset-normalizer rates it, or a code page
@@ -16,6 +17,7 @@ Order of the checks:
 from __future__ import annotations
 
 import codecs
+import re
 from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import BinaryIO
@@ -84,6 +86,21 @@ def _is_utf8(sample: bytes, complete: bool) -> bool:
     return True
 
 
+_UTF8_SEQUENCE = re.compile(rb"[\xc2-\xdf][\x80-\xbf]|[\xe0-\xef][\x80-\xbf]{2}|[\xf0-\xf4][\x80-\xbf]{3}")
+
+
+def _mostly_utf8(sample: bytes) -> bool:
+    """A mixed file: valid UTF-8 multi-byte sequences outnumber the stray high bytes around them.
+
+    Single-byte encodings (Latin-1, Windows-125x) almost never form valid UTF-8 sequences by chance, so a
+    sample with many of them and a few stray bytes is UTF-8 with pasted-in Windows-1252 pieces.
+    """
+    sequences = _UTF8_SEQUENCE.findall(sample)
+    high_in_sequences = sum(len(s) for s in sequences)
+    stray = sum(1 for byte in sample if byte >= 0x80) - high_in_sequences
+    return len(sequences) > 0 and stray <= len(sequences)
+
+
 def detect_encoding(sample: bytes, complete: bool) -> Encoding:
     """The encoding of a file from its first bytes (``complete``: the sample is the whole file).
 
@@ -94,7 +111,7 @@ def detect_encoding(sample: bytes, complete: bool) -> Encoding:
         return Encoding(codec)
     if looks_binary(sample):
         raise ValueError("looks like binary data, not text")
-    if _is_utf8(sample, complete):
+    if _is_utf8(sample, complete) or _mostly_utf8(sample):
         return Encoding("utf-8", _UTF8_FALLBACK)
     matches = from_bytes(sample)
     best = matches.best()

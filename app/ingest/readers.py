@@ -21,6 +21,7 @@ breaks its parser while being read fails with the same error.
 from __future__ import annotations
 
 import codecs
+import time
 import zipfile
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
@@ -55,6 +56,11 @@ _BLOCK_TAGS = (
 )  # fmt: skip
 _ZIP_MEMBERS = {".docx": "word/document.xml", ".odt": "content.xml", ".epub": "META-INF/container.xml"}
 _PDF_HEADER_WINDOW = 1024
+MAX_UNCOMPRESSED_BYTES = 512 * 1024 * 1024  # a .docx/.odt/.epub may unpack to at most this much
+MAX_COMPRESSION_RATIO = 200  # and its members together at most this many times their packed size
+RATIO_CHECK_FROM = 8 * 1024 * 1024  # (the ratio is checked once the unpacked size exceeds this)
+MAX_PDF_PAGES = 5_000
+MAX_PDF_SECONDS = 120.0
 
 
 @dataclass(frozen=True)
@@ -156,9 +162,22 @@ def _check_zip(path: Path, kind: str) -> None:
         raise ValueError(f"not a valid {kind} file (bad zip archive)")
     try:
         with zipfile.ZipFile(path) as archive:
-            names = set(archive.namelist())
+            members = archive.infolist()
     except zipfile.BadZipFile as exc:
         raise ValueError(f"not a valid {kind} file (bad zip archive: {exc})") from exc
+    names = {m.filename for m in members}
+    unpacked = sum(m.file_size for m in members)
+    packed = max(sum(m.compress_size for m in members), 1)
+    # Zip bombs: refuse archives that unpack to more than the cap, or far more than they weigh. Python's
+    # zipfile also stops at the declared size of a member, so a member cannot lie its way past this check.
+    if unpacked > MAX_UNCOMPRESSED_BYTES:
+        raise ValueError(
+            f"unpacks to {unpacked / 2**20:,.0f} MB, more than the limit of {MAX_UNCOMPRESSED_BYTES // 2**20} MB"
+        )
+    if unpacked > RATIO_CHECK_FROM and unpacked / packed > MAX_COMPRESSION_RATIO:
+        raise ValueError(
+            f"unpacks to {unpacked / packed:,.0f} times its size (limit {MAX_COMPRESSION_RATIO}): refused as a possible zip bomb"
+        )
     if _ZIP_MEMBERS[kind] not in names:
         raise ValueError(f"not a valid {kind} file (no {_ZIP_MEMBERS[kind]} in the archive)")
 
@@ -290,14 +309,29 @@ def _open_pdf(path: Path) -> PdfReader:
         raise ValueError(f"not a valid .pdf file ({exc})") from exc
     if encrypted:
         raise ValueError("is password-protected")
+    if len(reader.pages) > MAX_PDF_PAGES:
+        raise ValueError(f"has {len(reader.pages):,} pages, more than the limit of {MAX_PDF_PAGES:,}")
     return reader
 
 
 def _read_pdf(source: TextSource, chunk_chars: int) -> Iterator[tuple[str, int]]:
     assert source.path is not None
     reader = _open_pdf(source.path)
-    pages = (page.extract_text() or "" for page in reader.pages)
-    yield from _batched(pages, len(reader.pages), source.size, chunk_chars)
+    deadline = time.monotonic() + MAX_PDF_SECONDS
+
+    def pages() -> Iterator[str]:
+        for number, page in enumerate(reader.pages, start=1):
+            if time.monotonic() > deadline:
+                raise UnreadableFileError(
+                    source.name,
+                    f"reading its text took longer than {MAX_PDF_SECONDS:.0f} s (stopped at page {number})",
+                )
+            try:
+                yield page.extract_text() or ""
+            except Exception as exc:  # pypdf raises many types on damaged pages
+                raise UnreadableFileError(source.name, f"page {number} cannot be read ({exc})") from exc
+
+    yield from _batched(pages(), len(reader.pages), source.size, chunk_chars)
 
 
 def _read_epub(source: TextSource, chunk_chars: int) -> Iterator[tuple[str, int]]:

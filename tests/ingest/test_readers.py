@@ -328,3 +328,13 @@ def test_given_encoding_skips_detection(tmp_path: Path) -> None:
         UnreadableFileError, match="^draft.docx: an encoding can only be given for plain text"
     ):
         TextSource.from_path(docx_path, encoding="utf-8")
+
+
+def test_mixed_utf8_and_cp1252_is_read_as_utf8_with_fallback():
+    # Mostly UTF-8 with stray Windows-1252 bytes (a pasted-in fragment): the UTF-8 parts stay intact.
+    from app.ingest.encoding import detect_encoding
+
+    sample = "naïve café Grüße ".encode() * 3 + b"caf\xe9 na\xefve"
+    assert detect_encoding(sample, complete=True).codec == "utf-8"
+    # A genuine Latin-1 text has no valid UTF-8 sequences and is not taken for UTF-8.
+    assert detect_encoding("naïve café à l'été".encode("latin-1") * 5, complete=True).codec != "utf-8"
