@@ -5,7 +5,9 @@ from __future__ import annotations
 from functools import lru_cache
 from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
+from typing import Literal
 
+from pydantic import Field
 from pydantic_settings import BaseSettings, SettingsConfigDict
 
 REPO_ROOT = Path(__file__).resolve().parent.parent
@@ -20,7 +22,8 @@ except PackageNotFoundError:  # running from a source tree that was not installe
 
 
 class Settings(BaseSettings):
-    """Environment: LEXIGROWTH_DATA_DIR, LEXIGROWTH_DATABASE_URL, LEXIGROWTH_MAX_UPLOAD_MB, LEXIGROWTH_LOAD_DEMO."""
+    """Environment: LEXIGROWTH_DATA_DIR, LEXIGROWTH_DATABASE_URL, LEXIGROWTH_MAX_UPLOAD_MB, LEXIGROWTH_LOAD_DEMO,
+    and for lab mode LEXIGROWTH_MODE, LEXIGROWTH_SECRET_KEY, LEXIGROWTH_TRUST_PROXY (see app.web.security)."""
 
     model_config = SettingsConfigDict(env_prefix="LEXIGROWTH_")
 
@@ -28,6 +31,12 @@ class Settings(BaseSettings):
     database_url: str | None = None
     max_upload_mb: int = 200
     load_demo: bool = True
+    # "auto": lab mode (sign-in required) as soon as the store has an account; "lab": always lab mode.
+    mode: Literal["auto", "lab"] = "auto"
+    # Key that signs session cookies; empty: a random key kept in <data_dir>/secret_key (mode 0600).
+    secret_key: str = Field(default="", repr=False)
+    # Believe X-Forwarded-Proto (and X-Forwarded-For in `serve`) from a reverse proxy in front of the app.
+    trust_proxy: bool = False
 
     @property
     def resolved_database_url(self) -> str:

@@ -7,7 +7,7 @@ from contextlib import asynccontextmanager
 from pathlib import Path
 
 import plotly
-from fastapi import FastAPI, Request
+from fastapi import Depends, FastAPI, Request
 from fastapi.exception_handlers import http_exception_handler
 from fastapi.responses import FileResponse
 from fastapi.staticfiles import StaticFiles
@@ -17,7 +17,7 @@ from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
 from app.services.ingestion import load_demo_corpora
 from app.services.jobs import JobRunner
 from app.store.db import make_engine
-from app.web import api, compare, pages
+from app.web import api, compare, pages, security
 
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
@@ -40,11 +40,15 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         version=PROGRAM_VERSION,
         description="Frequency spectra, vocabulary growth and n-legomena models for comparing corpora.",
         lifespan=lifespan,
+        dependencies=[Depends(security.csrf_protect)],
+        docs_url=None,  # served by app.web.security with their own Content-Security-Policy
+        redoc_url=None,
     )
     settings.data_dir.mkdir(parents=True, exist_ok=True)
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = JobRunner()
+    app.add_middleware(security.SecurityMiddleware, guard=security.Guard(settings, app.state.engine))
 
     @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
     def plotly_js() -> FileResponse:
@@ -56,12 +60,13 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(api.router)
     app.include_router(pages.router)
     app.include_router(compare.router)
+    app.include_router(security.router)
 
     @app.exception_handler(StarletteHTTPException)
     async def html_errors(request: Request, exc: StarletteHTTPException):
         if request.url.path.startswith(("/api", "/static", "/docs", "/openapi")):
             return await http_exception_handler(request, exc)
-        heading = {404: "Not found", 413: "Too large", 422: "Cannot use this input"}.get(
+        heading = {403: "Not allowed", 404: "Not found", 413: "Too large", 422: "Cannot use this input"}.get(
             exc.status_code, "Error"
         )
         return pages.render(

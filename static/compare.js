@@ -1,4 +1,5 @@
-// Library: pick 2 to 8 corpora to compare. Comparison page: copy the permalink, switch the growth axis.
+// Library: pick 2 to 8 corpora to compare, filter by label on change. Comparison page: copy the permalink,
+// switch the growth axis.
 (function () {
   "use strict";
   var MIN = 2, MAX = 8;
@@ -48,6 +49,8 @@
   document.addEventListener("DOMContentLoaded", function () {
     var form = document.getElementById("compare-form");
     if (form) { librarySelection(form); }
+    var filter = document.getElementById("label-filter");
+    if (filter) { filter.addEventListener("change", function () { filter.form.submit(); }); }
     var copy = document.getElementById("copy-link");
     if (copy) { copyLink(copy); }
     var radios = document.querySelectorAll("input[name=growth-scale]");

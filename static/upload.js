@@ -1,4 +1,5 @@
 // Upload with a progress bar: bytes sent, then the ingestion job's own progress, then the corpus page.
+// In lab mode the page's CSRF token (<meta name="csrf-token">) goes with the upload as X-CSRF-Token.
 (function () {
   "use strict";
   var form = document.getElementById("upload-form");
@@ -27,6 +28,8 @@
     var data = new FormData(form);
     var xhr = new XMLHttpRequest();
     xhr.open("POST", "/api/corpora");
+    var csrf = document.querySelector('meta[name="csrf-token"]');
+    if (csrf) { xhr.setRequestHeader("X-CSRF-Token", csrf.content); }
     xhr.upload.addEventListener("progress", function (e) {
       if (e.lengthComputable) { show("Sending… " + Math.round(100 * e.loaded / e.total) + "%", e.loaded / e.total); }
     });

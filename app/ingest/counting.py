@@ -8,16 +8,23 @@ normalisation cannot reach across such a cut: no token holds whitespace, punctua
 apostrophes, hyphens, points and commas it joins on) or symbols, and NFC never composes across a
 character of these kinds.
 
-What is kept per type is its id (its rank in order of first appearance, via a dict), and the position of
-its first occurrence. What is kept per token is its type id, written as little-endian int32 to a
-temporary file (4 bytes per token). From these, after the last chunk:
+The pieces (the text up to a cut) are grouped into batches of about ``BATCH_CHUNKS`` chunks, and each
+batch is tokenized on its own by an engine (``app.ingest.engines``: in this process, in local worker
+processes or on a Dask cluster), which numbers the batch's types in order of first occurrence. The batches are
+merged here strictly in text order, so every engine gives the same result. What is kept per type is its
+global id (its rank in order of first appearance, via a dict), and the position of its first occurrence
+(the batch's offset plus the local position). What is kept per token is its type id, written as
+little-endian int32 to a temporary file (4 bytes per token). From these, after the last batch:
 
 - the text-order type growth V(n) is exact at every n: V(n) = #{types whose first position < n}, the
   first positions being ascending by construction (``np.searchsorted``);
 - the frequencies, and the exact spectra of the first round(p N) tokens, come from ``np.bincount`` over
-  slices of the id file (``np.memmap``);
+  slices of the id file, read block by block so that memory does not grow with the corpus;
 - the id file stays available (``CountResult.type_ids()``) for other text-order statistics until
   ``CountResult.close()``.
+
+Memory stays bounded: a few batches per worker are in flight, and what grows is one dict entry and one
+first position per type.
 """
 
 from __future__ import annotations
@@ -26,7 +33,8 @@ import hashlib
 import os
 import tempfile
 import weakref
-from collections.abc import Callable, Sequence
+from collections.abc import Callable, Iterable, Iterator, Sequence
+from contextlib import closing
 from dataclasses import dataclass, field
 from fractions import Fraction
 from itertools import repeat
@@ -37,6 +45,7 @@ import numpy as np
 import regex
 
 from app.core.spectrum import Spectrum
+from app.ingest.engines import BatchCounts, EngineName, choose_engine, count_batches
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import DEFAULT_CHUNK_CHARS, TextSource
 
@@ -46,7 +55,10 @@ PREFIX_FRACTIONS = ("0.1", "0.25", "0.5")
 GROWTH_LOG_POINTS = 150
 GROWTH_LINEAR_POINTS = 150
 TYPE_ID_DTYPE = np.dtype("<i4")
-_READ_SLICE = 1 << 22
+_READ_SLICE = 1 << 20
+BATCH_CHUNKS = 4
+"""Chunks of text per batch sent to an engine: bigger batches mean fewer types to merge here, smaller
+ones spread the work more evenly (and keep the workers' token lists in cache)."""
 _SOURCE_SEPARATOR = "\n"
 
 # A cut is safe after a character that never belongs to a token and never composes (NFC) with what
@@ -144,48 +156,86 @@ def _safe_cut(text: str) -> int:
     return match.end() if match else 0
 
 
+def _pieces(
+    sources: Sequence[TextSource], chunk_chars: int, digest: Callable[[bytes], object]
+) -> Iterator[tuple[str, int]]:
+    """The corpus cut into pieces that tokenize independently: (piece, input bytes read so far) in text
+    order, one per chunk read (empty when the chunk holds no safe cut) and one for the rest of each
+    source. The decoded text goes to ``digest`` (as UTF-8, sources joined by a line break) on the way."""
+    done_before = 0
+    for index, source in enumerate(sources):
+        if index:
+            digest(_SOURCE_SEPARATOR.encode())
+        carry = ""
+        for chunk, consumed in source.chunks(chunk_chars):
+            digest(chunk.encode("utf-8", "surrogatepass"))
+            text = carry + chunk
+            cut = _safe_cut(text)
+            carry = text[cut:]
+            yield text[:cut], done_before + consumed
+        done_before += source.size
+        yield carry, done_before
+
+
+def _batches(pieces: Iterable[tuple[str, int]], chars: int) -> Iterator[tuple[list[str], list[int]]]:
+    """Consecutive pieces grouped into batches of at least ``chars`` characters (the last may be
+    shorter): (pieces, their tags)."""
+    texts: list[str] = []
+    tags: list[int] = []
+    size = 0
+    for text, tag in pieces:
+        texts.append(text)
+        tags.append(tag)
+        size += len(text)
+        if size >= chars:
+            yield texts, tags
+            texts, tags, size = [], [], 0
+    if tags:
+        yield texts, tags
+
+
 class _TypeSequence:
-    """Assigns type ids in order of first appearance and writes the id of every token to ``sink``."""
+    """Merges batch counts in text order: assigns global type ids in order of first appearance, keeps
+    each type's first position, and writes the global id of every token to ``sink``."""
 
     def __init__(self, sink: BinaryIO) -> None:
         self.sink = sink
         self.ids: dict[str, int] = {}
-        self.first_positions: list[int] = []
         self.tokens = 0
+        self._first_positions: list[np.ndarray] = []
 
-    def add(self, tokens: list[str]) -> None:
-        if not tokens:
-            return
-        ids = self.ids
-        # Known types in one C-level pass; -1 marks types not seen before this chunk.
-        seq = np.fromiter(map(ids.get, tokens, repeat(-1)), dtype=TYPE_ID_DTYPE, count=len(tokens))
-        unseen = np.flatnonzero(seq < 0)
-        if unseen.size:
-            filled = []
-            for i in unseen.tolist():
-                word = tokens[i]
-                type_id = ids.get(word)
-                if type_id is None:
-                    type_id = ids[word] = len(ids)
-                    self.first_positions.append(self.tokens + i)
-                filled.append(type_id)
-            seq[unseen] = filled
-        seq.tofile(self.sink)
-        self.tokens += len(tokens)
+    def add(self, batch: BatchCounts) -> None:
+        ids, words = self.ids, batch.words()
+        # Global ids of the batch's types in one C-level pass; -1 marks types not seen before.
+        to_global = np.fromiter(map(ids.get, words, repeat(-1)), dtype=TYPE_ID_DTYPE, count=len(words))
+        new = np.flatnonzero(to_global < 0)
+        if new.size:
+            fresh = np.arange(len(ids), len(ids) + new.size, dtype=TYPE_ID_DTYPE)
+            to_global[new] = fresh
+            ids.update(zip(map(words.__getitem__, new.tolist()), fresh.tolist(), strict=True))
+            self._first_positions.append(self.tokens + batch.first[new].astype(np.int64))
+        to_global[batch.ids].tofile(self.sink)
+        self.tokens += batch.ids.size
+
+    def first_positions(self) -> np.ndarray:
+        """The 0-based position of every type's first occurrence, by type id (ascending)."""
+        return np.concatenate([np.zeros(0, dtype=np.int64), *self._first_positions])
 
 
-def _prefix_frequencies(type_ids: np.ndarray, types: int, stops: Sequence[int]) -> list[np.ndarray]:
-    """Frequency of every type among the first s tokens, for each s in the ascending ``stops``."""
+def _frequencies_at(path: Path, types: int, stops: Sequence[int]) -> Iterator[tuple[int, np.ndarray]]:
+    """(s, frequency of every type among the first s tokens) for each s in the ascending ``stops``; the
+    array is updated in place between steps. The id file is read in slices, never mapped whole."""
     counts = np.zeros(types, dtype=np.int64)
-    out = []
     position = 0
-    for stop in stops:
-        while position < stop:
-            end = min(stop, position + _READ_SLICE)
-            counts += np.bincount(type_ids[position:end], minlength=types)
-            position = end
-        out.append(counts.copy())
-    return out
+    with path.open("rb") as fh:
+        for stop in stops:
+            while position < stop:
+                block = np.fromfile(fh, dtype=TYPE_ID_DTYPE, count=min(stop - position, _READ_SLICE))
+                if not block.size:
+                    raise ValueError(f"type-id file {path} ends after {position} tokens, expected {stop}")
+                counts += np.bincount(block, minlength=types)
+                position += block.size
+            yield stop, counts
 
 
 def count_sources(
@@ -194,65 +244,63 @@ def count_sources(
     progress: Progress | None = None,
     workdir: str | Path | None = None,
     chunk_chars: int = DEFAULT_CHUNK_CHARS,
+    engine: EngineName | None = None,
+    scheduler: str | None = None,
 ) -> CountResult:
     """Count the word tokens of ``sources`` (one corpus, in order) under ``profile``.
 
-    ``progress(done_bytes, total_bytes)`` is called after each chunk. The type-id file goes to
-    ``workdir`` (default: the system temporary directory). Raises ValueError when the corpus has no word
-    token, and UnreadableFileError for a file that cannot be read.
+    ``engine`` says where the text is tokenized (see ``app.ingest.engines``): "serial" (this process),
+    "local" (worker processes on all cores) or "dask" (the Dask cluster at ``scheduler``, or a local one);
+    by default "dask" when a scheduler is given, "local" for inputs over ``LOCAL_MIN_BYTES`` and "serial"
+    otherwise. All engines give identical results. ``progress(done_bytes, total_bytes)`` is called after
+    each chunk. The type-id file goes to ``workdir`` (default: the system temporary directory). Raises
+    ValueError when the corpus has no word token, UnreadableFileError for a file that cannot be read, and
+    EngineUnavailableError when the engine cannot run.
     """
     if not sources:
         raise ValueError("no texts to count")
     names = [source.name for source in sources]
-    tokenizer = profile.tokenizer()
     total_bytes = sum(source.size for source in sources)
+    engine = choose_engine(engine, total_bytes, scheduler)
     handle, tmp = tempfile.mkstemp(prefix="lexigrowth-types-", suffix=".i32", dir=workdir)
     path = Path(tmp)
     try:
         hasher = hashlib.sha256()
         with os.fdopen(handle, "wb") as sink:
             sequence = _TypeSequence(sink)
-            done_before = 0
-            for index, source in enumerate(sources):
-                if index:
-                    hasher.update(_SOURCE_SEPARATOR.encode())
-                carry = ""
-                for chunk, consumed in source.chunks(chunk_chars):
-                    hasher.update(chunk.encode("utf-8", "surrogatepass"))
-                    text = carry + chunk
-                    cut = _safe_cut(text)
-                    if cut:
-                        sequence.add(tokenizer.tokens(text[:cut]))
-                    carry = text[cut:]
+            batches = _batches(_pieces(sources, chunk_chars, hasher.update), BATCH_CHUNKS * chunk_chars)
+            with closing(count_batches(batches, profile, engine, scheduler)) as counted:
+                for batch, done in counted:
+                    if batch is not None:
+                        sequence.add(batch)
                     if progress is not None:
-                        progress(done_before + consumed, total_bytes)
-                sequence.add(tokenizer.tokens(carry))
-                done_before += source.size
+                        for bytes_read in done:
+                            progress(bytes_read, total_bytes)
         n_tokens, n_types = sequence.tokens, len(sequence.ids)
         if n_tokens == 0:
             raise ValueError(f"{', '.join(names)}: no word tokens found with profile {profile.name!r}")
-        type_ids = np.memmap(path, dtype=TYPE_ID_DTYPE, mode="r", shape=(n_tokens,))
         prefix_sizes = {p: prefix_length(p, n_tokens) for p in PREFIX_FRACTIONS}
-        stops = sorted(set(prefix_sizes.values()) | {n_tokens})
-        frequencies = dict(zip(stops, _prefix_frequencies(type_ids, n_types, stops), strict=True))
-        del type_ids
+        prefix_spectra: dict[int, Spectrum] = {}
+        for size, frequencies in _frequencies_at(path, n_types, sorted({*prefix_sizes.values(), n_tokens})):
+            prefix_spectra[size] = Spectrum.from_frequencies(frequencies[frequencies > 0])
     except BaseException:
         path.unlink(missing_ok=True)
         raise
-    first_positions = np.asarray(sequence.first_positions, dtype=np.int64)
+    first_positions = sequence.first_positions()
     checkpoints = growth_checkpoints(n_tokens)
     growth_types = _types_among_first(first_positions, checkpoints)
+    # The last step covered the whole text. The id dict becomes the counts dict in place (same keys, same
+    # order, values replaced): no second dict of all types.
+    counts = sequence.ids
+    counts.update(zip(counts, frequencies.tolist(), strict=True))
     return CountResult(
         names=names,
         profile=profile,
-        counts=dict(zip(sequence.ids, frequencies[n_tokens].tolist(), strict=True)),
+        counts=counts,
         tokens=n_tokens,
         types=n_types,
         growth=[(int(n), int(v)) for n, v in zip(checkpoints, growth_types, strict=True)],
-        prefix_spectra={
-            p: (size, Spectrum.from_frequencies(frequencies[size][frequencies[size] > 0]))
-            for p, size in prefix_sizes.items()
-        },
+        prefix_spectra={p: (size, prefix_spectra[size]) for p, size in prefix_sizes.items()},
         first_positions=first_positions,
         content_hash=hasher.hexdigest(),
         type_sequence_path=path,

@@ -1,10 +1,11 @@
 """Engines that tokenize and count the pieces of a corpus: in this process, in local worker processes, or on
 a Dask cluster.
 
-``app.ingest.counting`` cuts the corpus into pieces at safe boundaries and merges the results in text
-order; an engine only decides where ``count_piece`` runs. Every engine runs the same function on the same
-pieces with the same tokenizer (``TokenizationProfile.tokenizer()``), so all engines give identical
-results, down to the type-id sequence.
+``app.ingest.counting`` cuts the corpus into pieces at safe boundaries, groups consecutive pieces into
+batches, and merges the batch results in text order; an engine only decides where ``count_batch`` runs.
+Every engine runs the same function on the same batches with the same tokenizer
+(``TokenizationProfile.tokenizer()``), so all engines give identical results, down to the type-id
+sequence.
 
 - ``serial``: in this process, one piece after the other.
 - ``local``: a pool of worker processes (``concurrent.futures.ProcessPoolExecutor``, one per available
@@ -13,11 +14,11 @@ results, down to the type-id sequence.
   one given by its scheduler address, or a ``LocalCluster`` of worker processes started for the call. The
   pieces are read here and sent to the workers; only the per-piece results come back.
 
-In both parallel engines at most ``IN_FLIGHT_PER_WORKER`` pieces per worker are submitted and not yet
+In both parallel engines at most ``IN_FLIGHT_PER_WORKER`` batches per worker are submitted and not yet
 merged, so memory stays bounded whatever the size of the corpus, and results are merged in submission
 order.
 
-Worker processes import this module to run ``count_piece``: keep its imports light (numpy, regex and the
+Worker processes import this module to run ``count_batch``: keep its imports light (numpy, regex and the
 standard library; Dask only inside the dask engine).
 """
 
@@ -26,9 +27,9 @@ from __future__ import annotations
 import multiprocessing
 import os
 from collections import deque
-from collections.abc import Callable, Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator, Sequence
 from concurrent.futures import ProcessPoolExecutor
-from contextlib import contextmanager
+from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass
 from functools import lru_cache, partial
 from itertools import count
@@ -41,14 +42,15 @@ from app.ingest.profiles import TokenizationProfile, Tokenizer
 EngineName = Literal["serial", "local", "dask"]
 ENGINES: tuple[str, ...] = get_args(EngineName)
 
-LOCAL_MIN_BYTES = 8 * 2**20
+LOCAL_MIN_BYTES = 16 * 2**20
 """Inputs larger than this many bytes are counted by the local engine when no engine is named (and more
 than one core is available); below it, starting the worker processes costs more than it saves."""
 
 IN_FLIGHT_PER_WORKER = 2
-"""Pieces per worker submitted ahead of the merge: one being counted, one waiting in line."""
+"""Batches per worker submitted ahead of the merge: one being counted, one waiting in line."""
 
-PIECE_ID_DTYPE = np.dtype(np.int32)
+LOCAL_DTYPE = np.dtype(np.int32)
+WORD_SEPARATOR = "\n"
 
 Tag = TypeVar("Tag")
 Submit = Callable[..., Any]
@@ -59,38 +61,51 @@ class EngineUnavailableError(ValueError):
 
 
 @dataclass(frozen=True, eq=False)
-class PieceCounts:
-    """The tokens of one piece of text, as local type ids.
+class BatchCounts:
+    """The tokens of a batch of consecutive pieces of text, as local type ids.
 
-    ``words`` holds the distinct tokens in order of first occurrence (a word's index is its local id),
-    ``first`` the 0-based position of each word's first occurrence in the piece (ascending), and ``ids``
-    the local id of every token in text order. Frequencies are not sent: they follow from ``ids``.
+    ``joined_words`` holds the distinct tokens in order of first occurrence, joined by line breaks (one
+    string pickles far faster than a list of them; tokens are never empty and never hold whitespace),
+    ``first`` the 0-based position of each word's first occurrence in the batch (ascending, int32), and
+    ``ids`` the local id (the index in ``words()``) of every token in text order, in the smallest unsigned
+    integer type that holds them. Frequencies are not sent: they follow from ``ids``.
     """
 
-    words: list[str]
+    joined_words: str
     first: np.ndarray
     ids: np.ndarray
+
+    def words(self) -> list[str]:
+        """The distinct tokens in order of first occurrence."""
+        return self.joined_words.split(WORD_SEPARATOR) if self.joined_words else []
 
 
 @lru_cache(maxsize=8)
 def _tokenizer(profile: TokenizationProfile) -> Tokenizer:
-    """One compiled tokenizer per profile and process (workers count many pieces)."""
+    """One compiled tokenizer per profile and process (workers count many batches)."""
     return profile.tokenizer()
 
 
-def count_piece(text: str, profile: TokenizationProfile) -> PieceCounts:
-    """Tokenize ``text`` under ``profile`` and number its types in order of first occurrence."""
-    tokens = _tokenizer(profile).tokens(text)
+def count_batch(pieces: Sequence[str], profile: TokenizationProfile) -> BatchCounts:
+    """Tokenize each piece under ``profile`` and number the types of the batch in order of first
+    occurrence (the pieces are consecutive parts of one text, each cut at a safe boundary)."""
+    tokenizer = _tokenizer(profile)
     first_of: dict[str, int] = {}
-    # One C-level pass: setdefault keeps the position where each word was first seen, so every token
-    # gets the first position of its word.
-    token_first = np.fromiter(
-        map(first_of.setdefault, tokens, count()), dtype=PIECE_ID_DTYPE, count=len(tokens)
-    )
-    first = np.fromiter(first_of.values(), dtype=PIECE_ID_DTYPE, count=len(first_of))
-    local_id = np.empty(len(tokens), dtype=PIECE_ID_DTYPE)
-    local_id[first] = np.arange(first.size, dtype=PIECE_ID_DTYPE)
-    return PieceCounts(words=list(first_of), first=first, ids=local_id[token_first])
+    token_first: list[np.ndarray] = []
+    tokens_before = 0
+    for piece in pieces:
+        tokens = tokenizer.tokens(piece)
+        # One C-level pass: setdefault keeps the position where each word was first seen, so every
+        # token gets the first position of its word.
+        positions = map(first_of.setdefault, tokens, count(tokens_before))
+        token_first.append(np.fromiter(positions, dtype=LOCAL_DTYPE, count=len(tokens)))
+        tokens_before += len(tokens)
+    first = np.fromiter(first_of.values(), dtype=LOCAL_DTYPE, count=len(first_of))
+    # Local ids in the smallest unsigned type that holds them (often 2 bytes a token): less to send.
+    local_id = np.empty(tokens_before, dtype=np.min_scalar_type(max(first.size - 1, 0)))
+    local_id[first] = np.arange(first.size)
+    ids = local_id[np.concatenate([np.zeros(0, dtype=LOCAL_DTYPE), *token_first])]
+    return BatchCounts(joined_words=WORD_SEPARATOR.join(first_of), first=first, ids=ids)
 
 
 def available_cpus() -> int:
@@ -118,30 +133,30 @@ def choose_engine(engine: str | None, total_bytes: int, scheduler: str | None = 
     return engine
 
 
-def count_pieces(
-    pieces: Iterable[tuple[str, Tag]],
+def count_batches(
+    batches: Iterable[tuple[Sequence[str], Tag]],
     profile: TokenizationProfile,
     engine: str = "serial",
     scheduler: str | None = None,
-) -> Iterator[tuple[PieceCounts | None, Tag]]:
-    """``count_piece`` of every (text, tag) pair on ``engine``, yielded in input order with its tag (None
-    for an empty text, which is not sent anywhere). Close the iterator to stop the workers early."""
+) -> Iterator[tuple[BatchCounts | None, Tag]]:
+    """``count_batch`` of every (pieces, tag) pair on ``engine``, yielded in input order with its tag (None
+    for a batch without text, which is not sent anywhere). Close the iterator to stop the workers early."""
     if engine == "serial":
-        for text, tag in pieces:
-            yield (count_piece(text, profile) if text else None), tag
+        for pieces, tag in batches:
+            yield (count_batch(pieces, profile) if any(pieces) else None), tag
         return
     workers = _local_pool() if engine == "local" else _dask_workers(scheduler)
     with workers as (submit, slots):
         pending: deque[tuple[Any, Tag]] = deque()
-        for text, tag in pieces:
-            pending.append((submit(count_piece, text, profile) if text else None, tag))
+        for pieces, tag in batches:
+            pending.append((submit(count_batch, pieces, profile) if any(pieces) else None, tag))
             if len(pending) >= IN_FLIGHT_PER_WORKER * slots:
                 yield _result(*pending.popleft())
         while pending:
             yield _result(*pending.popleft())
 
 
-def _result(future: Any, tag: Tag) -> tuple[PieceCounts | None, Tag]:
+def _result(future: Any, tag: Tag) -> tuple[BatchCounts | None, Tag]:
     return (future.result() if future is not None else None), tag
 
 
@@ -164,23 +179,20 @@ def _dask_workers(scheduler: str | None) -> Iterator[tuple[Submit, int]]:
         raise EngineUnavailableError(
             "the dask engine needs dask[distributed] (install lexigrowth with the 'cluster' extra)"
         ) from exc
-    if scheduler is None:
-        cluster = LocalCluster(
-            n_workers=available_cpus(), threads_per_worker=1, processes=True, dashboard_address=None
-        )
-    else:
-        cluster = None
-    try:
+    with ExitStack() as stack:
+        if scheduler is None:
+            cluster = LocalCluster(
+                n_workers=available_cpus(), threads_per_worker=1, processes=True, dashboard_address=None
+            )
+            address = stack.enter_context(cluster)
+        else:
+            address = scheduler
         try:
-            client = Client(cluster if cluster is not None else scheduler)
+            client = stack.enter_context(Client(address))
         except OSError as exc:
             raise EngineUnavailableError(f"cannot reach the Dask scheduler at {scheduler}: {exc}") from exc
-        with client:
-            slots = sum(client.nthreads().values())
-            if not slots:
-                raise EngineUnavailableError(f"the Dask cluster at {scheduler} has no workers")
-            # pure=False: every piece is a new task, and its text is not hashed to name it.
-            yield partial(client.submit, pure=False), slots
-    finally:
-        if cluster is not None:
-            cluster.close()
+        slots = sum(client.nthreads().values())
+        if not slots:
+            raise EngineUnavailableError(f"the Dask cluster at {scheduler} has no workers")
+        # pure=False: every batch is a new task, and its text is not hashed to name it.
+        yield partial(client.submit, pure=False), slots

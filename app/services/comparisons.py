@@ -591,11 +591,20 @@ def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, A
     return snapshot
 
 
-def save(engine: Engine, settings: ComparisonSettings) -> str:
-    """Store the live snapshot of these settings under a new unguessable slug; returns the slug."""
+def save(
+    engine: Engine, settings: ComparisonSettings, creator_id: int | None = None, public: bool = False
+) -> str:
+    """Store the live snapshot of these settings under a new unguessable slug; returns the slug. In lab mode
+    ``creator_id`` is the member saving it, and ``public`` lets anyone with the link see it without words."""
     snapshot = live_comparison(engine, settings)
     row = saved.save_comparison(
-        engine, list(settings.corpora), snapshot["settings"], snapshot, snapshot["program_version"]
+        engine,
+        list(settings.corpora),
+        snapshot["settings"],
+        snapshot,
+        snapshot["program_version"],
+        creator_id=creator_id,
+        public=public,
     )
     return row.slug
 
@@ -627,7 +636,14 @@ def saved_comparison(engine: Engine, slug: str) -> dict[str, Any]:
         "url": permalink(row.slug),
         "saved_at": row.created_at.isoformat(),
         "notices": notices,
+        "public": row.public,
     }
+
+
+def without_word_lists(snapshot: dict[str, Any]) -> dict[str, Any]:
+    """The snapshot as a visitor who is not signed in sees a public permalink: every number and curve, but
+    no word (the distinctive words are emptied and marked hidden; counts of words tested stay)."""
+    return snapshot | {"distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True}}
 
 
 # ------------------------------------------------------------------------------------------ downloads

@@ -12,6 +12,7 @@ from sqlalchemy.engine import Engine
 from app.config import DEMO_DIR, PROGRAM_VERSION
 from app.core import richness, text_order
 from app.ingest.counting import count_sources
+from app.ingest.engines import EngineName
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import TextSource
 from app.services import modelling
@@ -92,13 +93,20 @@ def ingest(
     profile: TokenizationProfile | None = None,
     progress: ProgressCallback | None = None,
     work_dir: Path | None = None,
+    counting_engine: EngineName | None = None,
+    scheduler: str | None = None,
 ) -> int:
-    """Count the sources as one corpus and store it; returns the new corpus id."""
+    """Count the sources as one corpus and store it; returns the new corpus id.
+
+    ``counting_engine`` ("serial", "local" or "dask") and ``scheduler`` (a Dask scheduler address) choose
+    where the text is tokenized (``app.ingest.counting.count_sources``; by default by input size)."""
     name = check_name(name)
     if not sources:
         raise IngestionInputError("files: give at least one file or some pasted text")
     profile = profile or TokenizationProfile()
-    with count_sources(sources, profile, progress=progress, workdir=work_dir) as result:
+    with count_sources(
+        sources, profile, progress=progress, workdir=work_dir, engine=counting_engine, scheduler=scheduler
+    ) as result:
         spectrum = result.spectrum()
         record = CorpusRecord(
             name=name,

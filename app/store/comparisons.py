@@ -6,6 +6,7 @@ import json
 import secrets
 from typing import Any
 
+from sqlalchemy import select
 from sqlalchemy.engine import Engine
 from sqlmodel import Session
 
@@ -32,14 +33,19 @@ def save_comparison(
     settings: dict[str, Any],
     snapshot: dict[str, Any],
     program_version: str,
+    creator_id: int | None = None,
+    public: bool = False,
 ) -> SavedComparison:
-    """Store a comparison under a fresh slug and return the stored row."""
+    """Store a comparison under a fresh slug and return the stored row (``creator_id``: the lab member who
+    saved it; ``public``: visible without signing in)."""
     row = SavedComparison(
         slug=new_slug(),
         corpus_ids_json=json.dumps(corpus_ids),
         settings_json=json.dumps(settings),
         snapshot_json=json.dumps(snapshot, ensure_ascii=False, allow_nan=False),
         program_version=program_version,
+        creator_id=creator_id,
+        public=public,
     )
     with transaction(engine) as session:
         session.add(row)
@@ -47,6 +53,13 @@ def save_comparison(
         session.refresh(row)
         session.expunge(row)
     return row
+
+
+def is_public(engine: Engine, slug: str) -> bool:
+    """Whether the comparison at ``slug`` exists and its creator made it public (its snapshot is not read)."""
+    with Session(engine) as session:
+        found = session.execute(select(SavedComparison.public).where(SavedComparison.slug == slug)).scalar()
+        return bool(found)
 
 
 def get_comparison(engine: Engine, slug: str) -> SavedComparison:

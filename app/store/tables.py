@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from datetime import UTC, datetime
 
-from sqlalchemy import BigInteger, Column, ForeignKey, Integer, String, Text
+from sqlalchemy import BigInteger, Boolean, Column, ForeignKey, Integer, String, Text, false
 from sqlmodel import Field, SQLModel
 from sqlmodel.sql.sqltypes import UTCDateTime
 
@@ -42,6 +42,9 @@ class Corpus(SQLModel, table=True):
     program_version: str
     text_order_json: str = Field(default="{}", sa_column=Column(Text, nullable=False, default="{}"))
     created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
+    # The lab member who uploaded it (an Account id); None when counted by the command line, for the demo,
+    # or before lab mode. Not a database foreign key: see migration 0002.
+    owner_id: int | None = Field(default=None)
 
 
 class WordCount(SQLModel, table=True):
@@ -96,4 +99,29 @@ class SavedComparison(SQLModel, table=True):
     settings_json: str = Field(sa_column=Column(Text, nullable=False))
     snapshot_json: str = Field(sa_column=Column(Text, nullable=False))
     program_version: str
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
+    # The member who saved it (an Account id, None outside lab mode), and whether anyone with the link may see
+    # it without signing in (statistics and plots only, never word lists).
+    creator_id: int | None = Field(default=None)
+    public: bool = Field(default=False, sa_column=Column(Boolean, nullable=False, server_default=false()))
+
+
+class Account(SQLModel, table=True):
+    """A lab member who signs in: the password is kept only as a scrypt hash (app.store.accounts)."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    name: str = Field(unique=True, index=True)
+    password_hash: str
+    is_admin: bool = Field(default=False)
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
+
+
+class ApiToken(SQLModel, table=True):
+    """An API token of a member, kept only as the SHA-256 of the token (the token is shown once)."""
+
+    id: int | None = Field(default=None, primary_key=True)
+    account_id: int = Field(
+        sa_column=Column(Integer, ForeignKey("account.id", ondelete="CASCADE"), nullable=False, index=True)
+    )
+    token_hash: str = Field(unique=True, index=True)
     created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Depends, File, Form, HTTPException, Query, Response, UploadFile
+from fastapi import APIRouter, Depends, File, Form, HTTPException, Path, Query, Request, Response, UploadFile
 from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field, field_validator
 from sqlalchemy.engine import Engine
@@ -14,6 +14,7 @@ from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.services import estimator, ingestion, modelling
 from app.services.jobs import JobRunner
+from app.store import accounts
 from app.store import corpora as store
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
@@ -22,6 +23,11 @@ from app.web.uploads import parse_profile, receive
 router = APIRouter(prefix="/api", tags=["api"])
 
 EngineDep = Annotated[Engine, Depends(engine_of)]
+
+MAX_CORPUS_ID = 2**31 - 1
+"""Corpus ids are positive INTEGER keys (32-bit on PostgreSQL): a larger one cannot exist, and passing it to
+the database driver fails (OverflowError on SQLite), so it is refused as input (422) instead of a 500."""
+CorpusId = Annotated[int, Path(ge=1, le=MAX_CORPUS_ID, description="corpus id")]
 
 
 @router.get("/health")
@@ -42,6 +48,7 @@ def list_corpora(engine: EngineDep) -> list[dict]:
 
 @router.post("/corpora", status_code=201)
 def upload_corpus(
+    request: Request,
     engine: EngineDep,
     settings: Annotated[Settings, Depends(settings_of)],
     jobs: Annotated[JobRunner, Depends(jobs_of)],
@@ -62,8 +69,15 @@ def upload_corpus(
     except INPUT_ERRORS as exc:
         raise input_error(exc) from exc
 
+    member = request.state.viewer.member  # in lab mode, the uploader owns the corpus
+
     def work(progress) -> int:
-        return ingestion.ingest(engine, upload.sources, name, label_map, chosen, progress, settings.work_dir)
+        corpus_id = ingestion.ingest(
+            engine, upload.sources, name, label_map, chosen, progress, settings.work_dir
+        )
+        if member is not None:
+            accounts.set_corpus_owner(engine, corpus_id, member.id)
+        return corpus_id
 
     if wait:
         try:
@@ -86,19 +100,24 @@ def job_status(job_id: str, jobs: Annotated[JobRunner, Depends(jobs_of)]) -> dic
 
 
 @router.get("/corpora/{corpus_id}")
-def corpus_summary(corpus_id: int, engine: EngineDep) -> dict:
+def corpus_summary(corpus_id: CorpusId, engine: EngineDep) -> dict:
     return store.summary(corpus_or_404(engine, corpus_id))
 
 
 @router.delete("/corpora/{corpus_id}", status_code=204)
-def delete_corpus(corpus_id: int, engine: EngineDep) -> Response:
-    corpus_or_404(engine, corpus_id)
+def delete_corpus(corpus_id: CorpusId, engine: EngineDep, request: Request) -> Response:
+    """Delete a corpus (in lab mode only its owner or an admin may: 403 otherwise)."""
+    corpus = corpus_or_404(engine, corpus_id)
+    if not request.state.viewer.may_delete(corpus.owner_id):
+        raise HTTPException(
+            status_code=403, detail="only the member who uploaded this corpus, or an admin, may delete it"
+        )
     store.delete_corpus(engine, corpus_id)
     return Response(status_code=204)
 
 
 @router.get("/corpora/{corpus_id}/spectrum")
-def spectrum(corpus_id: int, engine: EngineDep) -> dict:
+def spectrum(corpus_id: CorpusId, engine: EngineDep) -> dict:
     corpus = corpus_or_404(engine, corpus_id)
     return {
         "tokens": corpus.tokens,
@@ -108,7 +127,7 @@ def spectrum(corpus_id: int, engine: EngineDep) -> dict:
 
 
 @router.get("/corpora/{corpus_id}/growth")
-def growth(corpus_id: int, engine: EngineDep) -> dict:
+def growth(corpus_id: CorpusId, engine: EngineDep) -> dict:
     """Exact text-order type growth and the random-order expectation with its 95% band."""
     corpus_or_404(engine, corpus_id)
     return {
@@ -119,7 +138,7 @@ def growth(corpus_id: int, engine: EngineDep) -> dict:
 
 @router.get("/corpora/{corpus_id}/words")
 def words(
-    corpus_id: int,
+    corpus_id: CorpusId,
     engine: EngineDep,
     search: Annotated[str | None, Query(max_length=200)] = None,
     limit: Annotated[int, Query(ge=1, le=10_000)] = 100,
@@ -131,13 +150,13 @@ def words(
 
 
 @router.get("/corpora/{corpus_id}/spectrum.tsv")
-def spectrum_tsv(corpus_id: int, engine: EngineDep) -> Response:
+def spectrum_tsv(corpus_id: CorpusId, engine: EngineDep) -> Response:
     corpus = corpus_or_404(engine, corpus_id)
     return downloads.spectrum_tsv_response(corpus, store.spectrum_pairs(engine, corpus_id))
 
 
 @router.get("/corpora/{corpus_id}/words.csv")
-def words_csv(corpus_id: int, engine: EngineDep) -> Response:
+def words_csv(corpus_id: CorpusId, engine: EngineDep) -> Response:
     corpus = corpus_or_404(engine, corpus_id)
     return downloads.word_counts_csv_response(corpus, store.word_counts(engine, corpus_id, limit=None)[1])
 
@@ -159,7 +178,7 @@ def _modelling_call(function, *args):
 
 @router.get("/corpora/{corpus_id}/predict")
 def predict(
-    corpus_id: int, engine: EngineDep, tokens: Tokens, model: ModelName = modelling.RECOMMENDED
+    corpus_id: CorpusId, engine: EngineDep, tokens: Tokens, model: ModelName = modelling.RECOMMENDED
 ) -> dict:
     """E[V(n)] with its range and E[V_k(n)] for k = 1..20 by one model (``sample`` = exact interpolation)."""
     corpus_or_404(engine, corpus_id)
@@ -167,7 +186,7 @@ def predict(
 
 
 @router.get("/corpora/{corpus_id}/models")
-def models(corpus_id: int, engine: EngineDep) -> dict:
+def models(corpus_id: CorpusId, engine: EngineDep) -> dict:
     """Every fitted model: parameters, goodness of fit, backtest errors, and the recommended ensemble."""
     corpus_or_404(engine, corpus_id)
     return _modelling_call(modelling.model_report, engine, corpus_id)
@@ -175,7 +194,7 @@ def models(corpus_id: int, engine: EngineDep) -> dict:
 
 @router.get("/corpora/{corpus_id}/richness")
 def richness(
-    corpus_id: int, engine: EngineDep, common_size: Annotated[int | None, Query(ge=1, le=10**12)] = None
+    corpus_id: CorpusId, engine: EngineDep, common_size: Annotated[int | None, Query(ge=1, le=10**12)] = None
 ) -> dict:
     """Lexical richness indices at the corpus size and, optionally, at a common size."""
     corpus_or_404(engine, corpus_id)
@@ -183,7 +202,7 @@ def richness(
 
 
 @router.get("/corpora/{corpus_id}/unseen")
-def unseen(corpus_id: int, engine: EngineDep) -> list[dict]:
+def unseen(corpus_id: CorpusId, engine: EngineDep) -> list[dict]:
     """Estimates of unseen vocabulary, each with its range of validity."""
     corpus_or_404(engine, corpus_id)
     return _modelling_call(modelling.unseen_vocabulary, engine, corpus_id)
@@ -191,7 +210,7 @@ def unseen(corpus_id: int, engine: EngineDep) -> list[dict]:
 
 @router.get("/corpora/{corpus_id}/sample")
 def random_sample(
-    corpus_id: int,
+    corpus_id: CorpusId,
     engine: EngineDep,
     tokens: Tokens,
     random_state: Annotated[int, Query(ge=0, le=2**32 - 1)] = 0,
@@ -272,7 +291,7 @@ def planning_target(
 
 @router.get("/corpora/{corpus_id}/plan")
 def plan(
-    corpus_id: int,
+    corpus_id: CorpusId,
     engine: EngineDep,
     types: Annotated[float | None, Query(gt=0, le=1e13, description="target number of types V*")] = None,
     new_type_rate: Annotated[

@@ -21,14 +21,17 @@ from sqlalchemy.engine import Engine
 from app.services import comparisons as service
 from app.store.comparisons import ComparisonNotFoundError
 from app.store.corpora import CorpusNotFoundError
+from app.web.api import MAX_CORPUS_ID
 from app.web.compare_figures import comparison_figures
 from app.web.deps import engine_of
 from app.web.downloads import attachment
 from app.web.figures import PALETTE
 from app.web.pages import render
+from app.web.security import Viewer, viewer_of
 
 router = APIRouter()
 EngineDep = Annotated[Engine, Depends(engine_of)]
+ViewerDep = Annotated[Viewer, Depends(viewer_of)]
 SLUG = re.compile(r"[A-Za-z0-9_-]{16,86}")
 
 
@@ -37,7 +40,9 @@ class ComparisonRequest(BaseModel):
 
     model_config = ConfigDict(extra="forbid")
 
-    corpora: list[int] = Field(description="ids of the 2 to 8 corpora to compare, in legend order")
+    corpora: list[Annotated[int, Field(ge=1, le=MAX_CORPUS_ID)]] = Field(
+        description="ids of the 2 to 8 corpora to compare, in legend order"
+    )
     common_size: int | None = Field(None, description="tokens; default: the smallest corpus")
     horizon: int | None = Field(None, description="tokens the model curves reach; default: twice the largest")
     pair: list[int] | None = Field(
@@ -45,6 +50,10 @@ class ComparisonRequest(BaseModel):
     )
     min_freq: int | None = Field(None, description="minimum count of a word in the pair together (default 5)")
     limit: int | None = Field(None, description="distinctive words kept, by G^2 (default 100)")
+    public: bool = Field(
+        False,
+        description="lab mode: anyone with the link sees the numbers and plots (never words) without signing in",
+    )
 
 
 def _optional_int(name: str, text: str | None) -> int | None:
@@ -69,6 +78,8 @@ def _settings(
     """Settings from query or form fields, with a 422 that says what is wrong."""
     try:
         ids = [_optional_int("corpus", c) for c in corpus]
+        if any(i is not None and not 1 <= i <= MAX_CORPUS_ID for i in ids):
+            raise service.ComparisonInputError(f"corpus ids lie between 1 and {MAX_CORPUS_ID:,}")
         pair = [_optional_int("first", first), _optional_int("second", second)]
         return service.check_settings(
             [i for i in ids if i is not None],
@@ -118,13 +129,19 @@ def _live(engine: Engine, settings: service.ComparisonSettings) -> dict[str, Any
         raise HTTPException(status_code=422, detail=str(exc)) from exc
 
 
-def _saved(engine: Engine, slug: str) -> dict[str, Any]:
+def _saved(engine: Engine, slug: str, viewer: Viewer) -> dict[str, Any]:
+    """The saved snapshot; a visitor who is not signed in (only let through for a public one) gets no words."""
     if not SLUG.fullmatch(slug):
         raise HTTPException(status_code=404, detail="no saved comparison at this address")
     try:
-        return service.saved_comparison(engine, slug)
+        snapshot = service.saved_comparison(engine, slug)
     except ComparisonNotFoundError as exc:
         raise HTTPException(status_code=404, detail="no saved comparison at this address") from exc
+    if not viewer.anonymous:
+        return snapshot
+    if not snapshot["public"]:
+        raise HTTPException(status_code=404, detail="no saved comparison at this address")
+    return service.without_word_lists(snapshot)
 
 
 def live_query(snapshot: dict[str, Any]) -> str:
@@ -202,24 +219,32 @@ def compare_page(
 
 @router.post("/compare", include_in_schema=False)
 def save_from_page(
-    engine: EngineDep, settings: Annotated[service.ComparisonSettings, Depends(_form_settings)]
+    engine: EngineDep,
+    viewer: ViewerDep,
+    settings: Annotated[service.ComparisonSettings, Depends(_form_settings)],
+    public: Annotated[bool, Form()] = False,
 ) -> RedirectResponse:
     _live(engine, settings)  # 404/422 before saving anything
-    return RedirectResponse(service.permalink(service.save(engine, settings)), status_code=303)
+    slug = service.save(engine, settings, viewer.member.id if viewer.member else None, public)
+    return RedirectResponse(service.permalink(slug), status_code=303)
 
 
 @router.get("/compare/{slug}", response_class=HTMLResponse, include_in_schema=False)
 def saved_page(
-    request: Request, slug: str, engine: EngineDep, scale: Annotated[str | None, Query(max_length=10)] = None
+    request: Request,
+    slug: str,
+    engine: EngineDep,
+    viewer: ViewerDep,
+    scale: Annotated[str | None, Query(max_length=10)] = None,
 ):
-    return _page(request, _saved(engine, slug), saved=True, scale=scale)
+    return _page(request, _saved(engine, slug, viewer), saved=True, scale=scale)
 
 
 # ------------------------------------------------------------------------------------------------- JSON
 
 
 @router.post("/api/comparisons", status_code=201, tags=["comparisons"])
-def create_comparison(body: ComparisonRequest, engine: EngineDep) -> dict:
+def create_comparison(body: ComparisonRequest, engine: EngineDep, viewer: ViewerDep) -> dict:
     """Save a comparison of 2 to 8 corpora; the permalink shows the numbers computed now, for good."""
     try:
         settings = service.check_settings(
@@ -228,7 +253,7 @@ def create_comparison(body: ComparisonRequest, engine: EngineDep) -> dict:
     except service.ComparisonInputError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
     _live(engine, settings)
-    slug = service.save(engine, settings)
+    slug = service.save(engine, settings, viewer.member.id if viewer.member else None, body.public)
     return {"slug": slug, "url": service.permalink(slug)}
 
 
@@ -249,16 +274,16 @@ def live_distinctive_csv(engine: EngineDep, settings: QuerySettings) -> Response
 
 
 @router.get("/api/comparisons/{slug}", tags=["comparisons"])
-def saved_comparison(slug: str, engine: EngineDep, download: bool = False) -> JSONResponse:
+def saved_comparison(slug: str, engine: EngineDep, viewer: ViewerDep, download: bool = False) -> JSONResponse:
     """A saved comparison: the numbers as they were saved, with notices about corpora deleted since."""
-    return _json(_saved(engine, slug), download)
+    return _json(_saved(engine, slug, viewer), download)
 
 
 @router.get("/api/comparisons/{slug}/table.csv", tags=["comparisons"])
-def saved_table_csv(slug: str, engine: EngineDep) -> Response:
-    return _table_csv(_saved(engine, slug))
+def saved_table_csv(slug: str, engine: EngineDep, viewer: ViewerDep) -> Response:
+    return _table_csv(_saved(engine, slug, viewer))
 
 
 @router.get("/api/comparisons/{slug}/distinctive.csv", tags=["comparisons"])
-def saved_distinctive_csv(slug: str, engine: EngineDep) -> Response:
-    return _distinctive_csv(_saved(engine, slug))
+def saved_distinctive_csv(slug: str, engine: EngineDep, viewer: ViewerDep) -> Response:
+    return _distinctive_csv(_saved(engine, slug, viewer))

@@ -52,7 +52,7 @@ def upload(request: Request):
 @router.get("/corpora/{corpus_id}", response_class=HTMLResponse)
 def corpus_page(
     request: Request,
-    corpus_id: int,
+    corpus_id: api.CorpusId,
     engine: EngineDep,
     q: Annotated[str | None, Query(max_length=200)] = None,
     page: Annotated[int, Query(ge=1, le=10**7)] = 1,

@@ -1,0 +1,422 @@
+"""Lab mode and the security of every response: who is asking, the sign-in gate, CSRF, and security headers.
+
+Personal mode (the default while the store has no account): requests pass as they always did; only the
+security headers are added. Lab mode (as soon as the store has an account, or always with
+``LEXIGROWTH_MODE=lab``): every page and API route needs a signed-in member (session cookie) or an API token
+(``Authorization: Bearer ...``), except the sign-in page, ``/api/health``, static assets and comparisons
+their creator made public. Anonymous API calls get 401 JSON, anonymous pages a redirect to ``/login``.
+
+Sessions are signed cookies (itsdangerous, HMAC-SHA1 over the JSON; key from ``LEXIGROWTH_SECRET_KEY`` or a
+random key kept in the data folder with mode 0600): HttpOnly, SameSite=Lax, Secure over HTTPS. A session
+holds the member's id, a stamp of their password hash (a password change ends older sessions) and a CSRF
+token. Every state-changing request (POST, PUT, PATCH, DELETE) made with the session cookie must send that
+token, in the ``X-CSRF-Token`` header or the ``csrf_token`` form field (OWASP's synchronizer token pattern);
+requests with an API token need none, because a browser never adds that header by itself.
+"""
+
+from __future__ import annotations
+
+import base64
+import hashlib
+import hmac
+import ipaddress
+import logging
+import os
+import re
+import secrets
+from dataclasses import dataclass, field
+from typing import Annotated, Any
+from urllib.parse import quote
+
+from fastapi import APIRouter, Form, HTTPException, Request
+from fastapi.openapi.docs import get_redoc_html, get_swagger_ui_html
+from fastapi.responses import HTMLResponse, JSONResponse, RedirectResponse, Response
+from itsdangerous import BadData, URLSafeTimedSerializer
+from sqlalchemy.engine import Engine
+from starlette.concurrency import run_in_threadpool
+from starlette.datastructures import MutableHeaders
+from starlette.types import ASGIApp, Message, Receive, Scope, Send
+
+from app.config import Settings
+from app.store import accounts
+from app.store import comparisons as saved_comparisons
+from app.store.accounts import Member
+from app.web.pages import render
+
+log = logging.getLogger("lexigrowth.security")
+
+SESSION_COOKIE = "lexigrowth_session"
+SESSION_MAX_AGE = 14 * 24 * 3600  # a sign-in lasts two weeks
+MIN_KEY_CHARS = 32
+CSRF_HEADER = "x-csrf-token"
+CSRF_FIELD = "csrf_token"
+SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
+OPEN_PATHS = frozenset({"/login", "/api/health"})
+OPEN_PREFIXES = ("/static/",)
+# Anonymous visitors may open these when the comparison is public (the word lists stay hidden).
+PUBLIC_PERMALINK = re.compile(
+    r"/compare/([A-Za-z0-9_-]{16,86})|/api/comparisons/([A-Za-z0-9_-]{16,86})(?:/table\.csv)?"
+)
+FORM_TYPES = ("application/x-www-form-urlencoded", "multipart/form-data")
+
+# Plotly fills an empty <style> element through the CSS object model (which a policy does not restrict);
+# allowing exactly the empty element (this is the SHA-256 of "") lets it do that and nothing else inline.
+EMPTY_STYLE = "'sha256-47DEQpj8HBSa+/TImW+5JCeuQeRkm5NMpJWZG3hSuFU='"
+CONTENT_SECURITY_POLICY = "; ".join(
+    [
+        "default-src 'none'",
+        "script-src 'self'",
+        f"style-src 'self' {EMPTY_STYLE}",
+        "img-src 'self' blob:",  # plotly's PNG and SVG export draws the figure through a blob: image
+        "connect-src 'self'",
+        "font-src 'self'",
+        "form-action 'self'",
+        "frame-ancestors 'none'",
+        "base-uri 'none'",
+    ]
+)
+# The API documentation pages load Swagger UI and ReDoc from their CDN, as FastAPI serves them.
+DOCS_CDN = "https://cdn.jsdelivr.net"
+SECURITY_HEADERS = {
+    "content-security-policy": CONTENT_SECURITY_POLICY,
+    "x-content-type-options": "nosniff",
+    "referrer-policy": "same-origin",
+    "x-frame-options": "DENY",
+}
+
+
+# ------------------------------------------------------------------------------------------- viewer
+
+
+@dataclass
+class Viewer:
+    """Who is asking: in lab mode a member (by session or API token) or nobody; outside it, the owner."""
+
+    lab: bool
+    member: Member | None = None
+    via_token: bool = False
+    token_rejected: bool = False
+    session: dict[str, Any] = field(default_factory=dict)
+    session_changed: bool = False
+
+    @property
+    def anonymous(self) -> bool:
+        """Lab mode and nobody signed in (a visitor of a public permalink)."""
+        return self.lab and self.member is None
+
+    def csrf_token(self) -> str:
+        """The session's CSRF token (made on first use); empty outside lab mode, where none is checked."""
+        if not self.lab:
+            return ""
+        if not self.session.get("csrf"):
+            self.session = self.session | {"csrf": secrets.token_urlsafe(32)}
+            self.session_changed = True
+        return self.session["csrf"]
+
+    def csrf_matches(self, sent: str | None) -> bool:
+        return _same(self.session.get("csrf"), sent)
+
+    def sign_in(self, member: Member) -> None:
+        """A new session for ``member``, with a new CSRF token (nothing of the anonymous one is kept)."""
+        self.member = member
+        self.session = {"uid": member.id, "stamp": member.password_stamp, "csrf": secrets.token_urlsafe(32)}
+        self.session_changed = True
+
+    def sign_out(self) -> None:
+        self.member = None
+        self.session = {}
+        self.session_changed = True
+
+    def may_delete(self, owner_id: int | None) -> bool:
+        """Outside lab mode anyone; in it the owner of the corpus or an admin."""
+        if not self.lab:
+            return True
+        return self.member is not None and (self.member.is_admin or self.member.id == owner_id)
+
+
+def viewer_of(request: Request) -> Viewer:
+    return request.state.viewer
+
+
+def _same(expected: object, given: object) -> bool:
+    """Constant-time equality of two non-empty strings (any other value: False)."""
+    if not (isinstance(expected, str) and isinstance(given, str) and expected and given):
+        return False
+    return hmac.compare_digest(expected.encode(), given.encode())
+
+
+# ------------------------------------------------------------------------------------------ the guard
+
+
+def secret_key(settings: Settings) -> str:
+    """``LEXIGROWTH_SECRET_KEY``, else the random key in ``<data_dir>/secret_key``, created with mode 0600.
+
+    The file is written under another name and linked into place, so processes that start together all
+    read the same complete key.
+    """
+    if settings.secret_key:
+        return _long_enough(settings.secret_key, "LEXIGROWTH_SECRET_KEY")
+    path = settings.data_dir / "secret_key"
+    if not path.exists():
+        scratch = path.with_name(f".secret_key.{os.getpid()}.{secrets.token_hex(4)}")
+        descriptor = os.open(scratch, os.O_WRONLY | os.O_CREAT | os.O_EXCL, 0o600)
+        with os.fdopen(descriptor, "w") as out:
+            out.write(secrets.token_urlsafe(48))
+        try:
+            os.link(scratch, path)
+        except FileExistsError:
+            pass
+        finally:
+            scratch.unlink()
+    if path.stat().st_mode & 0o077:
+        log.warning("%s could be read by other users: making it private (mode 0600)", path)
+        path.chmod(0o600)
+    return _long_enough(path.read_text(encoding="ascii").strip(), f"{path} (delete it to make a new one)")
+
+
+def _long_enough(key: str, source: str) -> str:
+    if len(key) < MIN_KEY_CHARS:
+        raise RuntimeError(f"{source}: a session key needs at least {MIN_KEY_CHARS} characters")
+    return key
+
+
+def is_loopback(host: str) -> bool:
+    """Whether a listening address is reachable from this machine only."""
+    if host.lower() == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host.strip("[]")).is_loopback
+    except ValueError:
+        return False
+
+
+class Guard:
+    """Decides lab mode, identifies the viewer of a request and refuses what they may not see."""
+
+    def __init__(self, settings: Settings, engine: Engine) -> None:
+        self.engine = engine
+        self.trust_proxy = settings.trust_proxy
+        self._lab = settings.mode == "lab"
+        self._serializer = URLSafeTimedSerializer(secret_key(settings), salt="lexigrowth-session")
+
+    def lab_mode(self) -> bool:
+        """Lab mode, once on, stays on: accounts are never deleted."""
+        if not self._lab and accounts.any_account(self.engine):
+            self._lab = True
+        return self._lab
+
+    def is_https(self, request: Request) -> bool:
+        if request.url.scheme == "https":
+            return True
+        forwarded = request.headers.get("x-forwarded-proto", "").split(",")[0].strip().lower()
+        return self.trust_proxy and forwarded == "https"
+
+    def _session(self, cookie: str | None) -> dict[str, Any]:
+        if not cookie:
+            return {}
+        try:
+            data = self._serializer.loads(cookie, max_age=SESSION_MAX_AGE)
+        except BadData:  # forged, damaged or expired
+            return {}
+        return data if isinstance(data, dict) else {}
+
+    def identify(self, request: Request) -> Viewer:
+        """The viewer from an API token (which must be valid when sent) or the session cookie."""
+        if not self.lab_mode():
+            return Viewer(lab=False)
+        authorization = request.headers.get("authorization")
+        if authorization is not None:
+            scheme, _, token = authorization.partition(" ")
+            token = token.strip()
+            member = (
+                accounts.member_by_token(self.engine, token) if scheme.lower() == "bearer" and token else None
+            )
+            return Viewer(lab=True, member=member, via_token=True, token_rejected=member is None)
+        viewer = Viewer(lab=True, session=self._session(request.cookies.get(SESSION_COOKIE)))
+        uid = viewer.session.get("uid")
+        if isinstance(uid, int):
+            member = accounts.member_by_id(self.engine, uid)
+            if member is not None and _same(member.password_stamp, viewer.session.get("stamp")):
+                viewer.member = member
+            else:  # the account's password changed since: forget the sign-in
+                viewer.session, viewer.session_changed = {}, True
+        return viewer
+
+    def refusal(self, viewer: Viewer, request: Request) -> Response | None:
+        """None when the viewer may go on, else the 401 (API) or the redirect to the sign-in page."""
+        if viewer.token_rejected:
+            return _unauthorized("unknown or revoked API token")
+        if not viewer.anonymous:
+            return None
+        path = request.scope["path"]
+        if path in OPEN_PATHS or path.startswith(OPEN_PREFIXES):
+            return None
+        permalink = PUBLIC_PERMALINK.fullmatch(path)
+        if (
+            permalink
+            and request.method in ("GET", "HEAD")
+            and saved_comparisons.is_public(self.engine, permalink.group(1) or permalink.group(2))
+        ):
+            return None
+        if path.startswith("/api/") or path == "/openapi.json":
+            return _unauthorized("sign in, or send an API token (Authorization: Bearer ...)")
+        target = path + (f"?{request.url.query}" if request.url.query else "")
+        return RedirectResponse(f"/login?next={quote(target, safe='/')}", status_code=303)
+
+    def check(self, request: Request) -> tuple[Viewer, Response | None]:
+        viewer = self.identify(request)
+        return viewer, self.refusal(viewer, request)
+
+    def cookie(self, viewer: Viewer, https: bool) -> str:
+        """The Set-Cookie value that stores (or, when empty, removes) the viewer's session."""
+        attributes = "Path=/; HttpOnly; SameSite=Lax" + ("; Secure" if https else "")
+        if not viewer.session:
+            return f"{SESSION_COOKIE}=; Max-Age=0; {attributes}"
+        value = self._serializer.dumps(viewer.session)
+        return f"{SESSION_COOKIE}={value}; Max-Age={SESSION_MAX_AGE}; {attributes}"
+
+
+def _unauthorized(detail: str) -> JSONResponse:
+    return JSONResponse({"detail": detail}, status_code=401, headers={"WWW-Authenticate": "Bearer"})
+
+
+class SecurityMiddleware:
+    """Identifies the viewer (``request.state.viewer``), applies the sign-in gate, writes the session cookie
+    and adds the security headers to every response (a response's own Content-Security-Policy is kept)."""
+
+    def __init__(self, app: ASGIApp, guard: Guard) -> None:
+        self.app = app
+        self.guard = guard
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] != "http":
+            await self.app(scope, receive, send)
+            return
+        request = Request(scope)
+        viewer, refusal = await run_in_threadpool(self.guard.check, request)
+        scope.setdefault("state", {})["viewer"] = viewer
+        static = scope["path"].startswith(OPEN_PREFIXES)
+
+        async def send_secured(message: Message) -> None:
+            if message["type"] == "http.response.start":
+                headers = MutableHeaders(scope=message)
+                for name, value in SECURITY_HEADERS.items():
+                    if name not in headers:
+                        headers[name] = value
+                if viewer.lab and not static and "cache-control" not in headers:
+                    headers["cache-control"] = "no-store"  # members' pages stay out of shared caches
+                if viewer.session_changed:
+                    headers.append("set-cookie", self.guard.cookie(viewer, self.guard.is_https(request)))
+            await send(message)
+
+        await (refusal or self.app)(scope, receive, send_secured)
+
+
+# --------------------------------------------------------------------------------------------- CSRF
+
+
+async def csrf_protect(request: Request) -> None:
+    """Dependency of every route: a state-changing request made with the lab session cookie must carry the
+    session's CSRF token (header or form field); 403 otherwise. Nothing is checked outside lab mode."""
+    viewer = viewer_of(request)
+    if request.method in SAFE_METHODS or not viewer.lab or viewer.via_token:
+        return
+    sent = request.headers.get(CSRF_HEADER)
+    if sent is None and request.headers.get("content-type", "").startswith(FORM_TYPES):
+        sent = (await request.form()).get(CSRF_FIELD)
+    if not viewer.csrf_matches(sent if isinstance(sent, str) else None):
+        raise HTTPException(
+            status_code=403, detail="missing or wrong CSRF token: reload the page and try again"
+        )
+
+
+# ------------------------------------------------------------------------------------ sign in and out
+
+router = APIRouter(include_in_schema=False)
+
+
+def safe_next(target: str | None) -> str:
+    """A local path to go to after signing in ("/" for anything else: no open redirect)."""
+    if not target or not target.startswith("/") or target.startswith(("//", "/\\")) or "\\" in target:
+        return "/"
+    return "/" if target.split("?")[0] in ("/login", "/logout") else target
+
+
+@router.get("/login", response_class=HTMLResponse)
+def login_page(request: Request, next: str | None = None):
+    if not viewer_of(request).lab:
+        return RedirectResponse("/", status_code=303)  # personal mode: nobody signs in
+    return render(request, "login.html", next=safe_next(next), member_name="", error=None, json_url=None)
+
+
+@router.post("/login", response_class=HTMLResponse)
+def login(
+    request: Request,
+    name: Annotated[str, Form(max_length=64)],
+    password: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    next: Annotated[str, Form(max_length=2000)] = "/",
+):
+    viewer = viewer_of(request)
+    if not viewer.lab:
+        return RedirectResponse("/", status_code=303)
+    member = accounts.authenticate(request.app.state.engine, name, password)
+    if member is None:
+        log.info("failed sign-in from %s", request.client.host if request.client else "unknown address")
+        return render(
+            request,
+            "login.html",
+            status_code=401,
+            next=safe_next(next),
+            member_name=name,
+            error="Wrong name or password.",
+            json_url=None,
+        )
+    viewer.sign_in(member)
+    log.info("%s signed in", member.name)
+    return RedirectResponse(safe_next(next), status_code=303)
+
+
+@router.post("/logout")
+def logout(request: Request) -> RedirectResponse:
+    viewer_of(request).sign_out()
+    return RedirectResponse("/login", status_code=303)
+
+
+# ------------------------------------------------------------------------------- API documentation
+
+
+def _hashes(html: str, tag: str) -> str:
+    """CSP sources for the inline ``<tag>`` elements (without src) of a page we serve as it is."""
+    bodies = re.findall(rf"<{tag}>(.*?)</{tag}>", html, flags=re.S)
+    return " ".join(
+        f"'sha256-{base64.b64encode(hashlib.sha256(b.encode()).digest()).decode()}'" for b in bodies
+    )
+
+
+def _documentation(page: HTMLResponse) -> HTMLResponse:
+    """FastAPI's documentation page with a policy allowing its CDN and exactly its own inline code."""
+    html = page.body.decode()
+    page.headers["content-security-policy"] = "; ".join(
+        [
+            "default-src 'none'",
+            f"script-src 'self' {DOCS_CDN} {_hashes(html, 'script')}",
+            f"style-src 'self' {DOCS_CDN} https://fonts.googleapis.com 'unsafe-inline'",
+            "img-src 'self' data: https:",
+            "font-src https://fonts.gstatic.com",
+            "connect-src 'self'",
+            "worker-src blob:",
+            "frame-ancestors 'none'",
+            "base-uri 'none'",
+        ]
+    )
+    return page
+
+
+@router.get("/docs")
+def swagger_ui(request: Request) -> HTMLResponse:
+    return _documentation(get_swagger_ui_html(openapi_url=request.app.openapi_url, title="Lexigrowth API"))
+
+
+@router.get("/redoc")
+def redoc(request: Request) -> HTMLResponse:
+    return _documentation(get_redoc_html(openapi_url=request.app.openapi_url, title="Lexigrowth API"))

@@ -1,0 +1,182 @@
+"""Load test of a running server: simulated users browsing the Library, Corpus and Comparison pages.
+
+Usage: ``python benchmarks/load.py [--url http://127.0.0.1:8000] [--users 20] [--duration 60]
+[--timeout 30]``
+
+The server must hold at least two corpora (``lexigrowth serve`` loads the demo corpora into an empty store).
+Each user is a thread with its own HTTP connection (kept alive, as a browser does) and requests, in a loop
+and without pause, the Library (``/``), a Corpus page (``/corpora/{id}``, the corpora in turn) and a
+Comparison page (``/compare?corpus=..``, the live view of two or three corpora, in turn); users start at
+different corpora. A user sends its next request when the previous one is answered (a closed loop), so
+the load adapts to the server: the numbers to read are the latencies and the absence of errors at that
+concurrency. No new request starts after ``--duration`` seconds; those under way are waited for.
+
+An error is any answer other than 200 or a transport failure (refused connection, timeout). The output is
+a Markdown table: per page and overall, requests, errors and the 50th, 95th and 99th percentile latency
+in milliseconds (linear interpolation between order statistics, numpy.percentile's default), with the
+throughput. Client and server share the machine when run on loopback: the latencies include the client's
+own share of the CPU. Exit code: 0 without errors, 1 with any error, 2 if the server cannot be used.
+"""
+
+from __future__ import annotations
+
+import argparse
+import math
+import sys
+import threading
+import time
+from collections.abc import Sequence
+from dataclasses import dataclass
+
+import httpx
+
+PAGES = ("library", "corpus", "comparison")
+PERCENTILES = (50, 95, 99)
+
+
+@dataclass(frozen=True)
+class Sample:
+    """One request: which page, how long until the whole answer was read, and the error if any."""
+
+    page: str
+    seconds: float
+    error: str | None = None
+
+
+@dataclass(frozen=True)
+class Row:
+    """Summary of one page (or of all pages): requests, errors and latency percentiles in milliseconds."""
+
+    page: str
+    requests: int
+    errors: int
+    percentiles_ms: tuple[float, ...]
+
+
+def percentile(values: Sequence[float], q: float) -> float:
+    """The q-th percentile (0 <= q <= 100) by linear interpolation between the order statistics x_(1) <=
+    ... <= x_(n): at h = (n - 1) q / 100, x_(floor h) + (h - floor h)(x_(floor h + 1) - x_(floor h)), counting
+    from 0 (Hyndman and Fan's definition 7, the default of numpy.percentile). NaN for no values."""
+    if not values:
+        return math.nan
+    ordered = sorted(values)
+    h = (len(ordered) - 1) * q / 100
+    low = math.floor(h)
+    high = min(low + 1, len(ordered) - 1)
+    return ordered[low] + (h - low) * (ordered[high] - ordered[low])
+
+
+def comparison_sets(ids: Sequence[int]) -> list[list[int]]:
+    """Groups of two and three consecutive corpora (wrapping round), one starting at each corpus."""
+    return [[ids[(start + k) % len(ids)] for k in range(2 + start % 2)] for start in range(len(ids))]
+
+
+def user_urls(ids: Sequence[int], user: int) -> list[tuple[str, str]]:
+    """The (page, URL) loop of one user: for each corpus in turn, the Library, its page and a comparison."""
+    groups = comparison_sets(ids)
+    loop = []
+    for step in range(len(ids)):
+        at = (user + step) % len(ids)
+        query = "&".join(f"corpus={cid}" for cid in groups[at])
+        loop += [("library", "/"), ("corpus", f"/corpora/{ids[at]}"), ("comparison", f"/compare?{query}")]
+    return loop
+
+
+def run_user(base_url: str, urls: list[tuple[str, str]], deadline: float, timeout: float) -> list[Sample]:
+    """Request ``urls`` in a loop until ``deadline`` (time.monotonic) and return every request's sample."""
+    samples: list[Sample] = []
+    with httpx.Client(base_url=base_url, timeout=timeout) as client:
+        while True:
+            for page, url in urls:
+                if time.monotonic() >= deadline:
+                    return samples
+                started = time.perf_counter()
+                try:
+                    response = client.get(url)
+                    error = None if response.status_code == 200 else f"HTTP {response.status_code} {url}"
+                except httpx.HTTPError as exc:
+                    error = f"{type(exc).__name__} {url}"
+                samples.append(Sample(page, time.perf_counter() - started, error))
+
+
+def run_load(base_url: str, ids: Sequence[int], users: int, duration: float, timeout: float) -> list[Sample]:
+    """``users`` threads running ``run_user`` together for ``duration`` seconds; all their samples."""
+    deadline = time.monotonic() + duration
+    results: list[list[Sample]] = [[] for _ in range(users)]
+
+    def user(index: int) -> None:
+        results[index] = run_user(base_url, user_urls(ids, index), deadline, timeout)
+
+    threads = [threading.Thread(target=user, args=(i,), name=f"user-{i}") for i in range(users)]
+    for thread in threads:
+        thread.start()
+    for thread in threads:
+        thread.join()
+    return [sample for samples in results for sample in samples]
+
+
+def summarize(samples: Sequence[Sample]) -> list[Row]:
+    """One row per page, in PAGES order, then "all"."""
+    groups = [(page, [s for s in samples if s.page == page]) for page in PAGES] + [("all", list(samples))]
+    return [
+        Row(
+            page,
+            len(group),
+            sum(s.error is not None for s in group),
+            tuple(percentile([1000 * s.seconds for s in group], q) for q in PERCENTILES),
+        )
+        for page, group in groups
+    ]
+
+
+def format_table(rows: Sequence[Row]) -> str:
+    header = ["page", "requests", "errors", *(f"p{q} ms" for q in PERCENTILES)]
+    lines = ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
+    for row in rows:
+        cells = [row.page, f"{row.requests:,}", f"{row.errors:,}", *(f"{v:,.0f}" for v in row.percentiles_ms)]
+        lines.append("| " + " | ".join(cells) + " |")
+    return "\n".join(lines)
+
+
+def corpus_ids(base_url: str, timeout: float) -> list[int]:
+    response = httpx.get(f"{base_url}/api/corpora", timeout=timeout)
+    response.raise_for_status()
+    return [c["id"] for c in response.json()]
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
+    parser.add_argument("--url", default="http://127.0.0.1:8000", help="the server (default: %(default)s)")
+    parser.add_argument("--users", type=int, default=20, help="simulated users (default: %(default)s)")
+    parser.add_argument("--duration", type=float, default=60, help="seconds of load (default: %(default)s)")
+    parser.add_argument(
+        "--timeout", type=float, default=30, help="seconds per request (default: %(default)s)"
+    )
+    args = parser.parse_args(argv)
+    if args.users < 1 or args.duration <= 0 or args.timeout <= 0:
+        parser.error("--users, --duration and --timeout must be positive")
+    base_url = args.url.rstrip("/")
+    try:
+        ids = corpus_ids(base_url, args.timeout)
+    except (httpx.HTTPError, ValueError, KeyError) as exc:
+        print(f"error: cannot list the corpora of {base_url}: {exc}", file=sys.stderr)
+        return 2
+    if len(ids) < 2:
+        print(f"error: {base_url} holds {len(ids)} corpora; a comparison needs at least 2", file=sys.stderr)
+        return 2
+
+    started = time.monotonic()
+    samples = run_load(base_url, ids, args.users, args.duration, args.timeout)
+    wall = time.monotonic() - started
+    rows = summarize(samples)
+    print(f"{args.users} users for {args.duration:g} s against {base_url} ({len(ids)} corpora)\n")
+    print(format_table(rows))
+    print(f"\n{len(samples):,} requests in {wall:.1f} s: {len(samples) / wall:.1f} requests/s")
+    errors = [s.error for s in samples if s.error]
+    for message in sorted(set(errors))[:10]:
+        print(f"error: {message} (x{errors.count(message)})", file=sys.stderr)
+    return 1 if errors else 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

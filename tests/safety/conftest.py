@@ -1,0 +1,35 @@
+"""Fixtures of the safety tests: generated texts of known counts."""
+
+from __future__ import annotations
+
+import pytest
+
+from tests.safety.generated import GeneratedText, write_text
+
+# About 20 MB: counting takes a few seconds on two cores and the store writes 1.5 million word rows.
+BIG_TEXT_TOKENS = 3_000_000
+BIG_TEXT_NEW_WORD_EVERY = 2
+BIG_TEXT_MIN_LETTERS = 6
+
+
+@pytest.fixture(scope="session")
+def medium_text(tmp_path_factory) -> GeneratedText:
+    """About 3 MB: stored within seconds, and its models take seconds more to fit."""
+    return write_text(
+        tmp_path_factory.mktemp("texts") / "medium.txt",
+        400_000,
+        new_word_every=2,
+        min_letters=6,
+        random_state=3,
+    )
+
+
+@pytest.fixture(scope="session")
+def big_text(tmp_path_factory) -> GeneratedText:
+    return write_text(
+        tmp_path_factory.mktemp("texts") / "big.txt",
+        BIG_TEXT_TOKENS,
+        new_word_every=BIG_TEXT_NEW_WORD_EVERY,
+        min_letters=BIG_TEXT_MIN_LETTERS,
+        random_state=1,
+    )
