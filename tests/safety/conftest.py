@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import os
+
 import pytest
 
 from tests.safety.generated import GeneratedText, write_text
@@ -10,6 +12,14 @@ from tests.safety.generated import GeneratedText, write_text
 BIG_TEXT_TOKENS = 3_000_000
 BIG_TEXT_NEW_WORD_EVERY = 2
 BIG_TEXT_MIN_LETTERS = 6
+
+
+@pytest.fixture(autouse=True)
+def no_lexigrowth_environment(monkeypatch):
+    """The apps made in the tests read no LEXIGROWTH_* variable of the caller (lab mode would answer 401
+    to every request, and the fuzz tests would then pass without reaching a single route)."""
+    for name in [n for n in os.environ if n.startswith("LEXIGROWTH_")]:
+        monkeypatch.delenv(name)
 
 
 @pytest.fixture(scope="session")

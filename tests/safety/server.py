@@ -80,8 +80,10 @@ def start_server(
     data_dir.mkdir(parents=True, exist_ok=True)
     port = free_port()
     log_path = data_dir.parent / f"server-{port}.log"
-    env = os.environ | {"LEXIGROWTH_LOAD_DEMO": "true" if load_demo else "false"} | (extra_env or {})
-    env.pop("LEXIGROWTH_DATABASE_URL", None)  # the store is the SQLite file in data_dir
+    # None of the caller's LEXIGROWTH_* settings (a database URL, lab mode...): the store is the SQLite
+    # file in data_dir, in personal mode.
+    env = {name: value for name, value in os.environ.items() if not name.startswith("LEXIGROWTH_")}
+    env |= {"LEXIGROWTH_LOAD_DEMO": "true" if load_demo else "false"} | (extra_env or {})
     with log_path.open("wb") as log:
         process = subprocess.Popen(
             [*serve_command(), "--host", "127.0.0.1", "--port", str(port), "--data-dir", str(data_dir)],

@@ -38,8 +38,6 @@ KNOWN_SERVER_ERRORS = {
 }
 
 
-# Loaded when the module is collected: one test per operation. (schemathesis.pytest.from_fixture, which
-# would load them from a fixture, fails on pytest 9: it sets Function._nodeid, which pytest 9 removed.)
 def with_file_parts(document: dict) -> dict:
     """The document with each optional list of files (FastAPI writes ``anyOf: [array of binary, null]``)
     declared as the array itself: schemathesis sends a multipart part as a file only for a property that is
@@ -57,6 +55,8 @@ def with_file_parts(document: dict) -> dict:
     return document
 
 
+# Loaded when the module is collected: one test per operation. (schemathesis.pytest.from_fixture, which
+# would load them from a fixture, fails on pytest 9: it sets Function._nodeid, which pytest 9 removed.)
 api_schema = schemathesis.openapi.from_dict(with_file_parts(api_document()))
 pages_schema = schemathesis.openapi.from_dict(pages_document())
 # The ids and slug of the store the running test uses, for the hooks (set by the ``template`` fixture).
