@@ -12,7 +12,7 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
-from app.web.figures import axis, band, colour, figure, line, translucent
+from app.web.figures import axis, band, colour, figure, line, translucent, vertical_line
 
 LOG_AXIS_RATIO = 20  # tokens on a log axis when the smallest corpus would fill less than 1/20 of the width
 SHADE_ALL = "rgba(120,130,150,0.13)"
@@ -107,16 +107,7 @@ def _shade(x0: float, x1: float, fill: str, label: str, anchor: str) -> tuple[di
 
 def _marker(x: float, label: str) -> tuple[dict, dict]:
     """A dotted vertical line at ``x``, labelled at the bottom of the plot."""
-    shape = {
-        "type": "line",
-        "xref": "x",
-        "yref": "paper",
-        "x0": x,
-        "x1": x,
-        "y0": 0,
-        "y1": 1,
-        "line": {"color": MUTED, "width": 1, "dash": "dot"},
-    }
+    shape = vertical_line(x, MUTED)
     note = {
         "x": x,
         "xref": "x",

@@ -108,6 +108,20 @@ def extrapolation_shading(start: float, end: float) -> dict[str, Any]:
     }
 
 
+def vertical_line(x: float, colour_hex: str, width: float = 1) -> dict[str, Any]:
+    """A dotted vertical line across the plot at ``x`` (a layout shape)."""
+    return {
+        "type": "line",
+        "xref": "x",
+        "yref": "paper",
+        "x0": x,
+        "x1": x,
+        "y0": 0,
+        "y1": 1,
+        "line": {"color": colour_hex, "width": width, "dash": "dot"},
+    }
+
+
 def spectrum_bars(
     pairs: list[tuple[int, int]], models: dict[str, list[float]] | None = None, k_max: int = 20
 ):
@@ -187,18 +201,7 @@ def growth_lines(
             layout = extrapolation_shading(corpus_tokens, horizon)
     if marker:
         x, label = marker
-        layout.setdefault("shapes", []).append(
-            {
-                "type": "line",
-                "xref": "x",
-                "yref": "paper",
-                "x0": x,
-                "x1": x,
-                "y0": 0,
-                "y1": 1,
-                "line": {"color": "#CC79A7", "width": 2, "dash": "dot"},
-            }
-        )
+        layout.setdefault("shapes", []).append(vertical_line(x, "#CC79A7", 2))
         layout.setdefault("annotations", []).append(
             {
                 "x": x,
