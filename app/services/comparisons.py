@@ -54,7 +54,7 @@ MODEL_ERRORS = (ValueError, ArithmeticError, KeyError, np.linalg.LinAlgError)
 
 CAUTION = (
     "Vocabulary statistics alone are not evidence of authorship or misconduct. Differences in vocabulary "
-    "also come from topic, register, genre, editing, transcription and tokenization; read them as a "
+    "also come from topic, register, genre, editing, copying and tokenization; read them as a "
     "description of the texts, never as proof about the people who wrote them."
 )
 SPREAD_NOTE = (
