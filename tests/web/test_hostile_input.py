@@ -108,8 +108,13 @@ def test_degenerate_texts_are_stored_and_pages_still_work(client, text):
         == 1
     )
     far = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 10**6})
-    assert far.status_code in (200, 422) and "detail" in far.json() or far.json()["types"] >= 1
-    assert client.get(f"/api/corpora/{cid}/plan", params={"types": 5}).status_code in (200, 422)
+    # Either a model extrapolates (at least the one type seen) or the answer says why none can.
+    if far.status_code == 200:
+        assert far.json()["types"] >= 1
+    else:
+        assert far.status_code == 422 and far.json()["detail"]
+    planned = client.get(f"/api/corpora/{cid}/plan", params={"types": 5})
+    assert planned.status_code == 200 or (planned.status_code == 422 and planned.json()["detail"])
 
 
 def test_absurd_parameters_are_refused(client):
