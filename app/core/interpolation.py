@@ -42,20 +42,82 @@ def _check_size(spectrum: Spectrum, n: float) -> int:
     return N
 
 
+DENSE_TERMS = 1 << 20
+"""Terms of ``_log_miss`` summed one by one (an array of this many floats); beyond, in pieces."""
+DIRECT_TERMS = 256
+"""Pieces shorter than this, or this close to the pole at j = N - n, are summed term by term."""
+
+
 def _log_miss(N: int, n: int, m: np.ndarray) -> np.ndarray:
     """log C(N - m, n) / C(N, n) = sum_{j<m} log(1 - n / (N - j)), -inf where m > N - n.
 
-    Summed term by term (cumulatively up to the largest m) instead of as a difference of log-gamma values,
-    which would lose about eps * N log N in absolute terms and spoil E[V(n)] at small n on huge corpora.
+    Summed term by term (cumulatively up to the largest m, or up to ``DENSE_TERMS``) instead of as a
+    difference of log-gamma values, which would lose about eps * N log N in absolute terms and spoil
+    E[V(n)] at small n on huge corpora. Frequencies beyond ``DENSE_TERMS`` (only in corpora of many
+    millions of tokens, or absurd designs) continue from there with ``_sum_log_miss_terms``, so memory and
+    time stay bounded whatever m.
     """
     m = np.asarray(m, dtype=np.int64)
     if m.size == 0:
         return np.zeros(0)
     reachable = m <= N - n
-    top = int(min(m.max(), N - n))
-    j = np.arange(top, dtype=float)
+    clipped = np.minimum(m, N - n)
+    top = int(clipped.max())
+    dense_top = min(top, DENSE_TERMS)
+    j = np.arange(dense_top, dtype=float)
     cumulative = np.concatenate([[0.0], np.cumsum(np.log1p(-n / (N - j)))])
-    return np.where(reachable, cumulative[np.minimum(m, top)], -np.inf)
+    values = cumulative[np.minimum(clipped, dense_top)]
+    if top > dense_top:
+        far = clipped > dense_top
+        stops = np.unique(clipped[far])
+        starts = np.concatenate([[dense_top], stops[:-1]])
+        pieces = [_sum_log_miss_terms(N, n, int(a), int(b)) for a, b in zip(starts, stops, strict=True)]
+        sums = cumulative[-1] + np.cumsum(pieces)
+        values[far] = sums[np.searchsorted(stops, clipped[far])]
+    return np.where(reachable, values, -np.inf)
+
+
+def _sum_log_miss_terms(N: int, n: int, a: int, b: int) -> float:
+    """sum_{a <= j < b} log(1 - n / (N - j)), for 0 <= a <= b <= N - n.
+
+    The terms have a pole at j = N - n. The range is cut into pieces [a, c) whose distance to the pole
+    at their end is at least their length (c <= (N - n + a) / 2); each is summed by the Euler-Maclaurin
+    formula (``_euler_maclaurin_log_miss``), and the last few hundred terms before b one by one.
+    """
+    total = 0.0
+    while b - a > DIRECT_TERMS:
+        c = min(b, (N - n + a) // 2)
+        if c - a < DIRECT_TERMS:
+            break
+        total += _euler_maclaurin_log_miss(N, n, a, c)
+        a = c
+    j = np.arange(a, b, dtype=float)
+    return total + float(np.sum(np.log1p(-n / (N - j))))
+
+
+def _euler_maclaurin_log_miss(N: int, n: int, a: int, b: int) -> float:
+    """sum_{a <= j < b} f(j), f(j) = log(1 - n / (N - j)), by the Euler-Maclaurin formula, for
+    N - n - b >= b - a >= 256.
+
+    sum_{j=a}^{b-1} f(j) = int_a^b f + (f(a) - f(b)) / 2 + (f1(b) - f1(a)) / 12 - (f3(b) - f3(a)) / 720
+    + R, with f1, f3 the first and third derivatives (Abramowitz and Stegun 23.1.30). With u = N - x:
+    int_a^b f = G(N - a) - G(N - b), G(u) = u log(1 - n/u) - n log(u - n); f1 = -n / (u (u - n));
+    f3 = 2 (u^-3 - (u - n)^-3). Differences are written without cancellation (log1p); with u - n >= 256
+    the remainder is far below double precision of the sum.
+    """
+    ua, ub = float(N - a), float(N - b)
+
+    def f(u: float) -> float:
+        return float(np.log1p(-n / u))
+
+    def f1(u: float) -> float:
+        return -n / (u * (u - n))
+
+    def f3(u: float) -> float:
+        return 2.0 * (u**-3 - (u - n) ** -3)
+
+    integral = ua * f(ua) - ub * f(ub) - n * float(np.log1p((b - a) / (ub - n)))
+    return integral + (f(ua) - f(ub)) / 2 + (f1(ub) - f1(ua)) / 12 - (f3(ub) - f3(ua)) / 720
 
 
 def prob_type_unseen(spectrum: Spectrum, n: int) -> np.ndarray:

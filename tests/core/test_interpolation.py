@@ -7,6 +7,7 @@ that every Python installation carries (module docstrings of the standard librar
 from __future__ import annotations
 
 import re
+from fractions import Fraction
 from functools import lru_cache
 
 import numpy as np
@@ -14,11 +15,13 @@ import pytest
 from scipy.stats import hypergeom
 
 from app.core.interpolation import (
+    _log_miss,
     expected_spectrum,
     expected_spectrum_binomial,
     expected_types,
     expected_types_binomial,
     growth_band,
+    prob_type_unseen,
     types_band,
     variance_types,
 )
@@ -142,3 +145,44 @@ def test_rejects_sizes_beyond_the_corpus() -> None:
     spectrum = Spectrum.from_frequencies(SMALL_FREQUENCIES)
     with pytest.raises(ValueError):
         expected_types(spectrum, spectrum.tokens + 1)
+
+
+# Frequencies far beyond the dense cumulative sum (a corpus of 10^9 tokens, an absurd uniform design) take
+# the piecewise Euler-Maclaurin route; the reference is mpmath's log-gamma at 40 significant digits:
+# log C(N-m, n) / C(N, n) = lgamma(N-m+1) - lgamma(N-m-n+1) - lgamma(N+1) + lgamma(N-n+1).
+@pytest.mark.parametrize(
+    ("frequencies", "n_from_end"),
+    [
+        ([1, 5, 2**20 + 7, 3 * 10**8, 7 * 10**8], None),  # n = 1
+        ([3, 2**21, 5 * 10**8, 5 * 10**8 + 7], None),
+        ([10**9, 10**6 + 300], 10**9 + 300),  # m = 10^9 lies 300 tokens before the pole N - n
+        ([2**20 + 3, 9_999_743, 10**7], 10**7 + 1),  # m = 10^7 lies one token before it
+    ],
+)
+def test_miss_probability_of_huge_frequencies_matches_mpmath(
+    frequencies: list[int], n_from_end: int | None
+) -> None:
+    mpmath = pytest.importorskip("mpmath")
+    mpmath.mp.dps = 40
+    spectrum = Spectrum.from_frequencies(np.array(frequencies))
+    N = spectrum.tokens
+    n = 1 if n_from_end is None else N - n_from_end
+    got = _log_miss(N, n, spectrum.m)
+    for m, value in zip(spectrum.m.tolist(), got, strict=True):
+        reference = float(
+            mpmath.loggamma(N - m + 1)
+            - mpmath.loggamma(N - m - n + 1)
+            - mpmath.loggamma(N + 1)
+            + mpmath.loggamma(N - n + 1)
+        )
+        assert value == pytest.approx(reference, rel=1e-11), m
+
+
+def test_miss_probability_beyond_the_sample_complement_is_zero() -> None:
+    # C(N - m, n) = 0 when m > N - n: every sample of n tokens holds the type (scipy.stats.hypergeom agrees).
+    spectrum = Spectrum.from_frequencies(np.array([10**9 - 5, 2]))
+    N = spectrum.tokens
+    unseen = dict(zip(spectrum.m.tolist(), prob_type_unseen(spectrum, 10).tolist(), strict=True))
+    assert unseen[10**9 - 5] == 0.0 == hypergeom.pmf(0, N, 10**9 - 5, 10)
+    # C(N-2, 10) / C(N, 10) = (N-10)(N-11) / (N(N-1)) exactly (scipy's log-gamma form is off by 2e-8 here).
+    assert unseen[2] == pytest.approx(float(Fraction((N - 10) * (N - 11), N * (N - 1))), rel=1e-15)

@@ -4,8 +4,7 @@ Two OpenAPI documents drive it: the app's own (``/openapi.json``, the JSON API) 
 and forms, which the app leaves out of its own (tests/safety/apps.py builds it with FastAPI's get_openapi).
 Every operation of both gets schemathesis' coverage cases (boundary and just-out-of-range values, wrong
 types, missing and unexpected parameters, other methods) and ``EXAMPLES_PER_OPERATION`` generated cases,
-derandomized. No operation is left out; the one with a known, reported server error is a strict xfail
-(see ``KNOWN_SERVER_ERRORS``).
+derandomized. No operation is left out.
 
 The store holds two corpora of real English (docstrings of the standard library) and one saved
 comparison; each operation runs on its own copy of it, so that ``DELETE /api/corpora/{corpus_id}`` cannot
@@ -31,11 +30,6 @@ from tests.safety.apps import TemplateStore, api_document, app_on_copy, build_te
 EXAMPLES_PER_OPERATION = 25
 UPLOAD_NAME = "fuzzed upload"
 MEMORY_CAP_BYTES = 4 << 30
-KNOWN_SERVER_ERRORS = {
-    # app/core/interpolation.py, _log_miss: an array of min(max m, N - n) floats. The uniform design with
-    # types=1, repeats=10^9 asks for 7.5 GB: a MemoryError (500) under the cap, the process killed without.
-    "POST /api/estimate/uniform": "the exact uniform expectation allocates memory in proportion to repeats",
-}
 
 
 def with_file_parts(document: dict) -> dict:
@@ -145,15 +139,6 @@ def memory_cap():
     resource.setrlimit(resource.RLIMIT_AS, (cap, hard))
     yield
     resource.setrlimit(resource.RLIMIT_AS, (soft, hard))
-
-
-@pytest.fixture(autouse=True)
-def known_server_error(request):
-    """The test of an operation with a known, reported server error is a strict xfail: it fails (XPASS)
-    as soon as the bug is fixed, so that its entry is removed then."""
-    for label, reason in KNOWN_SERVER_ERRORS.items():
-        if request.node.name.endswith(f"[{label}]"):
-            request.node.add_marker(pytest.mark.xfail(reason=reason, strict=True))
 
 
 FUZZ_SETTINGS = hypothesis.settings(
