@@ -56,7 +56,7 @@ GROWTH_LOG_POINTS = 150
 GROWTH_LINEAR_POINTS = 150
 TYPE_ID_DTYPE = np.dtype("<i4")
 _READ_SLICE = 1 << 20
-BATCH_CHUNKS = 4
+BATCH_CHUNKS = 2
 """Chunks of text per batch sent to an engine: bigger batches mean fewer types to merge here, smaller
 ones spread the work more evenly (and keep the workers' token lists in cache)."""
 _SOURCE_SEPARATOR = "\n"

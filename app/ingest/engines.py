@@ -18,8 +18,8 @@ In both parallel engines at most ``IN_FLIGHT_PER_WORKER`` batches per worker are
 merged, so memory stays bounded whatever the size of the corpus, and results are merged in submission
 order.
 
-Worker processes import this module to run ``count_batch``: keep its imports light (numpy, regex and the
-standard library; Dask only inside the dask engine).
+Worker processes import this module to run ``count_batch``: keep its imports light (numpy and the
+standard library; polars only where a batch is counted, Dask only inside the dask engine).
 """
 
 from __future__ import annotations
@@ -32,7 +32,6 @@ from concurrent.futures import ProcessPoolExecutor
 from contextlib import ExitStack, contextmanager
 from dataclasses import dataclass
 from functools import lru_cache, partial
-from itertools import count
 from typing import Any, Literal, TypeVar, get_args
 
 import numpy as np
@@ -88,24 +87,29 @@ def _tokenizer(profile: TokenizationProfile) -> Tokenizer:
 
 def count_batch(pieces: Sequence[str], profile: TokenizationProfile) -> BatchCounts:
     """Tokenize each piece under ``profile`` and number the types of the batch in order of first
-    occurrence (the pieces are consecutive parts of one text, each cut at a safe boundary)."""
+    occurrence (the pieces are consecutive parts of one text, each cut at a safe boundary).
+
+    Tokens never become Python objects: polars groups them by word (keeping the order of first
+    occurrence and the first position) and joins every token to its word's local id, in native code.
+    """
+    import polars as pl  # here: the process that merges batches counted elsewhere never loads it
+
     tokenizer = _tokenizer(profile)
-    first_of: dict[str, int] = {}
-    token_first: list[np.ndarray] = []
-    tokens_before = 0
-    for piece in pieces:
-        tokens = tokenizer.tokens(piece)
-        # One C-level pass: setdefault keeps the position where each word was first seen, so every
-        # token gets the first position of its word.
-        positions = map(first_of.setdefault, tokens, count(tokens_before))
-        token_first.append(np.fromiter(positions, dtype=LOCAL_DTYPE, count=len(tokens)))
-        tokens_before += len(tokens)
-    first = np.fromiter(first_of.values(), dtype=LOCAL_DTYPE, count=len(first_of))
+    tokens = pl.concat([tokenizer.token_series(piece) for piece in pieces])
+    frame = pl.DataFrame({"word": tokens}).with_row_index("position")
+    words = (
+        frame.group_by("word", maintain_order=True).agg(pl.col("position").min()).with_row_index("local_id")
+    )
+    local_ids = frame.join(words.select("word", "local_id"), on="word", how="left", maintain_order="left")[
+        "local_id"
+    ].to_numpy()
     # Local ids in the smallest unsigned type that holds them (often 2 bytes a token): less to send.
-    local_id = np.empty(tokens_before, dtype=np.min_scalar_type(max(first.size - 1, 0)))
-    local_id[first] = np.arange(first.size)
-    ids = local_id[np.concatenate([np.zeros(0, dtype=LOCAL_DTYPE), *token_first])]
-    return BatchCounts(joined_words=WORD_SEPARATOR.join(first_of), first=first, ids=ids)
+    ids = local_ids.astype(np.min_scalar_type(max(words.height - 1, 0)))
+    return BatchCounts(
+        joined_words=WORD_SEPARATOR.join(words["word"].to_list()),
+        first=words["position"].to_numpy().astype(LOCAL_DTYPE),
+        ids=ids,
+    )
 
 
 def available_cpus() -> int:

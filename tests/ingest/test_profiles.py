@@ -11,6 +11,7 @@ import sys
 import unicodedata
 from typing import Any
 
+import polars as pl
 import pytest
 import regex
 from hypothesis import given
@@ -110,10 +111,13 @@ def test_char_unit_scripts_give_one_token_per_character() -> None:
 
 def test_char_unit_blocks_cover_every_letter_and_mark_of_those_scripts() -> None:
     # The fast path skips the character-unit pattern for text without these blocks, which is only
-    # correct if the blocks hold every letter and mark of the scripts (as the regex module's data has them).
-    everything = "".join(chr(c) for c in range(sys.maxunicode + 1) if not 0xD800 <= c <= 0xDFFF)
+    # correct if the blocks hold every letter and mark of the scripts, as the tokenizer's regular-expression
+    # engine (polars) and the regex module each have them in their Unicode data.
+    everything = [chr(c) for c in range(sys.maxunicode + 1) if not 0xD800 <= c <= 0xDFFF]
     scripts = "".join(f"\\p{{{s}}}" for s in CHAR_UNIT_SCRIPTS)
-    members = regex.findall(f"(?V1)[[{scripts}]&&[\\p{{L}}\\p{{M}}]]", everything)
+    in_polars = pl.Series(everything).str.contains(f"^[[{scripts}]&&[\\p{{L}}\\p{{M}}]]$").to_list()
+    in_regex = regex.findall(f"(?V1)[[{scripts}]&&[\\p{{L}}\\p{{M}}]]", "".join(everything))
+    members = {c for c, member in zip(everything, in_polars, strict=True) if member} | set(in_regex)
     assert len(members) > 90_000  # the CJK unified ideographs alone number over 90,000
     outside = [c for c in members if not CHAR_UNIT_BLOCKS.match(c)]
     assert outside == []
