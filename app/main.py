@@ -14,6 +14,7 @@ from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
+from app.ingest import scratch
 from app.services.ingestion import load_demo_corpora
 from app.services.jobs import JobRunner
 from app.store.db import make_engine
@@ -28,6 +29,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
+        orphans = scratch.remove_orphans(settings.work_dir)
+        if orphans:
+            log.info("removed %d scratch entries left by ended processes", len(orphans))
         if settings.load_demo:
             loaded = load_demo_corpora(app.state.engine, settings.work_dir)
             if loaded:
@@ -48,7 +52,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = JobRunner()
-    app.add_middleware(security.SecurityMiddleware, guard=security.Guard(settings, app.state.engine))
+    app.state.guard = security.Guard(settings, app.state.engine)
+    app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
 
     @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
     def plotly_js() -> FileResponse:

@@ -45,6 +45,7 @@ import numpy as np
 import regex
 
 from app.core.spectrum import Spectrum
+from app.ingest import scratch
 from app.ingest.engines import BatchCounts, EngineName, choose_engine, count_batches
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import DEFAULT_CHUNK_CHARS, TextSource
@@ -262,7 +263,7 @@ def count_sources(
     names = [source.name for source in sources]
     total_bytes = sum(source.size for source in sources)
     engine = choose_engine(engine, total_bytes, scheduler)
-    handle, tmp = tempfile.mkstemp(prefix="lexigrowth-types-", suffix=".i32", dir=workdir)
+    handle, tmp = tempfile.mkstemp(prefix=scratch.prefix("lexigrowth-types"), suffix=".i32", dir=workdir)
     path = Path(tmp)
     try:
         hasher = hashlib.sha256()

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import unicodedata
 from collections.abc import Iterable, Iterator
 from dataclasses import dataclass, field
 from itertools import islice
@@ -214,6 +215,10 @@ def word_counts(
     engine: Engine, corpus_id: int, search: str | None = None, limit: int | None = 100, offset: int = 0
 ) -> tuple[int, list[tuple[str, int]]]:
     """(number of matching types, page of (word, count) by descending count then word)."""
+    if search and any(unicodedata.category(c) == "Cc" for c in search):
+        # No word holds a control character (tokens are letters, marks, digits and joiners), and SQLite
+        # would read a NUL as the end of the pattern and match every word.
+        return 0, []
     with Session(engine) as session:
         where = [WordCount.corpus_id == corpus_id]
         if search:

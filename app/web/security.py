@@ -21,9 +21,14 @@ import hashlib
 import hmac
 import ipaddress
 import logging
+import math
 import os
 import re
 import secrets
+import threading
+import time
+from collections import deque
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from typing import Annotated, Any
 from urllib.parse import quote
@@ -58,6 +63,9 @@ PUBLIC_PERMALINK = re.compile(
     r"/compare/([A-Za-z0-9_-]{16,86})|/api/comparisons/([A-Za-z0-9_-]{16,86})(?:/table\.csv)?"
 )
 FORM_TYPES = ("application/x-www-form-urlencoded", "multipart/form-data")
+SIGN_IN_FAILURES_PER_ADDRESS = 10
+SIGN_IN_FAILURES_PER_NAME = 5
+SIGN_IN_WINDOW_SECONDS = 15 * 60
 
 # Plotly fills an empty <style> element through the CSS object model (which a policy does not restrict);
 # allowing exactly the empty element (this is the SHA-256 of "") lets it do that and nothing else inline.
@@ -190,6 +198,65 @@ def is_loopback(host: str) -> bool:
         return False
 
 
+class SignInThrottle:
+    """Failed sign-ins counted per client address and per member name over a sliding window; past the
+    allowance, sign-in is refused (429) until the oldest failure leaves the window, whatever the password
+    (OWASP Authentication Cheat Sheet, "Protect against automated attacks": limit failed attempts).
+
+    In memory, for one server process; at most ``MAX_KEYS`` addresses and names are remembered.
+    """
+
+    MAX_KEYS = 10_000
+
+    def __init__(
+        self,
+        per_address: int = SIGN_IN_FAILURES_PER_ADDRESS,
+        per_name: int = SIGN_IN_FAILURES_PER_NAME,
+        window_seconds: float = SIGN_IN_WINDOW_SECONDS,
+        clock: Callable[[], float] = time.monotonic,
+    ) -> None:
+        self.window = window_seconds
+        self.clock = clock
+        self._allowed = {"address": per_address, "name": per_name}
+        self._failures: dict[tuple[str, str], deque[float]] = {}
+        self._lock = threading.Lock()
+
+    @staticmethod
+    def _keys(address: str, name: str) -> list[tuple[str, str]]:
+        return [("address", address), ("name", name.strip().casefold())]
+
+    def _recent(self, key: tuple[str, str], now: float) -> deque[float]:
+        times = self._failures.get(key, deque())
+        while times and times[0] <= now - self.window:
+            times.popleft()
+        if not times:
+            self._failures.pop(key, None)
+        return times
+
+    def wait_seconds(self, address: str, name: str) -> float:
+        """Seconds until a sign-in from ``address`` as ``name`` is allowed again (0 when it is)."""
+        now = self.clock()
+        with self._lock:
+            waits = [
+                times[0] + self.window - now
+                for key in self._keys(address, name)
+                if len(times := self._recent(key, now)) >= self._allowed[key[0]]
+            ]
+        return max(waits, default=0.0)
+
+    def failed(self, address: str, name: str) -> None:
+        now = self.clock()
+        with self._lock:
+            keys = self._keys(address, name)
+            if len(self._failures) > self.MAX_KEYS - len(keys):
+                for key in list(self._failures):
+                    self._recent(key, now)
+                while len(self._failures) > self.MAX_KEYS - len(keys):  # still full: forget the oldest
+                    del self._failures[next(iter(self._failures))]
+            for key in keys:
+                self._failures.setdefault(key, deque()).append(now)
+
+
 class Guard:
     """Decides lab mode, identifies the viewer of a request and refuses what they may not see."""
 
@@ -198,12 +265,20 @@ class Guard:
         self.trust_proxy = settings.trust_proxy
         self._lab = settings.mode == "lab"
         self._serializer = URLSafeTimedSerializer(secret_key(settings), salt="lexigrowth-session")
+        self.sign_ins = SignInThrottle()
 
     def lab_mode(self) -> bool:
         """Lab mode, once on, stays on: accounts are never deleted."""
         if not self._lab and accounts.any_account(self.engine):
             self._lab = True
         return self._lab
+
+    def client_address(self, request: Request) -> str:
+        """The client's address: the first X-Forwarded-For entry behind a trusted proxy."""
+        forwarded = request.headers.get("x-forwarded-for", "").split(",")[0].strip()
+        if self.trust_proxy and forwarded:
+            return forwarded
+        return request.client.host if request.client else "unknown address"
 
     def is_https(self, request: Request) -> bool:
         if request.url.scheme == "https":
@@ -359,9 +434,27 @@ def login(
     viewer = viewer_of(request)
     if not viewer.lab:
         return RedirectResponse("/", status_code=303)
+    guard: Guard = request.app.state.guard
+    address = guard.client_address(request)
+    wait = guard.sign_ins.wait_seconds(address, name)
+    if wait > 0:
+        minutes = max(1, math.ceil(wait / 60))
+        log.warning("sign-in refused after repeated failures from %s", address)
+        refusal = render(
+            request,
+            "login.html",
+            status_code=429,
+            next=safe_next(next),
+            member_name=name,
+            error=f"Too many failed sign-ins. Try again in {minutes} minute{'s' if minutes > 1 else ''}.",
+            json_url=None,
+        )
+        refusal.headers["Retry-After"] = str(math.ceil(wait))
+        return refusal
     member = accounts.authenticate(request.app.state.engine, name, password)
     if member is None:
-        log.info("failed sign-in from %s", request.client.host if request.client else "unknown address")
+        guard.sign_ins.failed(address, name)
+        log.info("failed sign-in from %s", address)
         return render(
             request,
             "login.html",

@@ -96,6 +96,9 @@ def test_kill_during_ingestion_leaves_the_corpus_absent_or_complete(tmp_path, re
         httpx.Client(base_url=restarted.base_url, timeout=120) as http,
     ):
         assert_sound_store(restarted.store_path)
+        # The copy of the uploaded text and the type-id file of the killed server were removed at start.
+        left_behind = sorted(entry.name for entry in (data_dir / "work").iterdir())
+        assert left_behind == [], left_behind
         stored = [c for c in http.get("/api/corpora").json() if c["name"] == NAME]
         if moment == "counting":
             assert stored == [], seen

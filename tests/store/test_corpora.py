@@ -117,3 +117,13 @@ def test_search_ignores_ascii_case_and_matches_wildcards_literally(engine):
     assert store.word_counts(engine, cid, search="_")[1] == [("a_b", 2)]
     assert store.word_counts(engine, cid, search="\\")[1] == [("a\\b", 1)]
     assert store.word_counts(engine, cid, search="0%")[1] == [("100%", 1)]
+
+
+def test_search_with_a_control_character_matches_nothing(engine):
+    # SQLite's C interface reads a NUL as the end of a LIKE pattern ("%\0%" would become "%", every word);
+    # PostgreSQL refuses NUL in text. No token holds a control character, so nothing matches.
+    cid = store.save_corpus(engine, record(counts={"the": 3, "cat": 1}))
+    assert store.word_counts(engine, cid, search="\x00") == (0, [])
+    assert store.word_counts(engine, cid, search="th\x00e") == (0, [])
+    assert store.word_counts(engine, cid, search="t\x1b") == (0, [])
+    assert store.word_counts(engine, cid, search="t")[0] == 2

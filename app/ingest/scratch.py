@@ -1,0 +1,46 @@
+"""Scratch files of ingestion (copies of uploads, type-id sequences), named after the process that made
+them, so that what a killed process left behind can be told apart from what a running one is using.
+
+A scratch entry is called ``<kind>-<pid>-<random>``. ``remove_orphans`` deletes the entries of a work
+folder whose process no longer runs: the server calls it when it starts, so that a text uploaded while
+the server was killed does not stay on disk.
+"""
+
+from __future__ import annotations
+
+import os
+import re
+import shutil
+from pathlib import Path
+
+_ENTRY = re.compile(r"^(?:upload|lexigrowth-types)-(\d+)-")
+
+
+def prefix(kind: str) -> str:
+    """The name prefix of a new scratch entry of ``kind`` ("upload" or "lexigrowth-types")."""
+    return f"{kind}-{os.getpid()}-"
+
+
+def _running(pid: int) -> bool:
+    try:
+        os.kill(pid, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:  # another user's process
+        return True
+    return True
+
+
+def remove_orphans(work_dir: Path) -> list[str]:
+    """Delete the scratch entries in ``work_dir`` whose process has ended; return their names."""
+    removed = []
+    for entry in sorted(work_dir.iterdir()):
+        match = _ENTRY.match(entry.name)
+        if match is None or _running(int(match.group(1))):
+            continue
+        if entry.is_dir():
+            shutil.rmtree(entry, ignore_errors=True)
+        else:
+            entry.unlink(missing_ok=True)
+        removed.append(entry.name)
+    return removed
