@@ -357,7 +357,8 @@ def backtest(
     shape = (len(random_runs) // len(names), len(names))
     types_err = np.array([r.types_error for r in random_runs]).reshape(shape) / 100
     legomena_err = np.array([r.legomena_errors for r in random_runs]).reshape(*shape, LEGOMENA) / 100
-    factors = spectrum.tokens / np.array([r.fit_tokens for r in random_runs]).reshape(shape)[:, 0]
+    with np.errstate(divide="ignore"):  # a thinning of a tiny corpus may hold no token: its runs failed
+        factors = spectrum.tokens / np.array([r.fit_tokens for r in random_runs]).reshape(shape)[:, 0]
     labels = np.array([r.label for r in random_runs]).reshape(shape)[:, 0]
 
     ok = np.isfinite(types_err)

@@ -50,6 +50,9 @@ from app.core.spectrum import Spectrum
 Params = dict[str, float]
 ArrayLike = float | np.ndarray
 _BREAKDOWN = 1e8  # residual used where a model's formulas overflow or are undefined
+MIN_TYPES_TO_FIT = 10
+"""Fewest types a model is fitted to: below that the spectrum holds a handful of non-zero counts, the
+parameters are not identified and the optimiser only wanders (a choice of ours)."""
 
 
 def _minimise(residuals: Callable[[np.ndarray], np.ndarray], starts: list[np.ndarray]) -> np.ndarray | None:
@@ -256,6 +259,11 @@ class VocabularyModel(ABC):
         """Minimise the cost of the module docstring from every initial guess; the lowest cost wins."""
         if spectrum.types == 0:
             raise ValueError("cannot fit a model to an empty spectrum")
+        if spectrum.types < MIN_TYPES_TO_FIT:
+            raise ValueError(
+                f"{self.name}: {spectrum.types} type(s) are too few to fit a model "
+                f"(at least {MIN_TYPES_TO_FIT} are needed)"
+            )
         residuals = self._residuals(spectrum, m_max, lambda d, e: d / np.sqrt(np.maximum(e, 1e-12)))
         best = _minimise(residuals, [self.to_unconstrained(g) for g in self.initial_guesses(spectrum)])
         if best is None:
