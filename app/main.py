@@ -8,7 +8,8 @@ from pathlib import Path
 
 import plotly
 from fastapi import Depends, FastAPI, Request
-from fastapi.exception_handlers import http_exception_handler
+from fastapi.exception_handlers import http_exception_handler, request_validation_exception_handler
+from fastapi.exceptions import RequestValidationError
 from fastapi.responses import FileResponse
 from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
@@ -67,9 +68,31 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(compare.router)
     app.include_router(security.router)
 
+    def wants_json(request: Request) -> bool:
+        return request.url.path.startswith(("/api", "/static", "/docs", "/openapi"))
+
+    @app.exception_handler(RequestValidationError)
+    async def html_validation_errors(request: Request, exc: RequestValidationError):
+        """Invalid parameters of a page get the error page, saying which parameter and why; the JSON API
+        keeps FastAPI's 422 body."""
+        if wants_json(request):
+            return await request_validation_exception_handler(request, exc)
+        problems = "; ".join(
+            f"{'.'.join(str(part) for part in error['loc'][1:]) or error['loc'][0]}: {error['msg']}"
+            for error in exc.errors()
+        )
+        return pages.render(
+            request,
+            "error.html",
+            status_code=422,
+            heading="Cannot use this input",
+            detail=f"Check the address or the form: {problems}.",
+            json_url=None,
+        )
+
     @app.exception_handler(StarletteHTTPException)
     async def html_errors(request: Request, exc: StarletteHTTPException):
-        if request.url.path.startswith(("/api", "/static", "/docs", "/openapi")):
+        if wants_json(request):
             return await http_exception_handler(request, exc)
         heading = {403: "Not allowed", 404: "Not found", 413: "Too large", 422: "Cannot use this input"}.get(
             exc.status_code, "Error"

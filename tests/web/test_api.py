@@ -106,6 +106,14 @@ def test_missing_corpus_is_404(client):
     assert client.get("/corpora/999").status_code == 404
 
 
+def test_invalid_page_parameters_get_the_error_page_and_the_api_keeps_json(client):
+    page = client.get("/corpora/not-a-number")
+    assert page.status_code == 422 and page.headers["content-type"].startswith("text/html")
+    assert "Cannot use this input" in page.text and "corpus_id" in page.text and "integer" in page.text
+    api = client.get("/api/corpora/not-a-number")
+    assert api.status_code == 422 and api.json()["detail"][0]["loc"] == ["path", "corpus_id"]
+
+
 def test_openapi_document_is_served(client):
     doc = client.get("/openapi.json").json()
     assert "/api/corpora/{corpus_id}/spectrum" in doc["paths"]
