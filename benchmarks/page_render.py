@@ -2,7 +2,8 @@
 
 Runs the app in-process (FastAPI's TestClient) on a temporary store holding the synthetic demo corpora plus
 two more made from the same texts, so no network or server start-up is measured. Prints a Markdown table of
-median and best times over repeated requests, after one warm-up request per page (fits are cached then).
+median and best times over repeated requests, after one warm-up request per page (fits are cached then),
+and each median as a multiple of the Library page's (the lightest page) in the same run.
 
     python benchmarks/page_render.py [--repeats 7]
 """
@@ -10,6 +11,8 @@ median and best times over repeated requests, after one warm-up request per page
 from __future__ import annotations
 
 import argparse
+import os
+import platform
 import statistics
 import tempfile
 import time
@@ -50,9 +53,14 @@ def main(argv: list[str] | None = None) -> int:
             for k in range(2, min(8, len(ids)) + 1):
                 query = "&".join(f"corpus={i}" for i in ids[:k])
                 rows.append((f"Comparison, {k} corpora", *timed(client, f"/compare?{query}", args.repeats)))
-    print("| page | median ms | best ms |\n| --- | ---: | ---: |")
+    print(
+        f"Machine: {os.cpu_count()} CPUs, {platform.processor() or platform.machine()}, Python "
+        f"{platform.python_version()}; x Library = median time over the Library page's, same run.\n"
+    )
+    print("| page | median ms | best ms | x Library |\n| --- | ---: | ---: | ---: |")
+    library_median = rows[0][1]
     for name, median, best in rows:
-        print(f"| {name} | {median:.1f} | {best:.1f} |")
+        print(f"| {name} | {median:.1f} | {best:.1f} | {median / library_median:.1f} |")
     return 0
 
 

@@ -13,6 +13,7 @@ from app.core.interpolation import (
     expected_types_binomial,
     variance_types,
 )
+from app.core.models import MODELS
 from app.core.spectrum import Spectrum
 
 frequencies = st.lists(st.integers(min_value=1, max_value=400), min_size=1, max_size=300)
@@ -41,3 +42,32 @@ def test_interpolation_is_finite_bounded_and_monotone(case):
         assert legomena.sum() <= expected_types(spectrum, n) + 1e-6
         assert variance_types(spectrum, n) >= 0
         assert 0 <= expected_types_binomial(spectrum, n) <= spectrum.types + 1e-9
+
+
+# Every model gives finite, non-negative E[V(n)] that never falls as n grows, and E[V_k(n)] >= 0. The LNRE
+# models are mixtures of Poisson samples, so moreover E[V(n)] <= n (Baayen 2001, ch. 2: E[V(n)] = sum over
+# types of 1 - e^(-n pi)); Heaps' law and the perfect-Zipf formulas are fitted curves without that bound at
+# tiny n. A fit either keeps all this from 1 token to 100 N or refuses with a reason.
+POISSON_MIXTURES = {"zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp"}
+spiky_frequencies = st.lists(
+    st.one_of(st.integers(1, 3), st.integers(1, 40), st.integers(100, 5000)), min_size=10, max_size=200
+)
+
+
+@given(spiky_frequencies)
+@settings(max_examples=60, deadline=None)
+def test_every_fitted_model_gives_sound_expectations_or_refuses(frequencies):
+    spectrum = Spectrum.from_frequencies(frequencies)
+    n = np.unique(np.rint(np.geomspace(1, 100 * spectrum.tokens, 120)))
+    for model in MODELS.values():
+        try:
+            fitted = model.fit(spectrum)
+        except ValueError:
+            continue
+        types = np.asarray(fitted.types(n), dtype=float)
+        assert np.all(np.isfinite(types)) and np.all(types >= 0), model.name
+        assert np.all(np.diff(types) >= -1e-9 * types[1:]), model.name
+        if model.name in POISSON_MIXTURES:
+            assert np.all(types <= n * (1 + 1e-9)), model.name
+        legomena = fitted.spectrum(float(spectrum.tokens), 10)
+        assert np.all(np.isfinite(legomena)) and np.all(legomena >= 0), model.name

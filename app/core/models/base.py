@@ -53,6 +53,8 @@ _BREAKDOWN = 1e8  # residual used where a model's formulas overflow or are undef
 MIN_TYPES_TO_FIT = 10
 """Fewest types a model is fitted to: below that the spectrum holds a handful of non-zero counts, the
 parameters are not identified and the optimiser only wanders (a choice of ours)."""
+GROWTH_CHECK_FACTOR = 100
+"""Fitted parameters are checked for sound expectations up to this many times the corpus size."""
 
 
 def _minimise(residuals: Callable[[np.ndarray], np.ndarray], starts: list[np.ndarray]) -> np.ndarray | None:
@@ -268,7 +270,36 @@ class VocabularyModel(ABC):
         best = _minimise(residuals, [self.to_unconstrained(g) for g in self.initial_guesses(spectrum)])
         if best is None:
             raise ValueError(f"{self.name}: no initial guess led to a finite cost")
-        return FittedModel(self, self.from_unconstrained(best), spectrum.tokens, spectrum, m_max)
+        params = self.from_unconstrained(best)
+        self.check_growth(params, spectrum.tokens)
+        return FittedModel(self, params, spectrum.tokens, spectrum, m_max)
+
+    def check_growth(self, params: Mapping[str, float], tokens: int) -> None:
+        """Raise ValueError unless E[V(n)] is finite, within [0, n] and non-decreasing for n from 1 to
+        ``GROWTH_CHECK_FACTOR`` x ``tokens`` (any mixture of Poisson samples obeys this), and E[V_k(N)] is
+        finite and non-negative. Extreme parameters can break it in floating point (GIGP with b near 0:
+        S (1 - ratio) with a huge S and a ratio within 1e-16 of 1); the model is then left out rather than
+        shown with impossible numbers."""
+        n = np.unique(np.rint(np.geomspace(1, GROWTH_CHECK_FACTOR * tokens, 80)))
+        with np.errstate(all="ignore"):
+            types = np.asarray(self.expected_types(n, params), dtype=float)
+            legomena = np.asarray(
+                self.expected_spectrum(float(tokens), np.arange(1, 21), params), dtype=float
+            )
+        sound = (
+            np.all(np.isfinite(types))
+            and np.all(types >= 0)
+            and np.all(types <= n * (1 + 1e-9))
+            and np.all(np.diff(types) >= -1e-9 * types[1:])
+            and np.all(np.isfinite(legomena))
+            and np.all(legomena >= 0)
+        )
+        if not sound:
+            shown = ", ".join(f"{k} = {v:.3g}" for k, v in params.items())
+            raise ValueError(
+                f"{self.name}: the fitted parameters ({shown}) give impossible expectations (negative, "
+                "decreasing or not finite) in floating point; the model is left out for this corpus"
+            )
 
     def goodness_of_fit(
         self, spectrum: Spectrum, params: Mapping[str, float], m_max: int = 15
