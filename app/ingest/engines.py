@@ -89,26 +89,24 @@ def count_batch(pieces: Sequence[str], profile: TokenizationProfile) -> BatchCou
     """Tokenize each piece under ``profile`` and number the types of the batch in order of first
     occurrence (the pieces are consecutive parts of one text, each cut at a safe boundary).
 
-    Tokens never become Python objects: polars groups them by word (keeping the order of first
-    occurrence and the first position) and joins every token to its word's local id, in native code.
+    Tokens never become Python objects: polars gives every token the position of its word's first
+    occurrence (a window minimum over equal words, hashed in native code); the positions where a token is
+    its word's first occurrence are the types in order, and numbering them gives every token its local id.
     """
     import polars as pl  # here: the process that merges batches counted elsewhere never loads it
 
     tokenizer = _tokenizer(profile)
     tokens = pl.concat([tokenizer.token_series(piece) for piece in pieces])
     frame = pl.DataFrame({"word": tokens}).with_row_index("position")
-    words = (
-        frame.group_by("word", maintain_order=True).agg(pl.col("position").min()).with_row_index("local_id")
-    )
-    local_ids = frame.join(words.select("word", "local_id"), on="word", how="left", maintain_order="left")[
-        "local_id"
-    ].to_numpy()
+    token_first = frame.select(pl.col("position").min().over("word"))["position"].to_numpy()
+    first = np.flatnonzero(token_first == np.arange(token_first.size, dtype=token_first.dtype))
     # Local ids in the smallest unsigned type that holds them (often 2 bytes a token): less to send.
-    ids = local_ids.astype(np.min_scalar_type(max(words.height - 1, 0)))
+    local_id = np.empty(token_first.size, dtype=np.min_scalar_type(max(first.size - 1, 0)))
+    local_id[first] = np.arange(first.size)
     return BatchCounts(
-        joined_words=WORD_SEPARATOR.join(words["word"].to_list()),
-        first=words["position"].to_numpy().astype(LOCAL_DTYPE),
-        ids=ids,
+        joined_words=WORD_SEPARATOR.join(tokens.gather(first).to_list()),
+        first=first.astype(LOCAL_DTYPE),
+        ids=local_id[token_first],
     )
 
 

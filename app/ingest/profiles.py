@@ -38,7 +38,6 @@ other run of letters).
 
 from __future__ import annotations
 
-import re
 import unicodedata
 from dataclasses import asdict, dataclass, fields
 from typing import TYPE_CHECKING, Any, Literal, get_args
@@ -61,13 +60,13 @@ CHAR_UNIT_SCRIPTS = ("Han", "Hiragana", "Katakana", "Thai", "Lao", "Khmer", "Mya
 
 _CHAR_UNIT_SET = "".join(f"\\p{{{script}}}" for script in CHAR_UNIT_SCRIPTS)
 
-CHAR_UNIT_BLOCKS = re.compile(
+CHAR_UNIT_BLOCKS = (
     "[\u0e00-\u109f\u1780-\u19ff\u2e80-\u9fff\ua9e0-\uaa7f\uf900-\ufaff\uff00-\uffef"
     "\U00011600-\U0001b2ff\U00020000-\U0003ffff]"
 )
-"""The Unicode blocks that hold every letter and mark of ``CHAR_UNIT_SCRIPTS`` (a superset, checked by the
-tests). Text without any of these characters is tokenized with the simpler, faster pattern, which gives
-the same tokens there."""
+"""A character class (valid in Python's ``re`` and in Rust's ``regex``) of the Unicode blocks that hold every
+letter and mark of ``CHAR_UNIT_SCRIPTS`` (a superset, checked by the tests). Text without any of these
+characters is tokenized with the simpler, faster pattern, which gives the same tokens there."""
 
 
 @dataclass(frozen=True)
@@ -172,11 +171,16 @@ class Tokenizer:
         # Imported here: the process that only merges the counts of worker processes never loads it.
         import polars as pl
 
-        text = self.normalize(text)
-        use_char_units = self._char_units is not None and CHAR_UNIT_BLOCKS.search(text)
+        normalized = self.normalize(text)
+        column = pl.Series("token", [normalized])
+        use_char_units = (
+            self._char_units is not None
+            and not normalized.isascii()
+            and column.str.contains(CHAR_UNIT_BLOCKS).item()
+        )
         pattern = self._char_units if use_char_units else self._plain
         # Exploding the list of an empty text gives one null: tokens are never null otherwise.
-        found = pl.Series("token", [text]).str.extract_all(pattern).explode().drop_nulls()
+        found = column.str.extract_all(pattern).explode().drop_nulls()
         if self.profile.numbers == "collapse":
             # A token starting with a decimal digit is a number: words start with a letter or mark.
             return found.str.replace(r"^\p{Nd}.*", NUMBER_TYPE, literal=False)
