@@ -17,12 +17,12 @@ nothing heavy at the top):
   of one worker process per core, started inside the timed process).
 
 For each: wall time (the fastest of ``--repeat`` runs), throughput, its ratio to the naive pipeline
-measured in the same run, CPU time of all its processes (user + system, from ``os.wait4``: less
-sensitive than wall time to other load on the machine), peak resident memory of the largest process (``ru_maxrss`` of the child from
-``os.wait4``, which covers its worker processes) and of all its processes together (sampled from /proc
-every 0.2 s), and the tokens and types counted. A child inherits its parent's ``ru_maxrss`` at start-up,
-so the text is built in another process and this one stays small. The output is Markdown, with the
-machine.
+measured in the same run, CPU time of all its processes (user + system, from ``os.wait4``: less sensitive
+than wall time to other load on the machine), peak resident memory of the largest process (``ru_maxrss``
+of the child from ``os.wait4``, which covers its worker processes) and of all its processes together (the
+sum of their proportional set sizes, sampled from /proc every 0.2 s: shared pages count once), and the
+tokens and types counted. A child inherits its parent's ``ru_maxrss`` at start-up, so the text is built
+in another process and this one stays small. The output is Markdown, with the machine.
 
 Token counts are compared with the naive pipeline. The default profile of the service differs from
 ``\\w+`` on purpose (it drops numbers, keeps inner apostrophes and hyphens, splits digits from letters), so
@@ -199,7 +199,7 @@ class Measurement:
     seconds: float
     cpu_seconds: float
     largest_rss_mib: float
-    total_rss_mib: float | None
+    total_pss_mib: float | None
     tokens: int
     types: int
 
@@ -222,12 +222,18 @@ def _descendants(root: int) -> list[int]:
     return tree
 
 
-def _tree_rss(root: int) -> int:
+def _tree_pss(root: int) -> int:
+    """Bytes of memory of ``root`` and its descendants: the sum of their proportional set sizes (Pss in
+    /proc/<pid>/smaps_rollup, proc(5)), where a page shared by k processes (the Python and library code
+    every worker maps) counts 1/k in each, so that the sum counts it once."""
     total = 0
     for pid in _descendants(root):
         try:
-            with open(f"/proc/{pid}/statm", "rb") as fh:
-                total += int(fh.read().split()[1]) * os.sysconf("SC_PAGE_SIZE")
+            with open(f"/proc/{pid}/smaps_rollup", "rb") as fh:
+                for line in fh:
+                    if line.startswith(b"Pss:"):
+                        total += int(line.split()[1]) * 1024
+                        break
         except OSError:
             continue
     return total
@@ -243,7 +249,7 @@ def measure(pipeline: str, path: Path, profile: str) -> Measurement:
 
     def sample() -> None:
         while not done.wait(SAMPLE_SECONDS):
-            peak[0] = max(peak[0], _tree_rss(child.pid))
+            peak[0] = max(peak[0], _tree_pss(child.pid))
 
     sampler = threading.Thread(target=sample, daemon=True)
     if sys.platform == "linux":
@@ -262,7 +268,7 @@ def measure(pipeline: str, path: Path, profile: str) -> Measurement:
         seconds=seconds,
         cpu_seconds=usage.ru_utime + usage.ru_stime,
         largest_rss_mib=usage.ru_maxrss / 1024,  # KiB on Linux
-        total_rss_mib=peak[0] / 2**20 if sys.platform == "linux" else None,
+        total_pss_mib=peak[0] / 2**20 if sys.platform == "linux" else None,
         tokens=counted["tokens"],
         types=counted["types"],
     )
@@ -292,13 +298,13 @@ def report(results: list[Measurement], size: int, described: str, profile: str, 
         f"Python {platform.python_version()}, numpy {version('numpy')}, regex {version('regex')}.",
         "",
         "| pipeline | wall s | MB/s | x naive | CPU s | peak RSS largest process (MiB) "
-        "| peak RSS all processes (MiB) | tokens | types |",
+        "| peak memory all processes (PSS, MiB) | tokens | types |",
         "| --- | ---: | ---: | ---: | ---: | ---: | ---: | ---: | ---: |",
     ]
     for r in results:
         speed = size / MB / r.seconds
         ratio = f"{speed / (size / MB / baseline.seconds):.2f}" if baseline else "-"
-        total = f"{r.total_rss_mib:.0f}" if r.total_rss_mib is not None else "n/a"
+        total = f"{r.total_pss_mib:.0f}" if r.total_pss_mib is not None else "n/a"
         lines.append(
             f"| {r.pipeline} | {r.seconds:.2f} | {speed:.1f} | {ratio} | {r.cpu_seconds:.1f} "
             f"| {r.largest_rss_mib:.0f} | {total} "

@@ -46,7 +46,7 @@ __all__ = ["SUPPORTED_SUFFIXES", "TextSource", "UnreadableFileError", "html_to_t
 PLAIN_SUFFIXES = (".txt", ".md", ".text")
 SUPPORTED_SUFFIXES = (*PLAIN_SUFFIXES, ".html", ".htm", ".docx", ".odt", ".pdf", ".epub")
 PASTED = "pasted"
-DEFAULT_CHUNK_CHARS = 1 << 20
+DEFAULT_CHUNK_CHARS = 1 << 18
 
 _INVISIBLE_TAGS = ("script", "style", "head", "template")
 _BLOCK_TAGS = (
