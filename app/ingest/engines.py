@@ -184,7 +184,7 @@ def _dask_workers(scheduler: str | None) -> Iterator[tuple[Submit, int]]:
     with ExitStack() as stack:
         if scheduler is None:
             cluster = LocalCluster(
-                n_workers=available_cpus(), threads_per_worker=1, processes=True, dashboard_address=None
+                n_workers=available_cpus(), threads_per_worker=1, processes=True, dashboard_address=":0"
             )
             address = stack.enter_context(cluster)
         else:

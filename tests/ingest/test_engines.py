@@ -70,7 +70,7 @@ def snapshot(result: CountResult) -> dict:
 def scheduler() -> str:
     """A Dask cluster of two single-threaded workers in this process; its address is used exactly like
     the address of a remote cluster."""
-    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=None) as cluster:
+    with LocalCluster(n_workers=2, threads_per_worker=1, processes=False, dashboard_address=":0") as cluster:
         yield cluster.scheduler_address
 
 
