@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
+from functools import lru_cache
 
 import numpy as np
 from scipy.integrate import quad_vec
@@ -36,6 +37,7 @@ from app.core.spectrum import Spectrum
 
 _LOG_X_LIMIT = 700.0  # |ln x| beyond which x over- or underflows a double
 _TINY_X = 1e-15  # below this fraction the leading terms of E_k(x) are exact to double precision
+_SHARES_CACHED = 4096  # (x, k) pairs of legomena_shares kept
 _SERIES_LIMIT = 1e-3  # below |ln x| = 1e-3 the Bernoulli series is used (its next term, s^5/30240, < 1e-19)
 
 
@@ -58,21 +60,35 @@ def hapax_share(x: ArrayLike) -> np.ndarray:
 
 
 def legomena_shares(x: float, k: ArrayLike) -> np.ndarray:
-    """E_k(x) / W for the frequencies k (any shape), by adaptive quadrature (module docstring)."""
+    """E_k(x) / W for the frequencies k (any shape), by adaptive quadrature (module docstring).
+
+    Pages ask for the same few (x, k) again and again (the same corpus at the same sizes): the results of
+    the last ``_SHARES_CACHED`` are kept.
+    """
     k = np.asarray(k, dtype=float)
+    return _legomena_shares(float(x), tuple(k.ravel().tolist())).reshape(k.shape)
+
+
+@lru_cache(maxsize=_SHARES_CACHED)
+def _legomena_shares(x: float, frequencies: tuple[float, ...]) -> np.ndarray:
+    k = np.array(frequencies)
     if x < _TINY_X:
         # x -> 0: E_1 / W = x (x - 1 - ln x) / (x - 1)^2 and E_k / W = x / (k (k-1)) + O(x^2 ln x) for k >= 2
         # (the leading term of the binomial series); here x is below double resolution next to 1, where the
         # quadrature's breakpoint 1 / (1 + x) would sit on the end of the interval.
         hapax = x * (x - 1 - math.log(x)) / (x - 1) ** 2
         with np.errstate(divide="ignore"):
-            return np.where(k == 1, hapax, x / (k * (k - 1)))
+            shares = np.where(k == 1, hapax, x / (k * (k - 1)))
+        shares.flags.writeable = False  # shared by every caller of the cache
+        return shares
 
     def integrand(w: float) -> np.ndarray:
         return x * w * (1 - w) ** (k - 1) / (x * w + 1 - w)
 
     value, _ = quad_vec(integrand, 0.0, 1.0, points=(1 / (1 + x),), epsabs=0.0, epsrel=1e-10, norm="max")
-    return np.asarray(value)
+    shares = np.array(value, dtype=float)
+    shares.flags.writeable = False  # shared by every caller of the cache
+    return shares
 
 
 def solve_zipf_fraction(hapax_ratio: float) -> float:
