@@ -5,11 +5,11 @@ Usage: ``python benchmarks/fit_time.py [--sizes 1e4,1e5,1e6,1e7] [--repeat 3]``
 
 Each corpus is a multinomial sample (numpy, fixed seed) of n tokens from a Zipf-Mandelbrot population of
 2 million types, p_i proportional to (i + 2.7)^-1.1: the spectrum of a large, text-like corpus without
-reading one. For each size the table gives the CPU time in milliseconds (``time.process_time``, the fastest of ``--repeat``
-runs) of fitting each model once to the full spectrum, and of ``app.core.backtest.backtest`` (what the
-modelling service runs once per corpus and caches: every model on the corpus and on 8 x 3 random thinnings,
-and the recommended ensemble); and the ratio of each time to that of the smallest size measured in the same
-run, so that the growth with corpus size reads off directly.
+reading one. For each size the table gives the CPU time in milliseconds (``time.process_time``, the
+fastest of ``--repeat`` runs) of fitting each model once to the full spectrum, and of
+``app.core.backtest.backtest`` (what the modelling service runs once per corpus and caches: every model on
+the corpus and on 8 x 3 random thinnings, and the recommended ensemble); and the ratio of each time to that
+of the smallest size measured in the same run, so that the growth with corpus size reads off directly.
 """
 
 from __future__ import annotations
@@ -65,7 +65,8 @@ def main(argv: list[str] | None = None) -> int:
 
     print(
         f"Machine: {platform.processor() or platform.machine()}, Python {platform.python_version()}, "
-        f"numpy {np.__version__}; CPU milliseconds, fastest of {args.repeat}; (x) = ratio to {sizes[0]:,} tokens.\n"
+        f"numpy {np.__version__}; CPU milliseconds, fastest of {args.repeat}; "
+        f"(x) = ratio to {sizes[0]:,} tokens.\n"
     )
     print("| tokens | types | " + " | ".join(columns) + " |")
     print("| ---: | ---: | " + " | ".join("---:" for _ in columns) + " |")

@@ -295,7 +295,8 @@ def report(results: list[Measurement], size: int, described: str, profile: str, 
         f"Input: {size / MB:.1f} MB of UTF-8 text ({described}); engines' profile: {profile}; "
         f"fastest of {repeat} run(s) per pipeline.",
         f"Machine: {os.cpu_count()} CPUs ({available_cpus()} available), {cpu_model()}, "
-        f"Python {platform.python_version()}, numpy {version('numpy')}, polars {version('polars')}, regex {version('regex')}.",
+        f"Python {platform.python_version()}, numpy {version('numpy')}, polars {version('polars')}, "
+        f"regex {version('regex')}.",
         "",
         "| pipeline | wall s | MB/s | x naive | CPU s | peak RSS largest process (MiB) "
         "| peak memory all processes (PSS, MiB) | tokens | types |",

@@ -60,8 +60,8 @@ _READ_SLICE = 1 << 20
 BATCH_CHUNKS = 1
 """Chunks of text per batch sent to an engine: bigger batches mean fewer types to merge here, smaller
 ones less memory per worker (the native grouping holds a batch's tokens at once). With one chunk of
-``DEFAULT_CHUNK_CHARS`` (2^18 characters) per batch, the local engine counted 1 GB of books in 272 MiB for all its
-processes together (2^19: 315 MiB; 2^20 in pairs: 385 MiB), at a few per cent more CPU."""
+``DEFAULT_CHUNK_CHARS`` (2^18 characters) per batch, the local engine counted 1 GB of books in 272 MiB
+for all its processes together (2^19: 315 MiB; 2^20 in pairs: 385 MiB), at a few per cent more CPU."""
 _SOURCE_SEPARATOR = "\n"
 
 # A cut is safe after a character that never belongs to a token and never composes (NFC) with what
@@ -265,7 +265,7 @@ def count_sources(
     names = [source.name for source in sources]
     total_bytes = sum(source.size for source in sources)
     engine = choose_engine(engine, total_bytes, scheduler)
-    handle, tmp = tempfile.mkstemp(prefix=scratch.prefix("lexigrowth-types"), suffix=".i32", dir=workdir)
+    handle, tmp = tempfile.mkstemp(prefix=scratch.prefix(scratch.TYPE_IDS), suffix=".i32", dir=workdir)
     path = Path(tmp)
     try:
         hasher = hashlib.sha256()

@@ -13,11 +13,15 @@ import re
 import shutil
 from pathlib import Path
 
-_ENTRY = re.compile(r"^(?:upload|lexigrowth-types)-(\d+)-")
+UPLOAD = "upload"
+"""Kind of the folder that holds the copies of one upload's files."""
+TYPE_IDS = "lexigrowth-types"
+"""Kind of the file that holds a corpus's type-id sequence while it is counted."""
+_ENTRY = re.compile(rf"^(?:{UPLOAD}|{TYPE_IDS})-(\d+)-")
 
 
 def prefix(kind: str) -> str:
-    """The name prefix of a new scratch entry of ``kind`` ("upload" or "lexigrowth-types")."""
+    """The name prefix of a new scratch entry of ``kind`` (``UPLOAD`` or ``TYPE_IDS``)."""
     return f"{kind}-{os.getpid()}-"
 
 

@@ -64,7 +64,7 @@ class ReceivedUpload:
 def receive(files: list[UploadFile], pasted_text: str | None, work_dir: Path, max_mb: int) -> ReceivedUpload:
     """Copy uploads to a private scratch folder (capped at ``max_mb`` in all) and open them as text sources."""
     limit = max_mb * (1 << 20)
-    upload = ReceivedUpload(Path(tempfile.mkdtemp(prefix=scratch.prefix("upload"), dir=work_dir)))
+    upload = ReceivedUpload(Path(tempfile.mkdtemp(prefix=scratch.prefix(scratch.UPLOAD), dir=work_dir)))
     try:
         used = 0
         for index, file in enumerate(f for f in files if f is not None and (f.filename or f.size)):

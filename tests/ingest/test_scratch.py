@@ -20,7 +20,7 @@ def test_only_the_scratch_of_ended_processes_is_removed(tmp_path) -> None:
     (tmp_path / f"upload-{dead}-abc").mkdir()
     (tmp_path / f"upload-{dead}-abc" / "0000-draft.txt").write_text("unpublished words")
     (tmp_path / f"lexigrowth-types-{dead}-xyz.i32").write_bytes(b"\0" * 8)
-    mine = tmp_path / f"{scratch.prefix('upload')}def"
+    mine = tmp_path / f"{scratch.prefix(scratch.UPLOAD)}def"
     mine.mkdir()
     unrelated = tmp_path / "notes-123-keep.txt"
     unrelated.write_text("not scratch")
