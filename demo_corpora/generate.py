@@ -392,7 +392,7 @@ def generate(out: Path) -> list[dict]:
         tokens, types = count_tokens(text)
         params = {k: v for k, v in asdict(spec).items() if k not in LABEL_FIELDS}
         params.update(
-            law="zipf_mandelbrot",
+            law="power_law",
             function_words=len(function_words),
             function_exponent=FUNCTION_LAW[0],
             function_offset=FUNCTION_LAW[1],

@@ -104,6 +104,6 @@ def plan(predictor: Predictor, target: Target, population: float | None = None) 
     if population is None:
         raise UnreachableTargetError(
             "this model's population is infinite (its vocabulary grows without bound), so a share of it is "
-            "never reached; choose finite_zipf_mandelbrot or gigp"
+            "never reached; choose bounded_power_law or sichel"
         )
     return tokens_for_types(predictor.types, target.value * population, population)

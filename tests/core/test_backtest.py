@@ -71,8 +71,8 @@ def test_thinning_is_a_binomial_sample():
 def test_simulated_finite_zipf_mandelbrot_corpus_gives_that_model_the_largest_weight(report):
     ensemble = report.recommended
     names = [f.name for f in ensemble.members]
-    assert names[int(np.argmax(ensemble.types_weights))] == "finite_zipf_mandelbrot"
-    assert names[int(np.argmax(ensemble.legomena_weights))] == "finite_zipf_mandelbrot"
+    assert names[int(np.argmax(ensemble.types_weights))] == "bounded_power_law"
+    assert names[int(np.argmax(ensemble.legomena_weights))] == "bounded_power_law"
 
 
 def _random_squares(report, name: str) -> tuple[np.ndarray, np.ndarray]:
@@ -104,7 +104,7 @@ def test_weights_follow_the_anchored_rule(report):
         assert sum(weights) == pytest.approx(1.0)
     # The rule is not vacuous here: finite Zipf-Mandelbrot joins, Zipf-Mandelbrot (infinite population,
     # far off on a finite one) does not.
-    fzm, zm = names.index("finite_zipf_mandelbrot"), names.index("zipf_mandelbrot")
+    fzm, zm = names.index("bounded_power_law"), names.index("power_law")
     assert ensemble.types_weights[fzm] > 0 and ensemble.types_weights[zm] == 0
 
 
@@ -185,9 +185,9 @@ def test_random_runs_are_reproducible_from_their_random_state(report, fzm_corpus
         run = next(
             r
             for r in report.runs
-            if r.kind == RANDOM and r.label == f"{p:g}" and r.draw == 1 and r.model == "gigp"
+            if r.kind == RANDOM and r.label == f"{p:g}" and r.draw == 1 and r.model == "sichel"
         )
-        predicted = MODELS["gigp"].fit(part).types(fzm_corpus.tokens)
+        predicted = MODELS["sichel"].fit(part).types(fzm_corpus.tokens)
         assert run.fit_tokens == part.tokens
         assert run.types_error == pytest.approx(100 * (predicted / fzm_corpus.types - 1), rel=1e-9)
 

@@ -20,14 +20,14 @@ from tests.core.lnre_samples import (
 
 # (model name, parameters, density written from its definition, integration range)
 CASES = [
-    ("zipf_mandelbrot", {"a": 0.6, "B": 0.02}, power_law_density(0.6, 0.0, 0.02), (1e-35, 0.02)),
+    ("power_law", {"a": 0.6, "B": 0.02}, power_law_density(0.6, 0.0, 0.02), (1e-35, 0.02)),
     (
-        "finite_zipf_mandelbrot",
+        "bounded_power_law",
         {"a": 0.7, "A": 1e-6, "B": 0.02},
         power_law_density(0.7, 1e-6, 0.02),
         (1e-6, 0.02),
     ),
-    ("gigp", {"b": 0.02, "c": 0.01, "g": -0.6}, gigp_density(0.02, 0.01, -0.6), (1e-26, 2.0)),
+    ("sichel", {"b": 0.02, "c": 0.01, "g": -0.6}, gigp_density(0.02, 0.01, -0.6), (1e-26, 2.0)),
 ]
 SIZES = [10.0, 1e3, 1e5, 1e7, 1e9]
 
@@ -62,7 +62,7 @@ def test_gigp_population_matches_scipy_geninvgauss():
     # distribution: scipy.stats.geninvgauss(p=g, b=b, scale=b c / 2) (substitute pi = (b c / 2) x in the
     # density). S is the limit of E[V(n)] as n grows.
     b, c, g = 0.02, 0.01, -0.6
-    population = MODELS["gigp"].expected_types(1e15, {"b": b, "c": c, "g": g})
+    population = MODELS["sichel"].expected_types(1e15, {"b": b, "c": c, "g": g})
     pi = np.geomspace(1e-8, 0.05, 9)
     np.testing.assert_allclose(
         gigp_density(b, c, g)(pi) / population, stats.geninvgauss(g, b, scale=b * c / 2).pdf(pi), rtol=1e-8
@@ -71,7 +71,7 @@ def test_gigp_population_matches_scipy_geninvgauss():
 
 def test_zipf_mandelbrot_grows_without_bound_and_finite_model_saturates():
     # Evert (2004): the ZM population is infinite (V ~ n^a), the fZM population has S = C (A^-a - B^-a) / a types.
-    zm, fzm = MODELS["zipf_mandelbrot"], MODELS["finite_zipf_mandelbrot"]
+    zm, fzm = MODELS["power_law"], MODELS["bounded_power_law"]
     a, A, B = 0.7, 1e-6, 0.02
     C = (1 - a) / (B ** (1 - a) - A ** (1 - a))
     assert fzm.expected_types(1e12, {"a": a, "A": A, "B": B}) == pytest.approx(
@@ -87,19 +87,19 @@ def test_zipf_mandelbrot_grows_without_bound_and_finite_model_saturates():
 # identified by V_1..V_15 in the Zipf-Mandelbrot family. Truncating Zipf-Mandelbrot at 1e-14 drops types
 # that would receive N (1e-14 / B)^(1-a) ~ 0.004 tokens at N = 4e6.
 POPULATIONS = {
-    "zipf_mandelbrot": (
+    "power_law": (
         {"a": 0.3, "B": 0.05},
         power_law_density(0.3, 0.0, 0.05),
         (1e-14, 0.05),
         {"a": 0.1, "B": 0.3, "prediction": 0.08},
     ),
-    "finite_zipf_mandelbrot": (
+    "bounded_power_law": (
         {"a": 0.7, "A": 2e-7, "B": 0.02},
         power_law_density(0.7, 2e-7, 0.02),
         (2e-7, 0.02),
         {"a": 0.04, "A": 0.05, "B": 0.6, "prediction": 0.012},
     ),
-    "gigp": (
+    "sichel": (
         {"b": 0.02, "c": 0.01, "g": -0.6},
         gigp_density(0.02, 0.01, -0.6),
         (1e-12, 1.0),
@@ -137,18 +137,18 @@ def test_minimum_chi_square_is_calibrated_on_samples_from_the_model(name):
 
 def test_chi_square_rejects_the_wrong_model():
     # A finite population is not an infinite Zipf-Mandelbrot one: the chi-square must say so.
-    _, density, support, _ = POPULATIONS["finite_zipf_mandelbrot"]
+    _, density, support, _ = POPULATIONS["bounded_power_law"]
     sample = poisson_sample(stratified_population(density, *support), FIT_SIZE, np.random.default_rng(5))
-    assert MODELS["zipf_mandelbrot"].fit(sample).goodness_of_fit.p_value < 1e-6
+    assert MODELS["power_law"].fit(sample).goodness_of_fit.p_value < 1e-6
 
 
 COVARIANCE_CASES = {
-    "finite_zipf_mandelbrot": (
+    "bounded_power_law": (
         {"a": 0.7, "A": 2e-6, "B": 0.02},
         power_law_density(0.7, 2e-6, 0.02),
         (2e-6, 0.02),
     ),
-    "gigp": POPULATIONS["gigp"][:3],
+    "sichel": POPULATIONS["sichel"][:3],
 }
 
 

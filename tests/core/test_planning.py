@@ -29,7 +29,7 @@ def fitted(docstring_spectrum):
 
 
 @pytest.mark.parametrize(
-    "name", ["perfect_zipf", "heaps", "zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp", "recommended"]
+    "name", ["perfect_zipf", "heaps", "power_law", "bounded_power_law", "sichel", "recommended"]
 )
 def test_plan_inverts_the_forward_prediction(fitted, docstring_spectrum, name):
     """plan(types = predict(n).types) == n within 0.1% for n from N/10 to 100 N (round trip)."""
@@ -50,7 +50,7 @@ def test_plan_inverts_the_forward_prediction(fitted, docstring_spectrum, name):
 def test_new_type_rate_at_corpus_size_is_good_turing(fitted, docstring_spectrum):
     """At N the models' E[V_1(N)] / N is the Good-Turing rate V_1 / N (Good 1953) within their fit error."""
     N, observed = docstring_spectrum.tokens, docstring_spectrum.hapaxes / docstring_spectrum.tokens
-    for name in ("perfect_zipf", "finite_zipf_mandelbrot", "gigp", "recommended"):
+    for name in ("perfect_zipf", "bounded_power_law", "sichel", "recommended"):
         # perfect Zipf reproduces V_1 exactly; the LNRE fits within a few per cent (their chi-square residuals)
         assert planning.new_type_rate(fitted[name], N) == pytest.approx(observed, rel=0.05), name
 
@@ -63,7 +63,7 @@ def test_planned_coverage_is_reached_on_a_simulated_population():
     pi = stratified_population(power_law_density(a, A, B), A, B)
     pi = pi / pi.sum()
     sample = rng.poisson(20_000 * pi)
-    fitted = MODELS["finite_zipf_mandelbrot"].fit(Spectrum.from_frequencies(sample[sample > 0]))
+    fitted = MODELS["bounded_power_law"].fit(Spectrum.from_frequencies(sample[sample > 0]))
     planned = planning.plan(fitted, planning.Target("coverage", 0.99))
     coverages = [pi[rng.poisson(planned * pi) > 0].sum() for _ in range(5)]
     # Tolerance: the fit from 20,000 tokens carries a few per cent of error in the rate (stated, common practice).
@@ -74,7 +74,7 @@ def test_unreachable_targets_say_why(fitted):
     pz = fitted["perfect_zipf"]
     with pytest.raises(planning.UnreachableTargetError, match="infinite"):
         planning.plan(pz, planning.Target("share", 0.9))
-    fzm = fitted["finite_zipf_mandelbrot"]
+    fzm = fitted["bounded_power_law"]
     population = fzm.model.population_size(fzm.params)
     with pytest.raises(planning.UnreachableTargetError, match="population"):
         planning.plan(fzm, planning.Target("types", 2 * population), population)

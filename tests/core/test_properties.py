@@ -48,7 +48,7 @@ def test_interpolation_is_finite_bounded_and_monotone(case):
 # models are mixtures of Poisson samples, so moreover E[V(n)] <= n (Baayen 2001, ch. 2: E[V(n)] = sum over
 # types of 1 - e^(-n pi)); Heaps' law and the perfect-Zipf formulas are fitted curves without that bound at
 # tiny n. A fit either keeps all this from 1 token to 100 N or refuses with a reason.
-POISSON_MIXTURES = {"zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp"}
+POISSON_MIXTURES = {"power_law", "bounded_power_law", "sichel"}
 spiky_frequencies = st.lists(
     st.one_of(st.integers(1, 3), st.integers(1, 40), st.integers(100, 5000)), min_size=10, max_size=200
 )

@@ -47,7 +47,7 @@ def test_predict_sample_equals_scipy_hypergeom(docstring_corpus):
 def test_models_and_extrapolation(docstring_corpus):
     client, cid, _ = docstring_corpus
     report = client.get(f"/api/corpora/{cid}/models").json()
-    assert {"perfect_zipf", "heaps", "zipf_mandelbrot", "finite_zipf_mandelbrot", "gigp"} <= set(
+    assert {"perfect_zipf", "heaps", "power_law", "bounded_power_law", "sichel"} <= set(
         report["fitted"]
     )
     summary = client.get(f"/api/corpora/{cid}").json()
@@ -156,7 +156,7 @@ def test_plan_api(docstring_corpus):
     assert body["tokens"] == pytest.approx(20 * N, rel=1e-3)  # round trip with the forward prediction
     assert body["low"] <= body["tokens"] <= body["high"] and body["model"] == "recommended"
     assert body["target"] == {"kind": "types", "value": target}
-    rate = client.get(f"/api/corpora/{cid}/plan", params={"new_type_rate": 0.001, "model": "gigp"})
+    rate = client.get(f"/api/corpora/{cid}/plan", params={"new_type_rate": 0.001, "model": "sichel"})
     assert rate.status_code == 200 and rate.json()["tokens"] > N
     for params in (
         {"share": 0.9},

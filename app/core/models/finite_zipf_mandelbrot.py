@@ -33,8 +33,8 @@ from app.core.spectrum import Spectrum
 class FiniteZipfMandelbrot(VocabularyModel):
     """Finite Zipf-Mandelbrot LNRE model: g(pi) = C pi^(-a-1) on [A, B] (module docstring, Evert 2004)."""
 
-    name = "finite_zipf_mandelbrot"
-    title = "finite Zipf-Mandelbrot (LNRE)"
+    name = "bounded_power_law"
+    title = "bounded power law (finite Zipf-Mandelbrot)"
     parameter_names = ("a", "A", "B")
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:

@@ -26,8 +26,8 @@ from app.core.spectrum import Spectrum
 class GIGP(VocabularyModel):
     """Generalised inverse Gauss-Poisson LNRE model (module docstring, Sichel 1975)."""
 
-    name = "gigp"
-    title = "generalised inverse Gauss-Poisson (LNRE)"
+    name = "sichel"
+    title = "Sichel mixture (generalised inverse Gauss-Poisson)"
     parameter_names = ("b", "c", "g")
     bounds = {"b": (0.0, np.inf), "c": (0.0, np.inf), "g": (-1.0, 0.0)}
 

@@ -81,8 +81,8 @@ def power_law_scale(spectrum: Spectrum, a: float) -> float:
 class ZipfMandelbrot(VocabularyModel):
     """Zipf-Mandelbrot LNRE model: g(pi) = C pi^(-a-1) on (0, B] (module docstring, Evert 2004)."""
 
-    name = "zipf_mandelbrot"
-    title = "Zipf-Mandelbrot (LNRE)"
+    name = "power_law"
+    title = "power law (Zipf-Mandelbrot)"
     parameter_names = ("a", "B")
     bounds = {"a": (0.0, 1.0), "B": (0.0, np.inf)}
 
