@@ -47,9 +47,7 @@ def test_predict_sample_equals_scipy_hypergeom(docstring_corpus):
 def test_models_and_extrapolation(docstring_corpus):
     client, cid, _ = docstring_corpus
     report = client.get(f"/api/corpora/{cid}/models").json()
-    assert {"perfect_zipf", "heaps", "power_law", "bounded_power_law", "sichel"} <= set(
-        report["fitted"]
-    )
+    assert {"perfect_zipf", "heaps", "power_law", "bounded_power_law", "sichel"} <= set(report["fitted"])
     summary = client.get(f"/api/corpora/{cid}").json()
     # The perfect-Zipf fit reproduces the corpus's own V (MATH.md section 3).
     pz = client.get(
