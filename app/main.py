@@ -16,8 +16,9 @@ from starlette.exceptions import HTTPException as StarletteHTTPException
 
 from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
 from app.ingest import scratch
-from app.services.ingestion import load_demo_corpora
-from app.services.jobs import JobRunner
+from app.services import tasks
+from app.services.jobs import Dispatcher
+from app.services.worker import TaskWorker
 from app.store.db import make_engine
 from app.web import api, compare, pages, security
 
@@ -30,15 +31,26 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
+        interrupted = tasks.recover(app.state.engine)
+        if interrupted:
+            log.info("marked %d tasks of ended processes as failed", len(interrupted))
         orphans = scratch.remove_orphans(settings.work_dir)
         if orphans:
             log.info("removed %d scratch entries left by ended processes", len(orphans))
+        worker = (
+            None
+            if not settings.task_worker
+            else TaskWorker(settings.resolved_database_url, settings.work_dir)
+        )
+        if worker is not None:
+            worker.start()
         if settings.load_demo:
-            loaded = load_demo_corpora(app.state.engine, settings.work_dir)
-            if loaded:
-                log.info("loaded %d demo corpora into the empty store", len(loaded))
+            queued = [app.state.jobs.submit(task) for task in tasks.queue_demo_corpora(app.state.engine)]
+            if queued:
+                log.info("queued %d demo corpora for counting", len(queued))
         yield
-        app.state.jobs.shutdown()
+        if worker is not None:
+            worker.stop()
 
     app = FastAPI(
         title="Lexigrowth",
@@ -52,7 +64,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     settings.data_dir.mkdir(parents=True, exist_ok=True)
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
-    app.state.jobs = JobRunner()
+    app.state.jobs = Dispatcher(app.state.engine, settings.work_dir, inline=not settings.task_worker)
     app.state.guard = security.Guard(settings, app.state.engine)
     app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
 
