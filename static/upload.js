@@ -1,4 +1,5 @@
-// Upload with a progress bar: bytes sent, then the ingestion job's own progress, then the corpus page.
+// Upload with a progress bar: bytes sent, then the ingestion job's stages (reading, counting with its own
+// progress, storing), then the corpus page as soon as the corpus exists (its models are fitted meanwhile).
 // In lab mode the page's CSRF token (<meta name="csrf-token">) goes with the upload as X-CSRF-Token.
 (function () {
   "use strict";
@@ -14,12 +15,29 @@
     if (value !== null) { bar.value = value; }
   }
 
+  // The stages of an upload as the job reports them (app/services/jobs.py), in words.
+  var STAGES = {
+    queued: "Waiting for a free worker…",
+    starting: "Starting…",
+    reading: "Reading the files…",
+    counting: "Counting words…",
+    "text-order statistics": "Measuring the text in reading order…",
+    storing: "Storing the counts…",
+    "exact statistics": "Computing the exact random-sample curve…"
+  };
+
   function poll(url) {
     fetch(url).then(function (r) { return r.json(); }).then(function (job) {
-      if (job.status === "done") { show("Counted. Opening the corpus page…", 1); window.location = job.corpus_url; return; }
+      if (job.status === "done") {
+        show("Stored. Opening the corpus page (models are fitted there)…", 1);
+        window.location = job.corpus_url;
+        return;
+      }
       if (job.status === "failed") { show("Could not ingest: " + job.error, 0, true); form.querySelector("button").disabled = false; return; }
-      show("Counting words… " + Math.round(100 * job.progress) + "%", job.progress);
-      setTimeout(function () { poll(url); }, 400);
+      var label = STAGES[job.stage] || "Working…";
+      if (job.stage === "counting") { label += " " + Math.round(100 * job.progress) + "%"; }
+      show(label, job.stage === "counting" ? job.progress : null);
+      setTimeout(function () { poll(url); }, 250);
     }).catch(function () { setTimeout(function () { poll(url); }, 1000); });
   }
 
@@ -36,7 +54,7 @@
     xhr.addEventListener("load", function () {
       var body = {};
       try { body = JSON.parse(xhr.responseText); } catch (err) { body = { detail: xhr.statusText }; }
-      if (xhr.status === 202) { show("Counting words…", 0); poll(body.url); return; }
+      if (xhr.status === 202) { show(STAGES[body.stage] || "Counting words…", 0); poll(body.url); return; }
       if (xhr.status === 201) { window.location = "/corpora/" + body.id; return; }
       var detail = Array.isArray(body.detail) ? body.detail.map(function (d) { return d.msg; }).join("; ") : body.detail;
       show("Could not ingest: " + (detail || xhr.statusText), 0, true);

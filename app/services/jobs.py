@@ -67,3 +67,10 @@ class Dispatcher:
         except modelling.PredictionError as exc:
             return {"status": queue.FAILED, "error": str(exc)}
         return {"status": "ready", "error": None}
+
+    def uploads_under_way(self) -> list[dict[str, Any]]:
+        """Uploads (and demo corpora) being counted, oldest first, with the name of their corpus-to-be."""
+        return [
+            as_job(task) | {"name": task.params.get("name")}
+            for task in queue.unfinished(self.engine, tasks.INGEST)
+        ]

@@ -113,6 +113,17 @@ def find(engine: Engine, dedupe_key: str) -> TaskView | None:
         return None if row is None else TaskView.of(row)
 
 
+def unfinished(engine: Engine, kind: str) -> list[TaskView]:
+    """Queued and running tasks of ``kind``, oldest first."""
+    with Session(engine) as session:
+        rows = session.exec(
+            select(BackgroundTask)
+            .where(BackgroundTask.kind == kind, BackgroundTask.state.in_((QUEUED, RUNNING)))
+            .order_by(BackgroundTask.created_at)
+        ).scalars()
+        return [TaskView.of(row) for row in rows]
+
+
 def claim(engine: Engine, task_id: str, owner: str) -> TaskView | None:
     """Take the queued task ``task_id`` for ``owner``; None when it is not queued (any more)."""
     now = _now()

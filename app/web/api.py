@@ -100,6 +100,12 @@ def upload_corpus(
     return store.summary(store.get_corpus(engine, task.corpus_id))
 
 
+@router.get("/jobs")
+def jobs_under_way(jobs: Annotated[Dispatcher, Depends(jobs_of)]) -> list[dict]:
+    """Uploads (and demo corpora) being counted now: the Library's list of corpora on their way."""
+    return jobs.uploads_under_way()
+
+
 @router.get("/jobs/{job_id}")
 def job_status(
     job_id: Annotated[str, Path(max_length=64)], jobs: Annotated[Dispatcher, Depends(jobs_of)]

@@ -29,7 +29,12 @@ def render(request: Request, name: str, status_code: int = 200, **context) -> HT
 
 
 @router.get("/", response_class=HTMLResponse)
-def library(request: Request, engine: EngineDep, label: str | None = None):
+def library(
+    request: Request,
+    engine: EngineDep,
+    jobs: Annotated[Dispatcher, Depends(jobs_of)],
+    label: str | None = None,
+):
     corpora = [store.summary(c) for c in store.list_corpora(engine)]
     label_values = sorted({f"{k}={v}" for c in corpora for k, v in c["labels"].items()})
     if label and "=" in label:
@@ -39,6 +44,7 @@ def library(request: Request, engine: EngineDep, label: str | None = None):
         request,
         "library.html",
         corpora=corpora,
+        arriving=jobs.uploads_under_way(),
         label_values=label_values,
         label=label,
         json_url="/api/corpora",
