@@ -18,7 +18,7 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.stats import binom, poisson
+from scipy.special import bdtrc, pdtrc
 
 from app.core.spectrum import Spectrum
 
@@ -36,6 +36,14 @@ class UnseenEstimate:
     value: float
     validity: str
     t: float | None = None
+
+
+def binomial_tail(m: np.ndarray, trials: int, q: float) -> np.ndarray:
+    """P(L >= m) for L ~ Binomial(trials, q): the survival function at m - 1 (scipy.special.bdtrc, the
+    sum of the terms m..trials), 0 for m > trials and 1 for m <= 0."""
+    m = np.asarray(m, dtype=float)
+    inside = np.clip(m - 1, 0, max(trials - 1, 0))
+    return np.where(m <= 0, 1.0, np.where(m - 1 < trials, bdtrc(inside, trials, q), 0.0))
 
 
 def _alternating_series(spectrum: Spectrum, t: float, weights: np.ndarray) -> float:
@@ -86,9 +94,9 @@ def smoothed_truncation_survival(
     m = np.asarray(m, dtype=float)
     if kind == "binomial":
         trials = max(1, round(0.5 * math.log(n_tokens * t * t / (t - 1), 3)))
-        return binom.sf(m - 1, trials, 2.0 / (t + 2.0))
+        return binomial_tail(m, trials, 2.0 / (t + 2.0))
     rate = math.log(n_tokens * (t + 1) ** 2 / (t - 1)) / (2 * t)
-    return poisson.sf(m - 1, rate)
+    return pdtrc(m - 1, rate)  # the Poisson survival function P(L > m - 1)
 
 
 def smoothed_good_toulmin(spectrum: Spectrum, t: float, kind: str = "binomial") -> UnseenEstimate:
@@ -121,7 +129,7 @@ def efron_thisted(spectrum: Spectrum, t: float, terms: int = 10) -> UnseenEstima
     _check_t(t)
     if terms < 1:
         raise ValueError("the Euler transform needs at least one term")
-    weights = binom.sf(spectrum.m - 1, terms, 1.0 / (1.0 + t))
+    weights = binomial_tail(spectrum.m, terms, 1.0 / (1.0 + t))
     value = _alternating_series(spectrum, t, weights)
     validity = (
         "a cross-check for t > 1; sensitive to the number of terms beyond t of a few (Efron & Thisted 1976)"

@@ -21,8 +21,7 @@ from typing import TYPE_CHECKING, Any
 
 import numpy as np
 from scipy.linalg import cholesky, solve_triangular
-from scipy.special import comb
-from scipy.stats import chi2
+from scipy.special import chdtrc, comb
 
 from app.core.spectrum import Spectrum
 
@@ -102,4 +101,4 @@ def chi_square(
     if whiten is None or not np.all(np.isfinite(d)):
         return GoodnessOfFit(m_max, df=df, reason="the Poisson covariance matrix is not positive definite")
     statistic = float(np.sum(whiten(d) ** 2))
-    return GoodnessOfFit(m_max, statistic, df, float(chi2.sf(statistic, df)))
+    return GoodnessOfFit(m_max, statistic, df, float(chdtrc(df, statistic)))
