@@ -22,7 +22,7 @@ def _settings(data_dir: Path | None):
     return Settings(data_dir=data_dir) if data_dir else get_settings()
 
 
-SHUTDOWN_SECONDS = 3
+SHUTDOWN_SECONDS = 2
 """Seconds a stopping server (SIGTERM, Ctrl-C) gives open requests before it closes them."""
 
 DataDir = Annotated[

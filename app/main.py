@@ -21,6 +21,7 @@ from app.services.jobs import Dispatcher
 from app.services.worker import TaskWorker
 from app.store.db import make_engine
 from app.web import api, compare, pages, security
+from app.web.caching import EntityTagMiddleware
 
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
@@ -66,6 +67,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = Dispatcher(app.state.engine, settings.work_dir, inline=not settings.task_worker)
     app.state.guard = security.Guard(settings, app.state.engine)
+    app.add_middleware(EntityTagMiddleware)
     app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
 
     @app.get("/static/vendor/plotly.min.js", include_in_schema=False)

@@ -140,7 +140,7 @@ def test_serve_on_this_computer_needs_no_account(data, started, host):
             "port": 8000,
             "log_level": "info",
             "proxy_headers": False,
-            "timeout_graceful_shutdown": 3,
+            "timeout_graceful_shutdown": 2,
         }
     ]
 
