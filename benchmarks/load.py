@@ -1,9 +1,15 @@
 """Load test of a running server: simulated users browsing the Library, Corpus and Comparison pages.
 
-Usage: ``python benchmarks/load.py [--url http://127.0.0.1:8000] [--users 20] [--duration 60]
-[--timeout 30]``
+Usage: ``python benchmarks/load.py [--url http://127.0.0.1:8000 | --serve 1,4 [--database-url URL]]
+[--users 20] [--duration 60] [--timeout 30] [--uploads]``
 
 The server must hold at least two corpora (``lexigrowth serve`` loads the demo corpora into an empty store).
+With ``--serve``, the script starts ``lexigrowth serve --workers N`` itself for each N given, on a new store
+(a new SQLite folder, or the PostgreSQL database of ``--database-url``, emptied first), waits until the demo
+corpora and their models are ready, runs the load, stops the server, and prints one table per N with the
+throughput relative to the first.
+With ``--uploads``, every user also pastes a 2,000-word text once per loop (``POST /api/corpora``, timed
+until the 202 that acknowledges it; the counting and fitting go on in the background meanwhile).
 Each user is a thread with its own HTTP connection (kept alive, as a browser does) and requests, in a loop
 and without pause, the Library (``/``), a Corpus page (``/corpora/{id}``, the corpora in turn) and a
 Comparison page (``/compare?corpus=..``, the live view of two or three corpora, in turn); users start at
@@ -22,15 +28,23 @@ from __future__ import annotations
 
 import argparse
 import math
+import os
+import random
+import shutil
+import socket
+import subprocess
 import sys
+import tempfile
 import threading
 import time
 from collections.abc import Sequence
 from dataclasses import dataclass
+from pathlib import Path
 
 import httpx
 
-PAGES = ("library", "corpus", "comparison")
+PAGES = ("library", "corpus", "comparison", "upload")
+UPLOAD_WORDS = 2_000
 PERCENTILES = (50, 95, 99)
 
 
@@ -71,41 +85,59 @@ def comparison_sets(ids: Sequence[int]) -> list[list[int]]:
     return [[ids[(start + k) % len(ids)] for k in range(2 + start % 2)] for start in range(len(ids))]
 
 
-def user_urls(ids: Sequence[int], user: int) -> list[tuple[str, str]]:
-    """The (page, URL) loop of one user: for each corpus in turn, the Library, its page and a comparison."""
+def user_urls(ids: Sequence[int], user: int, uploads: bool = False) -> list[tuple[str, str]]:
+    """The (page, URL) loop of one user: for each corpus in turn, the Library, its page and a comparison;
+    with ``uploads``, one upload at the end of the loop."""
     groups = comparison_sets(ids)
     loop = []
     for step in range(len(ids)):
         at = (user + step) % len(ids)
         query = "&".join(f"corpus={cid}" for cid in groups[at])
         loop += [("library", "/"), ("corpus", f"/corpora/{ids[at]}"), ("comparison", f"/compare?{query}")]
-    return loop
+    return loop + ([("upload", "/api/corpora")] if uploads else [])
+
+
+def upload_text(user: int, round_: int) -> str:
+    """A different text of ``UPLOAD_WORDS`` invented words for each user and round (a seeded generator)."""
+    rng = random.Random(user * 100_003 + round_)
+    return " ".join(f"w{int(rng.paretovariate(1.1)) % 50_000}" for _ in range(UPLOAD_WORDS))
 
 
 def run_user(base_url: str, urls: list[tuple[str, str]], deadline: float, timeout: float) -> list[Sample]:
     """Request ``urls`` in a loop until ``deadline`` (time.monotonic) and return every request's sample."""
     samples: list[Sample] = []
+    rounds = 0
     with httpx.Client(base_url=base_url, timeout=timeout) as client:
         while True:
+            rounds += 1
             for page, url in urls:
                 if time.monotonic() >= deadline:
                     return samples
                 started = time.perf_counter()
                 try:
-                    response = client.get(url)
-                    error = None if response.status_code == 200 else f"HTTP {response.status_code} {url}"
+                    if page == "upload":
+                        text = upload_text(
+                            int(threading.current_thread().name.rpartition("-")[2] or 0), rounds
+                        )
+                        response = client.post(url, data={"name": f"load {rounds}", "text": text})
+                        expected = 202
+                    else:
+                        response, expected = client.get(url), 200
+                    error = None if response.status_code == expected else f"HTTP {response.status_code} {url}"
                 except httpx.HTTPError as exc:
                     error = f"{type(exc).__name__} {url}"
                 samples.append(Sample(page, time.perf_counter() - started, error))
 
 
-def run_load(base_url: str, ids: Sequence[int], users: int, duration: float, timeout: float) -> list[Sample]:
+def run_load(
+    base_url: str, ids: Sequence[int], users: int, duration: float, timeout: float, uploads: bool = False
+) -> list[Sample]:
     """``users`` threads running ``run_user`` together for ``duration`` seconds; all their samples."""
     deadline = time.monotonic() + duration
     results: list[list[Sample]] = [[] for _ in range(users)]
 
     def user(index: int) -> None:
-        results[index] = run_user(base_url, user_urls(ids, index), deadline, timeout)
+        results[index] = run_user(base_url, user_urls(ids, index, uploads), deadline, timeout)
 
     threads = [threading.Thread(target=user, args=(i,), name=f"user-{i}") for i in range(users)]
     for thread in threads:
@@ -144,9 +176,81 @@ def corpus_ids(base_url: str, timeout: float) -> list[int]:
     return [c["id"] for c in response.json()]
 
 
+class StartedServer:
+    """``lexigrowth serve --workers N`` on a new store, ready when the demo corpora and their models are."""
+
+    def __init__(self, workers: int, database_url: str | None, timeout: float) -> None:
+        self.data_dir = Path(tempfile.mkdtemp(prefix="lexigrowth-load-"))
+        with socket.socket() as probe:
+            probe.bind(("127.0.0.1", 0))
+            self.port = probe.getsockname()[1]
+        env = {k: v for k, v in os.environ.items() if not k.startswith("LEXIGROWTH_")}
+        env["LEXIGROWTH_DATA_DIR"] = str(self.data_dir)
+        if database_url:
+            _empty_postgres(database_url)
+            env["LEXIGROWTH_DATABASE_URL"] = database_url
+        command = [str(Path(sys.executable).with_name("lexigrowth")), "serve", "--port", str(self.port)]
+        self.process = subprocess.Popen(
+            [*command, "--workers", str(workers)],
+            env=env,
+            stdout=subprocess.DEVNULL,
+            stderr=subprocess.DEVNULL,
+        )
+        self.url = f"http://127.0.0.1:{self.port}"
+        deadline = time.monotonic() + 600
+        while time.monotonic() < deadline:
+            try:
+                listed = httpx.get(f"{self.url}/api/corpora", timeout=timeout).json()
+                pending = httpx.get(f"{self.url}/api/jobs", timeout=timeout).json()
+                if (
+                    len(listed) >= 2
+                    and not pending
+                    and all(
+                        httpx.get(f"{self.url}/api/corpora/{c['id']}", timeout=timeout).json()["models"][
+                            "status"
+                        ]
+                        in ("ready", "failed")
+                        for c in listed
+                    )
+                ):
+                    return
+            except httpx.HTTPError:
+                pass
+            time.sleep(0.5)
+        self.stop()
+        raise SystemExit("the server did not get ready within 10 minutes")
+
+    def stop(self) -> None:
+        self.process.terminate()
+        self.process.wait(30)
+        shutil.rmtree(self.data_dir, ignore_errors=True)
+
+
+def _empty_postgres(url: str) -> None:
+    """Drop every table of the PostgreSQL database at ``url`` (a benchmark starts on an empty store)."""
+    import sqlalchemy as sa
+
+    engine = sa.create_engine(url)
+    with engine.begin() as connection:
+        connection.execute(sa.text("DROP SCHEMA public CASCADE; CREATE SCHEMA public"))
+    engine.dispose()
+
+
+def measure(base_url: str, args: argparse.Namespace) -> tuple[list[Sample], float, int]:
+    ids = corpus_ids(base_url, args.timeout)
+    if len(ids) < 2:
+        raise SystemExit(f"error: {base_url} holds {len(ids)} corpora; a comparison needs at least 2")
+    started = time.monotonic()
+    samples = run_load(base_url, ids, args.users, args.duration, args.timeout, args.uploads)
+    return samples, time.monotonic() - started, len(ids)
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     parser = argparse.ArgumentParser(description=__doc__.split("\n\n")[0])
     parser.add_argument("--url", default="http://127.0.0.1:8000", help="the server (default: %(default)s)")
+    parser.add_argument("--serve", help="start the server with these numbers of processes in turn (e.g. 1,4)")
+    parser.add_argument("--database-url", help="with --serve: a PostgreSQL URL (emptied first)")
+    parser.add_argument("--uploads", action="store_true", help="every user also uploads a text per loop")
     parser.add_argument("--users", type=int, default=20, help="simulated users (default: %(default)s)")
     parser.add_argument("--duration", type=float, default=60, help="seconds of load (default: %(default)s)")
     parser.add_argument(
@@ -155,24 +259,31 @@ def main(argv: Sequence[str] | None = None) -> int:
     args = parser.parse_args(argv)
     if args.users < 1 or args.duration <= 0 or args.timeout <= 0:
         parser.error("--users, --duration and --timeout must be positive")
-    base_url = args.url.rstrip("/")
-    try:
-        ids = corpus_ids(base_url, args.timeout)
-    except (httpx.HTTPError, ValueError, KeyError) as exc:
-        print(f"error: cannot list the corpora of {base_url}: {exc}", file=sys.stderr)
-        return 2
-    if len(ids) < 2:
-        print(f"error: {base_url} holds {len(ids)} corpora; a comparison needs at least 2", file=sys.stderr)
-        return 2
-
-    started = time.monotonic()
-    samples = run_load(base_url, ids, args.users, args.duration, args.timeout)
-    wall = time.monotonic() - started
-    rows = summarize(samples)
-    print(f"{args.users} users for {args.duration:g} s against {base_url} ({len(ids)} corpora)\n")
-    print(format_table(rows))
-    print(f"\n{len(samples):,} requests in {wall:.1f} s: {len(samples) / wall:.1f} requests/s")
-    errors = [s.error for s in samples if s.error]
+    runs = [int(n) for n in args.serve.split(",")] if args.serve else [None]
+    first_rate = None
+    errors: list[str] = []
+    for workers in runs:
+        server = StartedServer(workers, args.database_url, args.timeout) if workers else None
+        base_url = server.url if server else args.url.rstrip("/")
+        try:
+            samples, wall, corpora = measure(base_url, args)
+        except (httpx.HTTPError, ValueError, KeyError) as exc:
+            print(f"error: cannot list the corpora of {base_url}: {exc}", file=sys.stderr)
+            return 2
+        finally:
+            if server:
+                server.stop()
+        rate = len(samples) / wall
+        first_rate = first_rate or rate
+        store = "PostgreSQL" if args.database_url else "SQLite"
+        where = f"{workers} server process(es), {store}" if workers else base_url
+        print(f"\n{args.users} users for {args.duration:g} s against {where} ({corpora} corpora)\n")
+        print(format_table(summarize(samples)))
+        print(
+            f"\n{len(samples):,} requests in {wall:.1f} s: {rate:.1f} requests/s "
+            f"({rate / first_rate:.2f}x the first run)"
+        )
+        errors += [s.error for s in samples if s.error]
     for message in sorted(set(errors))[:10]:
         print(f"error: {message} (x{errors.count(message)})", file=sys.stderr)
     return 1 if errors else 0
