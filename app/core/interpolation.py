@@ -225,13 +225,21 @@ def _miss_sums(
     spectrum: Spectrum, N: int, n: int, s: np.ndarray, c: np.ndarray
 ) -> tuple[float, float, float, float]:
     """E[V(n)], U = sum_m V_m q_m, sum_s c_s q_s and sum_m V_m q_2m from one ``_log_miss`` call over all the
-    frequencies involved (one cumulative sum instead of four)."""
+    frequencies involved (one cumulative sum instead of four).
+
+    q_x is exactly 0 in double precision for x > N - n and for x >= J = ceil(LOG_FLOOR / log(1 - n / N)),
+    where the log sum has passed ``LOG_FLOOR``; the sorted pair sums beyond min(N - n + 1, J) are skipped.
+    """
     m = spectrum.m
     vm = spectrum.vm.astype(float)
-    log_q = _log_miss(N, n, np.concatenate([m, s, 2 * m]), LOG_FLOOR)
-    q_m, q_s, q_2m = np.split(np.exp(log_q), [m.size, m.size + s.size])
+    limit = N - n + 1
+    if 0 < n < N:
+        limit = min(limit, int(np.ceil(LOG_FLOOR / np.log1p(-n / N))))
+    kept = int(np.searchsorted(s, limit))
+    log_q = _log_miss(N, n, np.concatenate([m, s[:kept], 2 * m]), LOG_FLOOR)
+    q_m, q_s, q_2m = np.split(np.exp(log_q), [m.size, m.size + kept])
     types = float(np.dot(vm, -np.expm1(log_q[: m.size])))
-    return types, float(np.dot(vm, q_m)), float(np.dot(c, q_s)), float(np.dot(vm, q_2m))
+    return types, float(np.dot(vm, q_m)), float(np.dot(c[:kept], q_s)), float(np.dot(vm, q_2m))
 
 
 def variance_types_binomial(spectrum: Spectrum, n: float) -> float:
