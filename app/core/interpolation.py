@@ -48,7 +48,11 @@ DIRECT_TERMS = 256
 """Pieces shorter than this, or this close to the pole at j = N - n, are summed term by term."""
 
 
-def _log_miss(N: int, n: int, m: np.ndarray) -> np.ndarray:
+LOG_FLOOR = -800.0
+"""exp of anything below this is 0 in double precision (the smallest subnormal is about exp(-745))."""
+
+
+def _log_miss(N: int, n: int, m: np.ndarray, floor: float | None = None) -> np.ndarray:
     """log C(N - m, n) / C(N, n) = sum_{j<m} log(1 - n / (N - j)), -inf where m > N - n.
 
     Summed term by term (cumulatively up to the largest m, or up to ``DENSE_TERMS``) instead of as a
@@ -56,6 +60,11 @@ def _log_miss(N: int, n: int, m: np.ndarray) -> np.ndarray:
     E[V(n)] at small n on huge corpora. Frequencies beyond ``DENSE_TERMS`` (only in corpora of many
     millions of tokens, or absurd designs) continue from there with ``_sum_log_miss_terms``, so memory and
     time stay bounded whatever m.
+
+    With a ``floor`` (callers that only need exp of the result): every term is at most log(1 - n / N) < 0,
+    so the cumulative sum has passed the floor after J = ceil(floor / log(1 - n / N)) terms; it stops there
+    and any larger reachable m gets the sum of those J terms, a value <= floor like the true one. With the
+    floor at ``LOG_FLOOR`` both exponentiate to exactly 0, and the cost is O(min(max m, 800 N / n)).
     """
     m = np.asarray(m, dtype=np.int64)
     if m.size == 0:
@@ -64,10 +73,15 @@ def _log_miss(N: int, n: int, m: np.ndarray) -> np.ndarray:
     clipped = np.minimum(m, N - n)
     top = int(clipped.max())
     dense_top = min(top, DENSE_TERMS)
+    floored = False
+    if floor is not None and 0 < n < N:
+        enough = int(np.ceil(floor / np.log1p(-n / N)))  # terms after which the sum is <= floor
+        if enough < dense_top:
+            dense_top, floored = enough, True
     j = np.arange(dense_top, dtype=float)
     cumulative = np.concatenate([[0.0], np.cumsum(np.log1p(-n / (N - j)))])
     values = cumulative[np.minimum(clipped, dense_top)]
-    if top > dense_top:
+    if top > dense_top and not floored:
         far = clipped > dense_top
         stops = np.unique(clipped[far])
         starts = np.concatenate([[dense_top], stops[:-1]])
@@ -123,12 +137,13 @@ def _euler_maclaurin_log_miss(N: int, n: int, a: int, b: int) -> float:
 def prob_type_unseen(spectrum: Spectrum, n: int) -> np.ndarray:
     """C(N - m, n) / C(N, n) for every frequency m of the spectrum."""
     N = _check_size(spectrum, n)
-    return np.exp(_log_miss(N, int(n), spectrum.m))
+    return np.exp(_log_miss(N, int(n), spectrum.m, LOG_FLOOR))
 
 
 def expected_types(spectrum: Spectrum, n: int) -> float:
     """Exact E[V(n)] for a random sample of n tokens without replacement."""
-    return float(np.dot(spectrum.vm, -np.expm1(_log_miss(_check_size(spectrum, n), int(n), spectrum.m))))
+    log_miss = _log_miss(_check_size(spectrum, n), int(n), spectrum.m, LOG_FLOOR)
+    return float(np.dot(spectrum.vm, -np.expm1(log_miss)))
 
 
 def expected_spectrum(spectrum: Spectrum, n: int, k_max: int = 20) -> np.ndarray:
@@ -202,11 +217,29 @@ def variance_types(spectrum: Spectrum, n: int, _pairs: tuple[np.ndarray, np.ndar
     if n in (0, N) or spectrum.types == 0:
         return 0.0
     s, c = _pair_frequency_counts(spectrum) if _pairs is None else _pairs
-    vm = spectrum.vm.astype(float)
-    u = float(np.dot(vm, np.exp(_log_miss(N, n, spectrum.m))))
-    pair_sum = float(np.dot(c, np.exp(_log_miss(N, n, s))))
-    same_type = float(np.dot(vm, np.exp(_log_miss(N, n, 2 * spectrum.m))))
+    _, u, pair_sum, same_type = _miss_sums(spectrum, N, n, s, c)
     return max(u - u * u + pair_sum - same_type, 0.0)
+
+
+def _miss_sums(
+    spectrum: Spectrum, N: int, n: int, s: np.ndarray, c: np.ndarray
+) -> tuple[float, float, float, float]:
+    """E[V(n)], U = sum_m V_m q_m, sum_s c_s q_s and sum_m V_m q_2m from one ``_log_miss`` call over all the
+    frequencies involved (one cumulative sum instead of four).
+
+    q_x is exactly 0 in double precision for x > N - n and for x >= J = ceil(LOG_FLOOR / log(1 - n / N)),
+    where the log sum has passed ``LOG_FLOOR``; the sorted pair sums beyond min(N - n + 1, J) are skipped.
+    """
+    m = spectrum.m
+    vm = spectrum.vm.astype(float)
+    limit = N - n + 1
+    if 0 < n < N:
+        limit = min(limit, int(np.ceil(LOG_FLOOR / np.log1p(-n / N))))
+    kept = int(np.searchsorted(s, limit))
+    log_q = _log_miss(N, n, np.concatenate([m, s[:kept], 2 * m]), LOG_FLOOR)
+    q_m, q_s, q_2m = np.split(np.exp(log_q), [m.size, m.size + kept])
+    types = float(np.dot(vm, -np.expm1(log_q[: m.size])))
+    return types, float(np.dot(vm, q_m)), float(np.dot(c[:kept], q_s)), float(np.dot(vm, q_2m))
 
 
 def variance_types_binomial(spectrum: Spectrum, n: float) -> float:
@@ -240,10 +273,14 @@ def types_band(spectrum: Spectrum, n: int) -> TypesBand:
 
 def growth_band(spectrum: Spectrum, sizes: np.ndarray) -> list[TypesBand]:
     """Random-order expected type growth with its 95% band at each size."""
-    pairs = _pair_frequency_counts(spectrum)
-    return [
-        TypesBand(
-            int(n), expected_types(spectrum, int(n)), float(np.sqrt(variance_types(spectrum, int(n), pairs)))
-        )
-        for n in sizes
-    ]
+    N = spectrum.tokens
+    s, c = _pair_frequency_counts(spectrum)
+    bands = []
+    for n in (int(x) for x in sizes):
+        _check_size(spectrum, n)
+        if n in (0, N) or spectrum.types == 0:
+            bands.append(TypesBand(n, expected_types(spectrum, n), 0.0))
+            continue
+        types, u, pair_sum, same_type = _miss_sums(spectrum, N, n, s, c)
+        bands.append(TypesBand(n, types, float(np.sqrt(max(u - u * u + pair_sum - same_type, 0.0)))))
+    return bands

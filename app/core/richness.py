@@ -16,6 +16,7 @@ from dataclasses import asdict, dataclass
 import numpy as np
 
 from app.core.interpolation import expected_spectrum, expected_types
+from app.core.occurrences import previous_occurrences, reversed_previous
 from app.core.spectrum import Spectrum
 
 HDD_DRAWS = 42
@@ -87,80 +88,163 @@ def hd_d(spectrum: Spectrum, draws: int = HDD_DRAWS) -> float | None:
     return expected_types(spectrum, draws) / draws if spectrum.tokens >= draws else None
 
 
-def _neighbour_occurrences(type_ids: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """For each position, the previous and next position holding the same type (-1 and N when none)."""
-    n = type_ids.size
-    order = np.argsort(type_ids, kind="stable")
-    same_as_next = type_ids[order[1:]] == type_ids[order[:-1]]
-    prev = np.full(n, -1, dtype=np.int64)
-    nxt = np.full(n, n, dtype=np.int64)
-    prev[order[1:][same_as_next]] = order[:-1][same_as_next]
-    nxt[order[:-1][same_as_next]] = order[1:][same_as_next]
-    return prev, nxt
+_CHUNK = 1 << 20
+MTLD_CHAINS = 512
+"""Chains of factors followed side by side in the first stage of ``mtld_factors``."""
+MTLD_WIDTH = 128
+"""Tokens examined per chain and step; about one MTLD factor of English text."""
 
 
-def mattr(type_ids: np.ndarray, window: int = MATTR_WINDOW) -> float | None:
+def mattr(type_ids: np.ndarray, window: int = MATTR_WINDOW, prev: np.ndarray | None = None) -> float | None:
     """Moving-average TTR (Covington & McFall 2010): the mean TTR of every window of ``window`` consecutive
-    tokens; undefined when the text is shorter than the window.
+    tokens; undefined when the text is shorter than the window. ``prev`` (``previous_occurrences`` of the
+    text) may be passed when already computed.
 
-    Vectorised: the first window's type count is the number of its tokens whose previous occurrence lies
-    before it. Sliding by one removes the leaving token, which takes its type out when its next occurrence
-    lies beyond the window - 1 tokens that stay, then adds the entering token, which brings a new type when
-    its previous occurrence lies before them; a cumulative sum of these +-1 steps gives every window.
+    With prev[i] the previous position of the type at i, the window [s, s + W) holds the types whose first
+    position in it, i, has prev[i] < s. Summing over positions instead of over the N - W + 1 windows, token i
+    is such a first position for the starts max(i - W + 1, prev[i] + 1) <= s <= min(i, N - W), so
+
+        MATTR = sum_i max(0, min(i, N - W) - max(i - W + 1, prev[i] + 1) + 1) / (W (N - W + 1)),
+
+    an exact integer sum divided once, computed in chunks of bounded memory.
     """
-    ids = np.asarray(type_ids)
-    n = ids.size
+    n = int(type_ids.size)
     if window < 1:
         raise ValueError("the MATTR window must hold at least one token")
     if n < window:
         return None
-    prev, nxt = _neighbour_occurrences(ids)
-    first = int(np.count_nonzero(prev[:window] < 0))
-    start = np.arange(n - window)  # window [s, s + window) slides to [s + 1, s + window + 1)
-    step = (prev[start + window] <= start).astype(np.int64) - (nxt[start] >= start + window)
-    counts = first + np.concatenate(([0], np.cumsum(step)))
-    return float(counts.sum()) / (window * counts.size)
+    if prev is None:
+        prev = previous_occurrences(type_ids)
+    total = 0
+    for base in range(0, n, _CHUNK):
+        i = np.arange(base, min(base + _CHUNK, n), dtype=np.int64)
+        low = np.maximum(i - window + 1, prev[base : base + i.size].astype(np.int64) + 1)
+        high = np.minimum(i, n - window)
+        total += int(np.maximum(high - low + 1, 0).sum())
+    return float(total) / (window * (n - window + 1))
 
 
-def _mtld_factors(ids: list[int], n_types: int, threshold: float) -> float:
-    """Number of factors of one MTLD pass: a factor ends when the running TTR of the current segment falls to
-    the threshold or below; the unfinished last segment counts (1 - TTR) / (1 - threshold)."""
-    segment_of = [-1] * n_types  # segment in which each type was last seen
-    segment = factors = length = types = 0
-    for t in ids:
-        length += 1
-        if segment_of[t] != segment:
-            segment_of[t] = segment
-            types += 1
-        if types / length <= threshold:
+def _scan_factor(prev: np.ndarray, start: int, pos: int, types: int, threshold: float) -> tuple[int, int]:
+    """Continue the factor that began at ``start`` from position ``pos``, holding ``types`` types so far.
+
+    Returns (end, 0) with ``end`` the position where the running TTR first falls to the threshold or below,
+    or (N, types of the unfinished factor) when the text ends first. Windows double from ``MTLD_WIDTH``.
+    """
+    n = prev.size
+    width = MTLD_WIDTH
+    while pos < n:
+        window = prev[pos : pos + width]
+        count = types + np.cumsum(window < start)
+        length = np.arange(pos - start + 1, pos - start + 1 + window.size)
+        ended = np.flatnonzero(count / length <= threshold)
+        if ended.size:
+            return pos + int(ended[0]), 0
+        types = int(count[-1])
+        pos += window.size
+        width = min(2 * width, _CHUNK)
+    return n, types
+
+
+def mtld_factors(prev: np.ndarray, threshold: float = MTLD_THRESHOLD) -> float:
+    """Factors of one MTLD pass (McCarthy & Jarvis 2010) over a text given by its previous occurrences.
+
+    A factor starting at a holds, after position t, the types of the positions i in [a, t] with prev[i] < a;
+    it ends at the first t where that count divided by t - a + 1 falls to the threshold or below, and the
+    next factor starts at t + 1. The unfinished last factor counts (1 - TTR) / (1 - threshold).
+
+    The pass is sequential, but where a factor ends depends only on where it starts. Stage 1 cuts the text
+    into blocks and follows a chain of factors from every block start at once (one NumPy step advances every
+    chain by a factor or by ``MTLD_WIDTH`` tokens), recording each chain's factor starts inside its block.
+    Stage 2 walks the true chain from position 0: from the first start it shares with the chain of a block
+    the two coincide, so it takes that chain's count of factor ends in the block; at the block end it goes on
+    factor by factor until it reaches a start recorded by a later chain. Chains of real text meet within a
+    few factors, so stage 2 is short; any text (even one without factors) gets the exact sequential count.
+    """
+    n = int(prev.size)
+    if n == 0:
+        return 0.0
+    block = max(-(-n // MTLD_CHAINS), 4 * MTLD_WIDTH)
+    block_start = np.arange(0, n, block, dtype=np.int64)
+    block_end = np.minimum(block_start + block, n)
+    chains = block_start.size
+    ends_in_block = np.zeros(chains, dtype=np.int64)
+    last_start = block_start.copy()
+    last_types = np.zeros(chains, dtype=np.int64)
+    recorded = [block_start]
+    # stage 1: every chain inside its own block, side by side
+    active = np.arange(chains)
+    start, pos, types = block_start.copy(), block_start.copy(), np.zeros(chains, dtype=np.int64)
+    offsets = np.arange(MTLD_WIDTH)
+    while active.size:
+        stop = block_end[active]
+        index = pos[:, None] + offsets
+        inside = index < stop[:, None]
+        window = prev[np.minimum(index, n - 1)]
+        count = types[:, None] + np.cumsum(window < start[:, None], axis=1)
+        length = (pos - start + 1)[:, None] + offsets
+        hit = (count / length <= threshold) & inside
+        ended = hit.any(axis=1)
+        end = pos + hit.argmax(axis=1)
+        ends_in_block[active[ended]] += 1
+        following = end[ended] + 1
+        recorded.append(following[following < stop[ended]])
+        unfinished = ~ended
+        seen = np.minimum(stop[unfinished] - pos[unfinished], MTLD_WIDTH)
+        types[unfinished] = count[unfinished, seen - 1]
+        pos[unfinished] += seen
+        start[ended] = following
+        pos[ended] = following
+        types[ended] = 0
+        done = pos >= stop
+        last_start[active[done]] = start[done]
+        last_types[active[done]] = types[done]
+        keep = ~done
+        active, start, pos, types = active[keep], start[keep], pos[keep], types[keep]
+    starts = np.sort(np.concatenate(recorded))
+    first_index = np.searchsorted(starts, block_start)
+    # stage 2: the true chain
+    factors, chain, index = 0, 0, 0
+    while True:
+        factors += int(ends_in_block[chain]) - (index - int(first_index[chain]))
+        a, t, p = int(last_start[chain]), int(last_types[chain]), int(block_end[chain])
+        while True:
+            if a >= n:
+                return float(factors)
+            if a == p:  # a fresh factor: if a later chain recorded this start, follow that chain
+                k = int(np.searchsorted(starts, a))
+                if k < starts.size and starts[k] == a:
+                    chain = int(np.searchsorted(block_start, a, side="right")) - 1
+                    index = k
+                    break
+            end, t = _scan_factor(prev, a, p, t, threshold)
+            if end >= n:
+                return factors + (1 - t / (n - a)) / (1 - threshold)
             factors += 1
-            segment += 1
-            length = types = 0
-    if length:
-        return factors + (1 - types / length) / (1 - threshold)
-    return float(factors)
+            a = p = end + 1
+            t = 0
 
 
-def mtld(type_ids: np.ndarray, threshold: float = MTLD_THRESHOLD) -> float | None:
+def mtld(
+    type_ids: np.ndarray, threshold: float = MTLD_THRESHOLD, prev: np.ndarray | None = None
+) -> float | None:
     """Measure of textual lexical diversity (McCarthy & Jarvis 2010): N / (number of factors), averaged over a
     forward and a backward pass; a factor is a stretch of text whose running TTR has fallen to ``threshold``,
     and the leftover stretch counts as the partial factor (1 - TTR) / (1 - threshold).
 
     A pass with no factor at all (every token a new type) counts the whole text as one factor. Undefined for
-    an empty text.
+    an empty text. Both passes run on previous occurrences (``mtld_factors``; ``prev`` may be passed when
+    already computed), with no per-token Python objects.
     """
-    ids = np.asarray(type_ids)
-    if ids.size == 0:
+    n = int(type_ids.size)
+    if n == 0:
         return None
     if not 0 < threshold < 1:
         raise ValueError("the MTLD threshold must lie strictly between 0 and 1")
-    _, dense = np.unique(ids, return_inverse=True)
-    n_types = int(dense.max()) + 1
-    measures = [
-        ids.size / (_mtld_factors(seq, n_types, threshold) or 1.0)
-        for seq in (dense.tolist(), dense[::-1].tolist())
-    ]
-    return (measures[0] + measures[1]) / 2
+    if prev is None:
+        prev = previous_occurrences(type_ids)
+    forward = mtld_factors(prev, threshold)
+    backward = mtld_factors(reversed_previous(prev), threshold)
+    return (n / (forward or 1.0) + n / (backward or 1.0)) / 2
 
 
 @dataclass(frozen=True)

@@ -12,6 +12,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
+from app.core import richness
+from app.core.occurrences import previous_occurrences
+
 MAX_SEGMENTS = 200
 
 
@@ -33,21 +36,54 @@ def segment_sizes(tokens: int, smallest: int = 50, points: int = 24) -> np.ndarr
     return np.unique(np.geomspace(smallest, largest, points).astype(np.int64))
 
 
-def segment_spread(type_ids: np.ndarray, size: int, max_segments: int = MAX_SEGMENTS) -> SegmentSpread:
+def segment_spread(
+    type_ids: np.ndarray, size: int, max_segments: int = MAX_SEGMENTS, prev: np.ndarray | None = None
+) -> SegmentSpread:
     """V of each non-overlapping segment of ``size`` tokens (evenly chosen when there are more than
-    ``max_segments`` of them); its mean and sample standard deviation."""
+    ``max_segments`` of them); its mean and sample standard deviation.
+
+    The segment [s, s + size) holds as many types as it has positions i with prev[i] < s (each type counted
+    at its first position in the segment), ``prev`` being ``previous_occurrences`` of the text (computed
+    here when not given): one comparison per token instead of a sort per segment.
+    """
     count = type_ids.size // size
     if count < 1:
         raise ValueError(f"a segment of {size} tokens is longer than the text ({type_ids.size} tokens)")
+    if prev is None:
+        prev = previous_occurrences(type_ids)
     starts = np.unique(np.linspace(0, count - 1, min(count, max_segments)).astype(np.int64)) * size
-    types = np.array([np.unique(np.asarray(type_ids[s : s + size])).size for s in starts], dtype=float)
+    types = np.array([np.count_nonzero(prev[s : s + size] < s) for s in starts], dtype=float)
     sd = float(types.std(ddof=1)) if types.size > 1 else 0.0
     return SegmentSpread(int(size), float(types.mean()), sd, int(types.size))
 
 
-def text_order_spread(type_ids: np.ndarray) -> list[SegmentSpread]:
+def text_order_spread(type_ids: np.ndarray, prev: np.ndarray | None = None) -> list[SegmentSpread]:
     """Segment spreads at log-spaced sizes for the whole text."""
-    return [segment_spread(type_ids, int(s)) for s in segment_sizes(type_ids.size)]
+    if prev is None:
+        prev = previous_occurrences(type_ids)
+    return [segment_spread(type_ids, int(s), prev=prev) for s in segment_sizes(type_ids.size)]
+
+
+@dataclass(frozen=True)
+class TextOrderStatistics:
+    """MATTR, MTLD and segment spreads of one text, measured on ``measured_tokens`` tokens in text order."""
+
+    measured_tokens: int
+    mattr: float | None
+    mtld: float | None
+    segments: list[SegmentSpread]
+
+
+def text_order_statistics(type_ids: np.ndarray) -> TextOrderStatistics:
+    """Every text-order statistic from one computation of the previous occurrences (O(N), memory: two
+    position arrays of N entries, int32 below 2^31 tokens, besides ``type_ids``, which may be a memmap)."""
+    prev = previous_occurrences(type_ids)
+    return TextOrderStatistics(
+        int(type_ids.size),
+        richness.mattr(type_ids, prev=prev),
+        richness.mtld(type_ids, prev=prev),
+        text_order_spread(type_ids, prev),
+    )
 
 
 def interpolate_spread(spreads: list[SegmentSpread], size: float) -> tuple[float, float] | None:

@@ -10,7 +10,7 @@ from pathlib import Path
 from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
-from app.core import richness, text_order
+from app.core import text_order
 from app.ingest.counting import count_sources
 from app.ingest.engines import EngineName
 from app.ingest.profiles import TokenizationProfile
@@ -77,12 +77,12 @@ def check_name(name: str) -> str:
 
 def text_order_statistics(type_ids) -> dict:
     """MATTR, MTLD and segment spreads on the text-order sequence of type ids (capped for huge corpora)."""
-    ids = type_ids[:MAX_TEXT_ORDER_TOKENS]
+    measured = text_order.text_order_statistics(type_ids[:MAX_TEXT_ORDER_TOKENS])
     return {
-        "measured_tokens": int(ids.size),
-        "mattr": richness.mattr(ids),
-        "mtld": richness.mtld(ids),
-        "segments": [asdict(s) for s in text_order.text_order_spread(ids)],
+        "measured_tokens": measured.measured_tokens,
+        "mattr": measured.mattr,
+        "mtld": measured.mtld,
+        "segments": [asdict(s) for s in measured.segments],
     }
 
 

@@ -15,6 +15,7 @@ import pytest
 from scipy.stats import hypergeom
 
 from app.core.interpolation import (
+    LOG_FLOOR,
     _log_miss,
     expected_spectrum,
     expected_spectrum_binomial,
@@ -186,3 +187,56 @@ def test_miss_probability_beyond_the_sample_complement_is_zero() -> None:
     assert unseen[10**9 - 5] == 0.0 == hypergeom.pmf(0, N, 10**9 - 5, 10)
     # C(N-2, 10) / C(N, 10) = (N-10)(N-11) / (N(N-1)) exactly (scipy's log-gamma form is off by 2e-8 here).
     assert unseen[2] == pytest.approx(float(Fraction((N - 10) * (N - 11), N * (N - 1))), rel=1e-15)
+
+
+# A corpus with very frequent types (frequencies up to 6e5 of N ~ 1.1e6): at these sample sizes the miss
+# probabilities of the frequent types, and of most pair sums in the variance, underflow to 0 after a few
+# thousand terms, where the floored cumulative sum stops.
+FREQUENT = [600_000, 300_000, 120_000, 45_000, 9_000, 700, 120, 30, 7, 3, 2, 2] + [1] * 40
+
+
+@pytest.mark.parametrize("n", [2, 500, 20_000, 400_000, 1_000_000])
+def test_floored_miss_sum_changes_nothing_visible(n: int) -> None:
+    spectrum = Spectrum.from_frequencies(np.array(FREQUENT))
+    N = spectrum.tokens
+    frequencies = np.concatenate([spectrum.m, 2 * spectrum.m, np.arange(1, 2 * spectrum.m[-1], 997)])
+    full = _log_miss(N, n, frequencies)
+    floored = _log_miss(N, n, frequencies, floor=LOG_FLOOR)
+    # identical where the full sum stays above the floor, and below the floor wherever it does not
+    above = full > LOG_FLOOR
+    np.testing.assert_array_equal(floored[above], full[above])
+    assert np.all(floored[~above] <= LOG_FLOOR)
+    assert n < 20_000 or not above.all()  # the floor is reached in the larger samples (the fast path is used)
+    np.testing.assert_array_equal(np.exp(floored), np.exp(full))
+
+
+@pytest.mark.parametrize("n", [2, 500, 20_000, 400_000, 1_000_000])
+def test_expected_types_and_variance_with_very_frequent_types_match_mpmath(n: int) -> None:
+    # reference: miss probabilities C(N - f, n) / C(N, n) from mpmath's log-gamma at 40 digits (type by type,
+    # and for two distinct types both missed, f_i + f_j); scipy.stats.hypergeom.pmf(0, ...) agrees to ~1e-8
+    mpmath = pytest.importorskip("mpmath")
+    mpmath.mp.dps = 40
+    spectrum = Spectrum.from_frequencies(np.array(FREQUENT))
+    N = spectrum.tokens
+
+    def miss(f: int):
+        if f > N - n:
+            return mpmath.mpf(0)
+        lg = mpmath.loggamma
+        return mpmath.exp(lg(N - f + 1) - lg(N - f - n + 1) - lg(N + 1) + lg(N - n + 1))
+
+    f = FREQUENT
+    q = {x: miss(x) for x in set(f)}
+    expected = sum(1 - q[x] for x in f)
+    pair = {x + y: miss(x + y) for x in set(f) for y in set(f)}
+    variance = sum(q[x] * (1 - q[x]) for x in f) + sum(
+        pair[f[i] + f[j]] - q[f[i]] * q[f[j]] for i in range(len(f)) for j in range(len(f)) if i != j
+    )
+    assert expected_types(spectrum, n) == pytest.approx(float(expected), rel=1e-12)
+    assert expected_types(spectrum, n) == pytest.approx(
+        float(np.sum(1 - hypergeom.pmf(0, N, f, n))), rel=1e-7
+    )
+    assert variance_types(spectrum, n) == pytest.approx(float(variance), rel=1e-8, abs=1e-12)
+    (band,) = growth_band(spectrum, np.array([n]))
+    assert band.types == expected_types(spectrum, n)
+    assert band.sd == pytest.approx(np.sqrt(variance_types(spectrum, n)), rel=1e-12)
