@@ -20,6 +20,8 @@ from app.services.ingestion import load_demo_corpora
 from app.services.jobs import JobRunner
 from app.store.db import make_engine
 from app.web import api, compare, pages, security
+from app.web.jsonsafe import FiniteJSONResponse
+from app.web.limits import BodyLimitMiddleware, HeadMiddleware
 
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
@@ -48,13 +50,17 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         dependencies=[Depends(security.csrf_protect)],
         docs_url=None,  # served by app.web.security with their own Content-Security-Policy
         redoc_url=None,
+        default_response_class=FiniteJSONResponse,
     )
     settings.data_dir.mkdir(parents=True, exist_ok=True)
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = JobRunner()
     app.state.guard = security.Guard(settings, app.state.engine)
+    # Outermost first: HEAD as GET, then the viewer and security headers, then the body limits.
+    app.add_middleware(BodyLimitMiddleware, upload_mb=settings.max_upload_mb)
     app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
+    app.add_middleware(HeadMiddleware)
 
     @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
     def plotly_js() -> FileResponse:

@@ -5,7 +5,6 @@ from __future__ import annotations
 from typing import Annotated
 
 from fastapi import APIRouter, Depends, File, Form, HTTPException, Path, Query, Request, Response, UploadFile
-from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field, field_validator
 from sqlalchemy.engine import Engine
 
@@ -18,6 +17,7 @@ from app.store import accounts
 from app.store import corpora as store
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
+from app.web.jsonsafe import FiniteJSONResponse
 from app.web.uploads import parse_profile, receive
 
 router = APIRouter(prefix="/api", tags=["api"])
@@ -46,7 +46,12 @@ def list_corpora(engine: EngineDep) -> list[dict]:
     return [store.summary(c) for c in store.list_corpora(engine)]
 
 
-@router.post("/corpora", status_code=201)
+# The pasted text is one form field: it may be as large as the body limit allows (app.web.limits), which
+# receive() then holds to the upload limit; Starlette's own default would stop it at 1 MB.
+PASTED_TEXT_PART_BYTES = 1 << 40
+
+
+@router.post("/corpora", status_code=201, form_limits={"max_part_size": PASTED_TEXT_PART_BYTES})
 def upload_corpus(
     request: Request,
     engine: EngineDep,
@@ -88,7 +93,7 @@ def upload_corpus(
             upload.cleanup()
         return store.summary(store.get_corpus(engine, corpus_id))
     job = jobs.submit(work, cleanup=upload.cleanup)
-    return JSONResponse(job.as_dict() | {"url": f"/api/jobs/{job.id}"}, status_code=202)
+    return FiniteJSONResponse(job.as_dict() | {"url": f"/api/jobs/{job.id}"}, status_code=202)
 
 
 @router.get("/jobs/{job_id}")

@@ -26,6 +26,7 @@ from app.web.compare_figures import comparison_figures
 from app.web.deps import engine_of
 from app.web.downloads import attachment
 from app.web.figures import PALETTE
+from app.web.jsonsafe import FiniteJSONResponse
 from app.web.pages import render
 from app.web.security import Viewer, viewer_of
 
@@ -187,7 +188,7 @@ def _stem(snapshot: dict[str, Any]) -> str:
 
 def _json(snapshot: dict[str, Any], download: bool) -> JSONResponse:
     headers = {"Content-Disposition": f'attachment; filename="{_stem(snapshot)}.json"'} if download else None
-    return JSONResponse(snapshot, headers=headers)
+    return FiniteJSONResponse(snapshot, headers=headers)
 
 
 def _table_csv(snapshot: dict[str, Any]) -> Response:
