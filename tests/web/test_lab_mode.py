@@ -35,14 +35,7 @@ from app.store import accounts
 from app.store import corpora as store
 from app.store.corpora import get_corpus
 from app.store.db import make_engine
-from app.web.security import (
-    CONTENT_SECURITY_POLICY,
-    SESSION_COOKIE,
-    SIGN_IN_FAILURES_PER_ADDRESS,
-    SIGN_IN_FAILURES_PER_NAME,
-    SIGN_IN_WINDOW_SECONDS,
-    SignInThrottle,
-)
+from app.web.security import CONTENT_SECURITY_POLICY, SESSION_COOKIE
 from tests.conftest import stdlib_docstrings
 from tests.store.test_corpora import record
 
@@ -285,47 +278,6 @@ def sign_in_attempt(browser: TestClient, name: str, password: str):
     )
 
 
-def test_repeated_failed_sign_ins_are_refused_for_a_while(lab):
-    # OWASP Authentication Cheat Sheet: limit failed attempts per account and per source address.
-    guessing = lab.client(client=("198.51.100.7", 40000))
-    for attempt in range(SIGN_IN_FAILURES_PER_NAME):
-        assert sign_in_attempt(guessing, "mallory", f"guess {attempt}").status_code == 401
-    refused = sign_in_attempt(lab.client(client=("198.51.100.8", 40000)), "Mallory", "another guess")
-    assert refused.status_code == 429 and "Too many failed sign-ins" in refused.text
-    assert 0 < int(refused.headers["retry-after"]) <= SIGN_IN_WINDOW_SECONDS
-
-    # Per address: many names from one address, then even a right password from there waits.
-    sweeping = lab.client(client=("198.51.100.9", 40000))
-    for attempt in range(SIGN_IN_FAILURES_PER_ADDRESS):
-        assert sign_in_attempt(sweeping, f"member{attempt}", "password").status_code == 401
-    assert sign_in_attempt(sweeping, "ben", lab.passwords["ben"]).status_code == 429
-    assert sign_in_attempt(lab.client(), "ben", lab.passwords["ben"]).status_code == 303  # elsewhere: fine
-
-
-def test_sign_in_throttle_forgets_failures_after_the_window() -> None:
-    now = [0.0]
-    throttle = SignInThrottle(per_address=3, per_name=2, window_seconds=60, clock=lambda: now[0])
-    throttle.failed("a", "ben")
-    now[0] = 10.0
-    throttle.failed("a", "ben")
-    assert throttle.wait_seconds("b", "BEN ") == 50.0  # the name, whatever the address and case
-    assert throttle.wait_seconds("a", "cleo") == 0.0  # the address has one failure left
-    throttle.failed("a", "cleo")
-    assert throttle.wait_seconds("a", "dora") == 50.0
-    now[0] = 59.0
-    assert throttle.wait_seconds("a", "ben") == 1.0
-    now[0] = 60.0
-    assert throttle.wait_seconds("a", "ben") == 0.0  # the first failure left the window
-
-
-def test_sign_in_throttle_remembers_a_bounded_number_of_keys() -> None:
-    throttle = SignInThrottle(per_address=1, per_name=1, window_seconds=60, clock=lambda: 0.0)
-    for i in range(SignInThrottle.MAX_KEYS):
-        throttle.failed(f"address {i}", f"name {i}")
-    assert len(throttle._failures) <= SignInThrottle.MAX_KEYS
-    assert throttle.wait_seconds(f"address {SignInThrottle.MAX_KEYS - 1}", "x") > 0  # the newest are kept
-
-
 @pytest.mark.parametrize(
     "target", ["//evil.example/x", "https://evil.example", "/\\evil.example", "javascript:x"]
 )
@@ -357,7 +309,7 @@ def test_forged_or_stale_sessions_are_not_accepted(lab):
     browser, _ = lab.signed_in("cleo")
     value = browser.cookies[SESSION_COOKIE]
     timestamp, signature = value.rsplit(".", 2)[1:]
-    # cleo's signature on a session that claims to be the admin's, with the admin's right password stamp
+    # cleo's signature on a session that claims to be the admin's (as cookies of an older version did)
     admin = accounts.member_by_token(lab.app.state.engine, lab.tokens["ada"])
     claims = {"uid": admin.id, "stamp": admin.password_stamp, "csrf": "x"}
     forged = base64.urlsafe_b64encode(json.dumps(claims).encode()).decode().rstrip("=")
