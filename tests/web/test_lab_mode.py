@@ -22,6 +22,7 @@ import subprocess
 import sys
 import time
 from dataclasses import dataclass
+from datetime import UTC, datetime, timedelta
 from functools import lru_cache
 from pathlib import Path
 
@@ -31,11 +32,11 @@ from sqlalchemy import text
 
 from app.config import Settings
 from app.main import create_app
-from app.store import accounts
+from app.store import accounts, signins
 from app.store import corpora as store
 from app.store.corpora import get_corpus
 from app.store.db import make_engine
-from app.web.security import CONTENT_SECURITY_POLICY, SESSION_COOKIE
+from app.web.security import CONTENT_SECURITY_POLICY, SESSION_COOKIE, SIGN_IN_ALLOWANCE
 from tests.conftest import stdlib_docstrings
 from tests.store.test_corpora import record
 
@@ -276,6 +277,83 @@ def sign_in_attempt(browser: TestClient, name: str, password: str):
         data={"name": name, "password": password, "csrf_token": hidden_csrf(form.text)},
         follow_redirects=False,
     )
+
+
+def test_repeated_failed_sign_ins_slow_the_guesser_but_not_the_member(lab):
+    # OWASP Authentication Cheat Sheet: throttle failed attempts, without letting an attacker lock an
+    # account out (per name and address, exponential back-off).
+    engine = lab.app.state.engine
+    guessing = lab.client(client=("198.51.100.7", 40000))
+    for attempt in range(SIGN_IN_ALLOWANCE.pair):
+        assert sign_in_attempt(guessing, "cleo", f"guess {attempt}").status_code == 401
+    refused = sign_in_attempt(guessing, "Cleo", lab.passwords["cleo"])  # even the right password waits
+    assert refused.status_code == 429 and "Too many failed sign-ins" in refused.text
+    assert 0 < int(refused.headers["retry-after"]) <= 2
+    # cleo herself, from her own address, is not locked out
+    assert (
+        sign_in_attempt(lab.client(client=("203.0.113.5", 40000)), "cleo", lab.passwords["cleo"]).status_code
+        == 303
+    )
+    # each further failure doubles the wait (counted in the store, so every server process sees it)
+    now = datetime.now(UTC)
+    waits = []
+    for _ in range(4):
+        signins.failed(engine, "cleo", "198.51.100.7", now)
+        waits.append(round(signins.wait_seconds(engine, "cleo", "198.51.100.7", SIGN_IN_ALLOWANCE, now)))
+    assert waits == [4, 8, 16, 32]
+    later = now + timedelta(hours=25)  # forgotten after a day
+    assert signins.wait_seconds(engine, "cleo", "198.51.100.7", SIGN_IN_ALLOWANCE, later) == 0
+    another_process = create_app(Settings(data_dir=lab.data_dir, load_demo=False))
+    with TestClient(another_process, client=("198.51.100.7", 40000)) as other:
+        assert sign_in_attempt(other, "cleo", lab.passwords["cleo"]).status_code == 429
+    signins.clear(engine, "cleo")
+
+
+def test_many_names_from_one_address_are_slowed(lab):
+    sweeping = lab.client(client=("198.51.100.9", 40000))
+    for attempt in range(SIGN_IN_ALLOWANCE.address):
+        assert sign_in_attempt(sweeping, f"member{attempt}", "password").status_code == 401
+    assert sign_in_attempt(sweeping, "ben", lab.passwords["ben"]).status_code == 429
+    assert sign_in_attempt(lab.client(), "ben", lab.passwords["ben"]).status_code == 303  # elsewhere: fine
+    signins.clear(lab.app.state.engine, address="198.51.100.9")
+
+
+def test_sign_out_ends_the_session_for_a_copied_cookie_too(lab):
+    browser, csrf = lab.signed_in("cleo")
+    copy = lab.client()
+    copy.cookies.set(SESSION_COOKIE, browser.cookies[SESSION_COOKIE])
+    assert copy.get("/", follow_redirects=False).status_code == 200  # the copy works while signed in
+    assert browser.post("/logout", data={"csrf_token": csrf}, follow_redirects=False).status_code == 303
+    assert copy.get("/", follow_redirects=False).status_code == 303  # ... and not after sign-out
+    before = len(store.list_corpora(lab.app.state.engine))
+    stolen = copy.post(
+        "/api/corpora?wait=1",
+        data={"name": "after sign-out"},
+        files={"files": ("a.txt", b"some words here", "text/plain")},
+        headers={"X-CSRF-Token": csrf},
+    )
+    assert stolen.status_code == 401
+    assert len(store.list_corpora(lab.app.state.engine)) == before
+    # the same in another server process on the same store
+    with TestClient(create_app(Settings(data_dir=lab.data_dir, load_demo=False))) as other:
+        other.cookies.set(SESSION_COOKIE, browser.cookies.get(SESSION_COOKIE) or copy.cookies[SESSION_COOKIE])
+        assert other.get("/", follow_redirects=False).status_code == 303
+
+
+def test_password_change_ends_every_session_and_revokes_tokens_when_asked(lab):
+    engine = lab.app.state.engine
+    first, _ = lab.signed_in("cleo")
+    second, _ = lab.signed_in("cleo")
+    token = accounts.new_token(engine, "cleo")
+    change = accounts.set_password(engine, "cleo", lab.passwords["cleo"])
+    assert change.sessions_ended >= 2 and change.tokens_revoked == 0 and change.tokens_kept >= 1
+    for browser in (first, second):
+        assert browser.get("/", follow_redirects=False).status_code == 303
+    assert lab.client().get("/api/corpora", headers=bearer(token)).status_code == 200  # kept: still works
+    change = accounts.set_password(engine, "cleo", lab.passwords["cleo"], revoke_tokens=True)
+    assert change.tokens_revoked >= 1 and change.tokens_kept == 0
+    assert lab.client().get("/api/corpora", headers=bearer(token)).status_code == 401
+    lab.tokens["cleo"] = accounts.new_token(engine, "cleo")  # for the tests that follow
 
 
 @pytest.mark.parametrize(
