@@ -539,6 +539,86 @@ def test_public_permalink_is_visible_without_sign_in_and_shows_no_words(lab):
     assert visitor.post("/compare", data={"corpus": ["1", "2"]}, follow_redirects=False).status_code == 303
 
 
+def test_a_member_publishes_only_their_own_corpora(lab):
+    engine = lab.app.state.engine
+    cleo, csrf = lab.signed_in("cleo")
+    before = len(lab_comparisons(engine))
+    refused = cleo.post(
+        "/api/comparisons", json={"corpora": lab.corpora, "public": True}, headers={"X-CSRF-Token": csrf}
+    )
+    assert refused.status_code == 403 and "only corpora you uploaded" in refused.json()["detail"]
+    page = cleo.post(
+        "/compare",
+        data={"corpus": [str(i) for i in lab.corpora], "public": "true", "csrf_token": csrf},
+        follow_redirects=False,
+    )
+    assert page.status_code == 403
+    assert len(lab_comparisons(engine)) == before  # nothing saved
+    members_only = cleo.post(
+        "/api/comparisons", json={"corpora": lab.corpora}, headers={"X-CSRF-Token": csrf}
+    )
+    assert members_only.status_code == 201  # members-only is fine
+    slug = members_only.json()["slug"]
+    publish = cleo.patch(f"/api/comparisons/{slug}", json={"public": True}, headers={"X-CSRF-Token": csrf})
+    assert publish.status_code == 403  # and so is publishing it afterwards
+    admin = bearer(lab.tokens["ada"])
+    assert (
+        lab.client().patch(f"/api/comparisons/{slug}", json={"public": True}, headers=admin).status_code
+        == 200
+    )
+
+
+def lab_comparisons(engine) -> list[str]:
+    with engine.connect() as connection:
+        return list(connection.execute(text("SELECT slug FROM savedcomparison")).scalars())
+
+
+def test_public_permalink_has_no_content_hash_and_can_be_unpublished_and_deleted(lab):
+    ben = bearer(lab.tokens["ben"])
+    member = lab.client()
+    slug = member.post("/api/comparisons", json={"corpora": lab.corpora, "public": True}, headers=ben).json()[
+        "slug"
+    ]
+    visitor = lab.client()
+    hashes = [get_corpus(lab.app.state.engine, cid).content_hash for cid in lab.corpora]
+    for path in (f"/compare/{slug}", f"/api/comparisons/{slug}", f"/api/comparisons/{slug}/table.csv"):
+        shown = visitor.get(path)
+        assert shown.status_code == 200 and not any(h in shown.text for h in hashes), path
+    assert "content_hash" not in visitor.get(f"/api/comparisons/{slug}").json()["corpora"][0]
+
+    # another member may neither unpublish nor delete it
+    cleo = bearer(lab.tokens["cleo"])
+    assert member.patch(f"/api/comparisons/{slug}", json={"public": False}, headers=cleo).status_code == 403
+    assert member.delete(f"/api/comparisons/{slug}", headers=cleo).status_code == 403
+    assert visitor.get(f"/compare/{slug}").status_code == 200
+
+    # the creator unpublishes from the page (the buttons are shown to the creator only)
+    browser, csrf = lab.signed_in("ben")
+    page = browser.get(f"/compare/{slug}")
+    assert 'id="unpublish"' in page.text and 'id="delete-permalink"' in page.text
+    other, _ = lab.signed_in("cleo")
+    assert 'id="unpublish"' not in other.get(f"/compare/{slug}").text
+    answer = browser.post(f"/compare/{slug}/visibility", data={"csrf_token": csrf}, follow_redirects=False)
+    assert answer.status_code == 303
+    assert visitor.get(f"/compare/{slug}", follow_redirects=False).status_code == 303  # to sign-in now
+    assert visitor.get(f"/api/comparisons/{slug}").status_code == 401
+    assert 'id="publish"' in browser.get(f"/compare/{slug}").text
+    assert (
+        member.patch(f"/api/comparisons/{slug}", json={"public": True}, headers=ben).json()["public"] is True
+    )
+
+    # and deletes it; then it is gone for everyone
+    assert (
+        browser.post(f"/compare/{slug}/delete", data={"csrf_token": csrf}, follow_redirects=False).status_code
+        == 303
+    )
+    assert member.get(f"/api/comparisons/{slug}", headers=ben).status_code == 404
+    assert visitor.get(f"/compare/{slug}", follow_redirects=False).status_code == 303
+    second = member.post("/api/comparisons", json={"corpora": lab.corpora}, headers=ben).json()["slug"]
+    assert member.delete(f"/api/comparisons/{second}", headers=bearer(lab.tokens["ada"])).status_code == 204
+    assert member.delete(f"/api/comparisons/{second}", headers=ben).status_code == 404
+
+
 def test_members_only_permalink_is_not_visible_anonymously(lab):
     member, csrf = lab.signed_in("ben")
     slug = member.post(
