@@ -13,6 +13,7 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import FileResponse
 from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from swagger_ui_bundle import swagger_ui_path
 
 from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
 from app.ingest import scratch
@@ -48,7 +49,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         description="Frequency spectra, vocabulary growth and n-legomena models for comparing corpora.",
         lifespan=lifespan,
         dependencies=[Depends(security.csrf_protect)],
-        docs_url=None,  # served by app.web.security with their own Content-Security-Policy
+        docs_url=None,  # served by app.web.security from local files, with its own Content-Security-Policy
         redoc_url=None,
         default_response_class=FiniteJSONResponse,
     )
@@ -68,6 +69,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             PLOTLY_JS, media_type="text/javascript", headers={"Cache-Control": "max-age=86400"}
         )
 
+    app.mount(security.SWAGGER_ASSETS, StaticFiles(directory=swagger_ui_path), name="swagger-ui")
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)
