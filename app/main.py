@@ -15,7 +15,7 @@ from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
 from swagger_ui_bundle import swagger_ui_path
 
-from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
+from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings, private_dir
 from app.ingest import scratch
 from app.services.ingestion import load_demo_corpora
 from app.services.jobs import JobRunner
@@ -53,7 +53,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         redoc_url=None,
         default_response_class=FiniteJSONResponse,
     )
-    settings.data_dir.mkdir(parents=True, exist_ok=True)
+    private_dir(settings.data_dir)
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = JobRunner()

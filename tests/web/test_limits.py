@@ -282,3 +282,33 @@ def test_far_horizon_gives_finite_figure_json(client, stdlib_text):
         f"/api/corpora/{corpus_id}/predict?tokens={600 * tokens}",
     ):
         _strict(client.get(path).text)
+
+
+# ------------------------------------------------------------------------------------------ file modes
+
+
+def test_store_and_scratch_are_private_to_their_owner(tmp_path):
+    """The data folder, the SQLite file with its WAL files and the scratch folder: modes 0700 and 0600
+    whatever the umask (common practice for files holding password hashes and uploaded text)."""
+    from fastapi.testclient import TestClient
+
+    from app.config import Settings
+    from app.main import create_app
+
+    data_dir = tmp_path / "data"
+    previous = os.umask(0o022)
+    try:
+        with TestClient(create_app(Settings(data_dir=data_dir, load_demo=False))) as client:
+            assert upload(client, "modes", content=b"a few words").status_code == 201
+            modes = {p.name: p.stat().st_mode & 0o777 for p in [data_dir, *data_dir.iterdir()]}
+    finally:
+        os.umask(previous)
+    assert modes["data"] == 0o700 and modes["work"] == 0o700
+    assert modes["lexigrowth.sqlite3"] == 0o600 and modes["secret_key"] == 0o600
+    assert {modes[name] for name in modes if name.startswith("lexigrowth.sqlite3-")} <= {0o600}
+
+    (data_dir / "lexigrowth.sqlite3").chmod(0o644)  # made readable by hand, or by an older version
+    data_dir.chmod(0o755)
+    create_app(Settings(data_dir=data_dir, load_demo=False))
+    assert (data_dir / "lexigrowth.sqlite3").stat().st_mode & 0o777 == 0o600
+    assert data_dir.stat().st_mode & 0o777 == 0o700
