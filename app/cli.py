@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import sys
 from pathlib import Path
 from typing import Annotated, Literal
@@ -21,6 +22,9 @@ def _settings(data_dir: Path | None):
     return Settings(data_dir=data_dir) if data_dir else get_settings()
 
 
+SHUTDOWN_SECONDS = 3
+"""Seconds a stopping server (SIGTERM, Ctrl-C) gives open requests before it closes them."""
+
 DataDir = Annotated[
     Path | None, typer.Option("--data-dir", help="Folder of the SQLite store (LEXIGROWTH_DATA_DIR).")
 ]
@@ -37,8 +41,17 @@ def serve(
     host: Annotated[str, typer.Option(help="Address to listen on.")] = "127.0.0.1",
     port: Annotated[int, typer.Option(help="Port to listen on.")] = 8000,
     data_dir: DataDir = None,
+    workers: Annotated[
+        int,
+        typer.Option(
+            min=1,
+            max=64,
+            help="Server processes sharing the port and the store (each with its own task worker).",
+        ),
+    ] = 1,
 ) -> None:
-    """Start the dashboard (demo corpora are loaded into an empty store).
+    """Start the dashboard (demo corpora are queued for counting into an empty store; the server answers
+    at once and the Library shows them arriving).
 
     Listening on an address other than this computer's own (127.0.0.1, ::1, localhost) needs lab mode: it is
     refused while the store has no account ('lexigrowth user add NAME --admin').
@@ -60,14 +73,23 @@ def serve(
         )
         raise typer.Exit(code=2)
     mode = "lab mode: members sign in" if lab or settings.mode == "lab" else "personal mode: no sign-in"
-    typer.echo(f"Lexigrowth on http://{host}:{port}  ({mode}; store: {settings.resolved_database_url})")
-    uvicorn.run(
-        create_app(settings),
-        host=host,
-        port=port,
-        log_level="info",
-        proxy_headers=settings.trust_proxy,  # X-Forwarded-* from FORWARDED_ALLOW_IPS (default 127.0.0.1)
+    typer.echo(
+        f"Lexigrowth on http://{host}:{port}  ({mode}; store: {settings.resolved_database_url}; "
+        f"{workers} server process{'es' if workers > 1 else ''})"
     )
+    options = {
+        "host": host,
+        "port": port,
+        "log_level": "info",
+        "proxy_headers": settings.trust_proxy,  # X-Forwarded-* from FORWARDED_ALLOW_IPS (default 127.0.0.1)
+        "timeout_graceful_shutdown": SHUTDOWN_SECONDS,
+    }
+    if workers == 1:
+        uvicorn.run(create_app(settings), **options)
+        return
+    # Each server process makes its own app from the environment: pass the data folder on.
+    os.environ["LEXIGROWTH_DATA_DIR"] = str(settings.data_dir.resolve())
+    uvicorn.run("app.main:create_app", factory=True, workers=workers, **options)
 
 
 @app.command()
@@ -95,12 +117,21 @@ def ingest(
             help="Address of a running Dask scheduler (tcp://host:8786) for the dask engine.",
         ),
     ] = None,
+    fit: Annotated[
+        bool,
+        typer.Option(
+            "--fit/--no-fit",
+            help="Fit the models now (default), or leave them to the task worker of a running server.",
+        ),
+    ] = True,
 ) -> None:
-    """Count FILES as one corpus and store it."""
+    """Count FILES as one corpus, store it and fit its models."""
     from app.ingest.profiles import get_profile
     from app.ingest.readers import TextSource, UnreadableFileError
     from app.services.ingestion import IngestionInputError, parse_labels
     from app.services.ingestion import ingest as run_ingest
+    from app.services.modelling import model_report
+    from app.services.tasks import queue_models, run_now
     from app.store.corpora import get_corpus, summary
     from app.store.db import make_engine
 
@@ -137,6 +168,17 @@ def ingest(
         f"stored corpus {corpus_id} '{s['name']}': {s['tokens']:,} tokens, {s['types']:,} types, "
         f"{s['hapaxes']:,} hapax legomena"
     )
+    task = queue_models(engine, corpus_id)
+    if not fit:
+        typer.echo("models queued: a running server's task worker will fit them")
+        return
+    typer.echo("fitting models...", err=True)
+    ended = run_now(engine, task, settings.work_dir)
+    if ended.state == "failed":
+        typer.echo(f"models: {ended.message}")
+        return
+    report = model_report(engine, corpus_id)
+    typer.echo(f"models fitted: {', '.join(report['fitted'])}; recommended model ready")
 
 
 @app.command("list")

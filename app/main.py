@@ -17,8 +17,9 @@ from swagger_ui_bundle import swagger_ui_path
 
 from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings, private_dir
 from app.ingest import scratch
-from app.services.ingestion import load_demo_corpora
-from app.services.jobs import JobRunner
+from app.services import tasks
+from app.services.jobs import Dispatcher
+from app.services.worker import TaskWorker
 from app.store.db import make_engine
 from app.web import api, compare, pages, security
 from app.web.jsonsafe import FiniteJSONResponse
@@ -33,15 +34,26 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     @asynccontextmanager
     async def lifespan(app: FastAPI):
+        interrupted = tasks.recover(app.state.engine)
+        if interrupted:
+            log.info("marked %d tasks of ended processes as failed", len(interrupted))
         orphans = scratch.remove_orphans(settings.work_dir)
         if orphans:
             log.info("removed %d scratch entries left by ended processes", len(orphans))
+        worker = (
+            None
+            if not settings.task_worker
+            else TaskWorker(settings.resolved_database_url, settings.work_dir)
+        )
+        if worker is not None:
+            worker.start()
         if settings.load_demo:
-            loaded = load_demo_corpora(app.state.engine, settings.work_dir)
-            if loaded:
-                log.info("loaded %d demo corpora into the empty store", len(loaded))
+            queued = [app.state.jobs.submit(task) for task in tasks.queue_demo_corpora(app.state.engine)]
+            if queued:
+                log.info("queued %d demo corpora for counting", len(queued))
         yield
-        app.state.jobs.shutdown()
+        if worker is not None:
+            worker.stop()
 
     app = FastAPI(
         title="Lexigrowth",
@@ -56,7 +68,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     private_dir(settings.data_dir)
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
-    app.state.jobs = JobRunner()
+    app.state.jobs = Dispatcher(app.state.engine, settings.work_dir, inline=not settings.task_worker)
     app.state.guard = security.Guard(settings, app.state.engine)
     # Outermost first: HEAD as GET, then the viewer and security headers, then the body limits.
     app.add_middleware(BodyLimitMiddleware, upload_mb=settings.max_upload_mb)

@@ -4,12 +4,17 @@ from __future__ import annotations
 
 import importlib
 import inspect
+import os
 
 import pytest
 from fastapi.testclient import TestClient
 
-from app.config import Settings
-from app.main import create_app
+# Apps made by tests run their background tasks in the requesting thread (no worker process per app);
+# servers started as processes by the tests do not inherit LEXIGROWTH_* settings and use their worker.
+os.environ.setdefault("LEXIGROWTH_TASK_WORKER", "0")
+
+from app.config import Settings  # noqa: E402
+from app.main import create_app  # noqa: E402
 
 # Real English that no one on this project wrote: docstrings of these standard-library modules.
 STDLIB_MODULES = [

@@ -134,7 +134,15 @@ def test_serve_refuses_other_addresses_while_there_is_no_account(data, started, 
 def test_serve_on_this_computer_needs_no_account(data, started, host):
     result = runner.invoke(app, ["serve", "--host", host, *data])
     assert result.exit_code == 0 and "personal mode" in result.output
-    assert started == [{"host": host, "port": 8000, "log_level": "info", "proxy_headers": False}]
+    assert started == [
+        {
+            "host": host,
+            "port": 8000,
+            "log_level": "info",
+            "proxy_headers": False,
+            "timeout_graceful_shutdown": 3,
+        }
+    ]
 
 
 def test_serve_on_every_address_once_there_is_an_account(data, started):

@@ -36,6 +36,7 @@ from typing import Any, Literal, TypeVar, get_args
 
 import numpy as np
 
+from app.ingest.lifetime import die_with_parent
 from app.ingest.profiles import TokenizationProfile, Tokenizer
 
 EngineName = Literal["serial", "local", "dask"]
@@ -165,7 +166,9 @@ def _result(future: Any, tag: Tag) -> tuple[BatchCounts | None, Tag]:
 @contextmanager
 def _local_pool() -> Iterator[tuple[Submit, int]]:
     workers = available_cpus()
-    pool = ProcessPoolExecutor(workers, mp_context=multiprocessing.get_context("spawn"))
+    pool = ProcessPoolExecutor(
+        workers, mp_context=multiprocessing.get_context("spawn"), initializer=die_with_parent
+    )
     try:
         yield pool.submit, workers
     finally:

@@ -9,7 +9,7 @@ from pathlib import Path
 
 from sqlalchemy.engine import Engine
 
-from app.config import DEMO_DIR, PROGRAM_VERSION
+from app.config import PROGRAM_VERSION
 from app.core import richness, text_order
 from app.ingest.counting import count_sources
 from app.ingest.engines import EngineName
@@ -17,7 +17,7 @@ from app.ingest.names import clean_name
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import TextSource
 from app.services import modelling
-from app.store.corpora import CorpusRecord, count_corpora, save_corpus
+from app.store.corpora import CorpusRecord, save_corpus
 
 MAX_NAME_LENGTH = 200
 MAX_LABELS = 50
@@ -25,6 +25,7 @@ MAX_LABEL_KEY, MAX_LABEL_VALUE = 100, 500
 MAX_TEXT_ORDER_TOKENS = 20_000_000  # MATTR/MTLD/segments on at most this many tokens (about 120 MB of text)
 
 ProgressCallback = Callable[[int, int], None]
+StageCallback = Callable[[str], None]
 
 
 class IngestionInputError(ValueError):
@@ -105,11 +106,15 @@ def ingest(
     work_dir: Path | None = None,
     counting_engine: EngineName | None = None,
     scheduler: str | None = None,
+    on_stage: StageCallback | None = None,
 ) -> int:
-    """Count the sources as one corpus and store it; returns the new corpus id.
+    """Count the sources as one corpus and store it with its exact statistics; returns the new corpus id.
 
     ``counting_engine`` ("serial", "local" or "dask") and ``scheduler`` (a Dask scheduler address) choose
-    where the text is tokenized (``app.ingest.counting.count_sources``; by default by input size)."""
+    where the text is tokenized (``app.ingest.counting.count_sources``; by default by input size).
+    ``on_stage`` hears the name of each step after counting. The models are fitted afterwards, as a task
+    of their own (``app.services.tasks``)."""
+    stage = on_stage or (lambda _name: None)
     name = check_name(name)
     if not sources:
         raise IngestionInputError("files: give at least one file or some pasted text")
@@ -117,6 +122,7 @@ def ingest(
     with count_sources(
         sources, profile, progress=progress, workdir=work_dir, engine=counting_engine, scheduler=scheduler
     ) as result:
+        stage("text-order statistics")
         spectrum = result.spectrum()
         record = CorpusRecord(
             name=name,
@@ -136,18 +142,8 @@ def ingest(
             },
             text_order=text_order_statistics(result.type_ids()),
         )
+    stage("storing")
     corpus_id = save_corpus(engine, record)
-    modelling.warm_cache(engine, corpus_id)
+    stage("exact statistics")
+    modelling.random_order_growth(engine, corpus_id)
     return corpus_id
-
-
-def load_demo_corpora(engine: Engine, work_dir: Path | None = None, demo_dir: Path = DEMO_DIR) -> list[int]:
-    """Load the synthetic demo corpora listed in the demo manifest, only into an empty store."""
-    manifest = demo_dir / "manifest.json"
-    if count_corpora(engine) or not manifest.exists():
-        return []
-    ids = []
-    for entry in json.loads(manifest.read_text(encoding="utf-8"))["corpora"]:
-        source = TextSource.from_path(demo_dir / entry["file"])
-        ids.append(ingest(engine, [source], entry["name"], entry.get("labels", {}), work_dir=work_dir))
-    return ids

@@ -1,84 +1,69 @@
-"""Background ingestion jobs with progress (bytes done of total), polled by the Upload page."""
+"""Jobs as the Upload page and the API see them: background tasks of the store, with their stage and
+progress, submitted to this process's task worker (or run at once when there is none)."""
 
 from __future__ import annotations
 
-import secrets
-import threading
-from collections.abc import Callable
-from concurrent.futures import ThreadPoolExecutor
-from dataclasses import dataclass, field
+from pathlib import Path
 from typing import Any
 
+from sqlalchemy.engine import Engine
 
-@dataclass
-class Job:
-    id: str
-    status: str = "queued"  # queued | running | done | failed
-    done_bytes: int = 0
-    total_bytes: int = 0
-    corpus_id: int | None = None
-    error: str | None = None
-    _lock: threading.Lock = field(default_factory=threading.Lock, repr=False)
+from app.services import modelling, tasks
+from app.store import tasks as queue
 
-    def as_dict(self) -> dict[str, Any]:
-        with self._lock:
-            share = (
-                self.done_bytes / self.total_bytes
-                if self.total_bytes
-                else (1.0 if self.status == "done" else 0.0)
-            )
-            return {
-                "id": self.id,
-                "status": self.status,
-                "done_bytes": self.done_bytes,
-                "total_bytes": self.total_bytes,
-                "progress": round(min(share, 1.0), 4),
-                "corpus_id": self.corpus_id,
-                "corpus_url": f"/corpora/{self.corpus_id}" if self.corpus_id is not None else None,
-                "error": self.error,
-            }
-
-    def report(self, done: int, total: int) -> None:
-        with self._lock:
-            self.done_bytes, self.total_bytes = done, total
+STAGES = ("queued", "starting", "reading", "counting", "text-order statistics", "storing", "exact statistics")
+"""The stages of an ingestion in order (then "done" or "failed"); the model report follows as its own task."""
 
 
-class JobRunner:
-    """Runs ingestion work on a small thread pool and keeps the latest jobs for polling."""
+def as_job(task: queue.TaskView, models: queue.TaskView | None = None) -> dict[str, Any]:
+    """The job's JSON: state (``status``), stage, bytes counted of all, the corpus once it exists and the
+    state of its model report."""
+    share = task.done / task.total if task.total else (1.0 if task.state == queue.DONE else 0.0)
+    return {
+        "id": task.id,
+        "kind": task.kind,
+        "status": task.state,
+        "stage": task.stage,
+        "done_bytes": task.done if task.stage == "counting" or task.finished else 0,
+        "total_bytes": task.total,
+        "progress": round(min(share, 1.0), 4),
+        "corpus_id": task.corpus_id,
+        "corpus_url": f"/corpora/{task.corpus_id}" if task.corpus_id is not None else None,
+        "models": None if models is None else {"status": models.state, "error": models.message},
+        "error": task.message if task.state == queue.FAILED else None,
+    }
 
-    def __init__(self, workers: int = 2, keep: int = 500) -> None:
-        self._pool = ThreadPoolExecutor(max_workers=workers, thread_name_prefix="ingest")
-        self._jobs: dict[str, Job] = {}
-        self._keep = keep
-        self._lock = threading.Lock()
 
-    def submit(
-        self, work: Callable[[Callable[[int, int], None]], int], cleanup: Callable[[], None] | None = None
-    ) -> Job:
-        """``work(progress)`` returns the new corpus id; any exception marks the job failed with its message."""
-        job = Job(id=secrets.token_urlsafe(12))
-        with self._lock:
-            self._jobs[job.id] = job
-            while len(self._jobs) > self._keep:
-                self._jobs.pop(next(iter(self._jobs)))
+class Dispatcher:
+    """Hands new tasks to the task worker of this server process, or runs them at once in the caller's
+    thread when the server has no worker (``LEXIGROWTH_TASK_WORKER=0``: tests, embedded use)."""
 
-        def run() -> None:
-            job.status = "running"
-            try:
-                job.corpus_id = work(job.report)
-                job.status = "done"
-            except Exception as exc:  # noqa: BLE001 - the message is shown to the user
-                job.error = str(exc) or exc.__class__.__name__
-                job.status = "failed"
-            finally:
-                if cleanup:
-                    cleanup()
+    def __init__(self, engine: Engine, work_dir: Path, inline: bool) -> None:
+        self.engine, self.work_dir, self.inline = engine, work_dir, inline
 
-        self._pool.submit(run)
-        return job
+    def submit(self, task: queue.TaskView) -> queue.TaskView:
+        return tasks.run_now(self.engine, task, self.work_dir) if self.inline else task
 
-    def get(self, job_id: str) -> Job | None:
-        return self._jobs.get(job_id)
+    def job(self, task_id: str) -> dict[str, Any] | None:
+        task = queue.get(self.engine, task_id)
+        if task is None:
+            return None
+        models = tasks.models_task(self.engine, task.corpus_id) if task.corpus_id is not None else None
+        return as_job(task, models)
 
-    def shutdown(self) -> None:
-        self._pool.shutdown(wait=False, cancel_futures=True)
+    def models_state(self, corpus_id: int) -> queue.TaskView:
+        """The model task of a corpus whose report is missing, queued if there is none (a store made by an
+        earlier version, a task lost with its process)."""
+        return self.submit(tasks.queue_models(self.engine, corpus_id))
+
+    def models_status(self, corpus_id: int) -> dict[str, Any]:
+        """{"status": "ready" | "queued" | "running" | "failed", "error": the reason of a failure}."""
+        try:
+            modelling.model_report(self.engine, corpus_id)
+        except modelling.ModelsPendingError:
+            task = self.models_state(corpus_id)
+            if task.state != queue.DONE:
+                return {"status": task.state, "error": task.message}
+        except modelling.PredictionError as exc:
+            return {"status": queue.FAILED, "error": str(exc)}
+        return {"status": "ready", "error": None}

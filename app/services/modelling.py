@@ -88,14 +88,42 @@ def _prefix_spectra(engine: Engine, corpus_id: int) -> dict[str, Spectrum]:
     }
 
 
+class ModelsPendingError(PredictionError):
+    """The corpus's models are not fitted yet: their task is queued or running (``task`` says which)."""
+
+    def __init__(self, corpus_id: int) -> None:
+        super().__init__(
+            f"the models of corpus {corpus_id} are being computed; the exact statistics are ready, "
+            "try the models again in a few seconds"
+        )
+        self.corpus_id = corpus_id
+
+
+MODELS_KIND = "models"
+
+
+def compute_model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
+    """Fit every model at full size with goodness of fit, the backtests and the recommended ensemble, and
+    cache the report; when no model can be fitted, cache the reason instead, so that it is never tried
+    again for this program version. Heavy: run it as a background task, never in a page request."""
+    spectrum = load_spectrum(engine, corpus_id)
+    try:
+        payload = backtest(spectrum, _prefix_spectra(engine, corpus_id)).as_dict()
+    except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
+        payload = {"error": str(exc) or exc.__class__.__name__}
+    store.store_cached_result(engine, corpus_id, MODELS_KIND, PROGRAM_VERSION, payload)
+    return payload
+
+
 def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
-    """Every model fitted at full size with goodness of fit, the backtests and the recommended ensemble."""
-
-    def compute() -> dict:
-        spectrum = load_spectrum(engine, corpus_id)
-        return backtest(spectrum, _prefix_spectra(engine, corpus_id)).as_dict()
-
-    return cached(engine, corpus_id, "models", compute)
+    """The cached model report. Raises ModelsPendingError until its task has computed it (the caller says
+    so, and makes sure the task is queued), PredictionError with the reason when no model could be fitted."""
+    payload = store.cached_result(engine, corpus_id, MODELS_KIND, PROGRAM_VERSION)
+    if payload is None:
+        raise ModelsPendingError(corpus_id)
+    if "error" in payload:
+        raise PredictionError(f"no vocabulary model could be fitted to this corpus: {payload['error']}")
+    return payload
 
 
 def _band(data: dict | None) -> ErrorBand | None:
@@ -195,17 +223,6 @@ def predict(
 
 
 # ------------------------------------------------------------------------------------ richness, unseen
-
-
-def warm_cache(engine: Engine, corpus_id: int) -> str | None:
-    """Compute the cached results of a new corpus now, so that its pages render at once; returns the
-    reason when the models cannot be fitted (the corpus is still stored and usable)."""
-    random_order_growth(engine, corpus_id)
-    try:
-        model_report(engine, corpus_id)
-    except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
-        return str(exc)
-    return None
 
 
 def richness(engine: Engine, corpus_id: int, common_size: int | None = None) -> dict[str, Any]:

@@ -18,6 +18,7 @@ from sqlmodel import Session, SQLModel
 
 from app.store.db import transaction
 from app.store.tables import (
+    BackgroundTask,
     CachedResult,
     Corpus,
     GrowthPoint,
@@ -170,6 +171,12 @@ def delete_corpus(engine: Engine, corpus_id: int) -> None:
         for table in (WordCount, SpectrumRow, GrowthPoint, PrefixSpectrumRow, CachedResult):
             session.execute(delete(table).where(table.corpus_id == corpus_id))
         session.execute(delete(Corpus).where(Corpus.id == corpus_id))
+        # Its model tasks go too: a later corpus that gets the same id must not inherit their state.
+        session.execute(
+            delete(BackgroundTask).where(
+                BackgroundTask.corpus_id == corpus_id, BackgroundTask.kind != "ingest"
+            )
+        )
 
 
 def spectrum_pairs(engine: Engine, corpus_id: int) -> list[tuple[int, int]]:

@@ -127,6 +127,33 @@ class ApiToken(SQLModel, table=True):
     created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
 
 
+class BackgroundTask(SQLModel, table=True):
+    """Work that takes time (counting an upload, fitting a corpus's models), kept in the store so that any
+    server process can run it, report its progress and tell every other process its outcome.
+
+    ``state`` goes queued -> running -> done or failed; ``stage`` names the step under way and ``done`` of
+    ``total`` its progress (bytes while counting). ``dedupe_key`` makes enqueuing idempotent (one model
+    report per corpus and program version, one load per demo file). ``owner`` is "host:pid" of the process
+    running it and ``heartbeat_at`` its last sign of life, so a task left by a crashed process can be told
+    apart from one still running."""
+
+    id: str = Field(primary_key=True)
+    kind: str = Field(index=True)
+    dedupe_key: str | None = Field(default=None, unique=True)
+    state: str = Field(default="queued", index=True)
+    stage: str = Field(default="queued")
+    done: int = Field(default=0, sa_type=BigInteger)
+    total: int = Field(default=0, sa_type=BigInteger)
+    size_hint: int = Field(default=0, sa_type=BigInteger)
+    corpus_id: int | None = Field(default=None, index=True)
+    message: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
+    params_json: str = Field(default="{}", sa_column=Column(Text, nullable=False, default="{}"))
+    owner: str | None = Field(default=None)
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
+    updated_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
+    heartbeat_at: datetime | None = Field(default=None, sa_type=UTCDateTime)
+
+
 class LabSession(SQLModel, table=True):
     """A signed-in browser: the session cookie holds a random id, the store only its SHA-256. Deleting the
     row ends the session in every server process (sign-out, password change, expiry)."""

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import time
 from typing import Annotated
 
 from fastapi import APIRouter, Depends, File, Form, HTTPException, Path, Query, Request, Response, UploadFile
@@ -11,10 +12,10 @@ from sqlalchemy.engine import Engine
 from app.config import Settings
 from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import estimator, ingestion, modelling
-from app.services.jobs import JobRunner
-from app.store import accounts
+from app.services import estimator, ingestion, modelling, tasks
+from app.services.jobs import Dispatcher
 from app.store import corpora as store
+from app.store import tasks as queue
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
 from app.web.jsonsafe import FiniteJSONResponse
@@ -28,6 +29,7 @@ MAX_CORPUS_ID = 2**31 - 1
 """Corpus ids are positive INTEGER keys (32-bit on PostgreSQL): a larger one cannot exist, and passing it to
 the database driver fails (OverflowError on SQLite), so it is refused as input (422) instead of a 500."""
 CorpusId = Annotated[int, Path(ge=1, le=MAX_CORPUS_ID, description="corpus id")]
+WAIT_POLL_SECONDS = 0.05
 
 
 @router.get("/health")
@@ -56,7 +58,7 @@ def upload_corpus(
     request: Request,
     engine: EngineDep,
     settings: Annotated[Settings, Depends(settings_of)],
-    jobs: Annotated[JobRunner, Depends(jobs_of)],
+    jobs: Annotated[Dispatcher, Depends(jobs_of)],
     name: Annotated[str, Form(max_length=1000)],
     files: Annotated[list[UploadFile] | None, File()] = None,
     text: Annotated[str | None, Form()] = None,
@@ -75,38 +77,52 @@ def upload_corpus(
         raise input_error(exc) from exc
 
     member = request.state.viewer.member  # in lab mode, the uploader owns the corpus
-
-    def work(progress) -> int:
-        corpus_id = ingestion.ingest(
-            engine, upload.sources, name, label_map, chosen, progress, settings.work_dir
+    try:
+        task = queue.enqueue(
+            engine,
+            tasks.INGEST,
+            tasks.ingest_params(
+                [(s.path, s.name) for s in upload.sources],
+                name,
+                label_map,
+                chosen,
+                scratch=upload.directory,
+                owner_id=member.id if member is not None else None,
+            ),
+            size_hint=upload.total_bytes,
         )
-        if member is not None:
-            accounts.set_corpus_owner(engine, corpus_id, member.id)
-        return corpus_id
-
-    if wait:
-        try:
-            corpus_id = work(None)
-        except INPUT_ERRORS as exc:
-            raise input_error(exc) from exc
-        finally:
-            upload.cleanup()
-        return store.summary(store.get_corpus(engine, corpus_id))
-    job = jobs.submit(work, cleanup=upload.cleanup)
-    return FiniteJSONResponse(job.as_dict() | {"url": f"/api/jobs/{job.id}"}, status_code=202)
+    except BaseException:
+        upload.cleanup()
+        raise
+    task = jobs.submit(task)
+    if not wait:
+        return FiniteJSONResponse(jobs.job(task.id) | {"url": f"/api/jobs/{task.id}"}, status_code=202)
+    while not task.finished:
+        time.sleep(WAIT_POLL_SECONDS)
+        task = queue.get(engine, task.id)
+    if task.state == queue.FAILED:
+        raise HTTPException(status_code=422, detail=task.message)
+    return store.summary(store.get_corpus(engine, task.corpus_id))
 
 
 @router.get("/jobs/{job_id}")
-def job_status(job_id: str, jobs: Annotated[JobRunner, Depends(jobs_of)]) -> dict:
-    job = jobs.get(job_id)
+def job_status(
+    job_id: Annotated[str, Path(max_length=64)], jobs: Annotated[Dispatcher, Depends(jobs_of)]
+) -> dict:
+    """An upload's state, stage (reading, counting, storing...), bytes counted, and once its corpus exists
+    the corpus and the state of its models. Any server process of the store can answer."""
+    job = jobs.job(job_id)
     if job is None:
         raise HTTPException(status_code=404, detail=f"no job {job_id}")
-    return job.as_dict()
+    return job
 
 
 @router.get("/corpora/{corpus_id}")
-def corpus_summary(corpus_id: CorpusId, engine: EngineDep) -> dict:
-    return store.summary(corpus_or_404(engine, corpus_id))
+def corpus_summary(
+    corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]
+) -> dict:
+    """The corpus's totals and labels, and whether its models are ready (``models.status``)."""
+    return store.summary(corpus_or_404(engine, corpus_id)) | {"models": jobs.models_status(corpus_id)}
 
 
 @router.delete("/corpora/{corpus_id}", status_code=204)
@@ -175,6 +191,8 @@ Tokens = Annotated[int, Query(ge=1, le=modelling.MAX_PREDICTION_TOKENS)]
 def _modelling_call(function, *args):
     try:
         return function(*args)
+    except modelling.ModelsPendingError as exc:
+        raise HTTPException(status_code=503, detail=str(exc), headers={"Retry-After": "2"}) from exc
     except modelling.PredictionError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
     except (ValueError, ArithmeticError) as exc:
@@ -191,10 +209,22 @@ def predict(
 
 
 @router.get("/corpora/{corpus_id}/models")
-def models(corpus_id: CorpusId, engine: EngineDep) -> dict:
-    """Every fitted model: parameters, goodness of fit, backtest errors, and the recommended ensemble."""
+def models(corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]):
+    """Every fitted model: parameters, goodness of fit, backtest errors, and the recommended ensemble.
+    While they are being computed: 202 with the state of their task (``status``: queued or running)."""
     corpus_or_404(engine, corpus_id)
-    return _modelling_call(modelling.model_report, engine, corpus_id)
+    try:
+        return _modelling_call(modelling.model_report, engine, corpus_id)
+    except HTTPException as exc:
+        if exc.status_code != 503:
+            raise
+        task = jobs.models_state(corpus_id)
+        if task.state == queue.FAILED:
+            raise HTTPException(status_code=422, detail=task.message) from exc
+        if task.state == queue.DONE:  # finished between the two looks
+            return _modelling_call(modelling.model_report, engine, corpus_id)
+        body = {"status": task.state, "stage": task.stage, "detail": exc.detail}
+        return FiniteJSONResponse(body, status_code=202, headers={"Retry-After": "1"})
 
 
 @router.get("/corpora/{corpus_id}/richness")

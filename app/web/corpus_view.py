@@ -72,6 +72,8 @@ def model_section(
         report = modelling.model_report(engine, corpus_id)
         loaded = modelling.load_models(engine, corpus_id)
         predictors = loaded.predictors
+    except modelling.ModelsPendingError:
+        return {"models_error": None, "models_pending": "queued"}
     except (ValueError, ArithmeticError) as exc:
         return {"models_error": str(exc)}
     backtests = _backtest_table(report)
@@ -120,6 +122,7 @@ def model_section(
     ]
     return {
         "models_error": None,
+        "models_pending": None,
         "model_rows": rows,
         "backtest_columns": columns,
         "failures": report["failures"],

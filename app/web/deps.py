@@ -8,7 +8,7 @@ from sqlalchemy.engine import Engine
 from app.config import Settings
 from app.ingest.readers import UnreadableFileError
 from app.services.ingestion import IngestionInputError
-from app.services.jobs import JobRunner
+from app.services.jobs import Dispatcher
 from app.store.corpora import CorpusNotFoundError, get_corpus
 from app.store.tables import Corpus
 from app.web.uploads import UploadTooLargeError
@@ -24,7 +24,7 @@ def settings_of(request: Request) -> Settings:
     return request.app.state.settings
 
 
-def jobs_of(request: Request) -> JobRunner:
+def jobs_of(request: Request) -> Dispatcher:
     return request.app.state.jobs
 
 

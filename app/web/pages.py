@@ -11,9 +11,10 @@ from sqlalchemy.engine import Engine
 from app.config import TEMPLATES_DIR
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.services import estimator
+from app.services.jobs import Dispatcher
 from app.store import corpora as store
 from app.web import api, corpus_view, figures
-from app.web.deps import corpus_or_404, engine_of
+from app.web.deps import corpus_or_404, engine_of, jobs_of
 from app.web.glossary import GLOSSARY
 from app.web.templating import make_templates
 
@@ -64,6 +65,7 @@ def corpus_page(
     coverage: Annotated[float | None, Query(gt=0, lt=1)] = None,
     share: Annotated[float | None, Query(gt=0, lt=1)] = None,
     plan_model: Annotated[str, Query(max_length=60)] = "recommended",
+    jobs: Annotated[Dispatcher, Depends(jobs_of)] = None,
 ):
     corpus_or_404(engine, corpus_id)
     asked = [v for v in (types, new_type_rate, coverage, share) if v is not None]
@@ -74,6 +76,12 @@ def corpus_page(
         )
     except ValueError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
+    if context.get("models_pending"):
+        task = jobs.models_state(corpus_id)
+        if task.state == "failed":
+            context.update(models_pending=None, models_error=task.message)
+        else:
+            context["models_pending"] = "fitting now" if task.state == "running" else "waiting for a worker"
     return render(request, "corpus.html", **context)
 
 

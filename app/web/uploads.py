@@ -16,6 +16,8 @@ from app.ingest.readers import TextSource
 from app.services.ingestion import IngestionInputError
 
 COPY_BLOCK = 1 << 20
+PASTED_NAME = "pasted text"
+PASTED_FILE = "pasted.txt"
 
 
 class UploadTooLargeError(IngestionInputError):
@@ -80,9 +82,12 @@ def receive(files: list[UploadFile], pasted_text: str | None, work_dir: Path, ma
                     out.write(block)
             upload.sources.append(TextSource.from_path(target, display_name=name))
         if pasted_text and pasted_text.strip():
-            if len(pasted_text.encode("utf-8")) + used > limit:
+            encoded = pasted_text.removeprefix("\ufeff").encode("utf-8", "surrogatepass")
+            if len(encoded) + used > limit:
                 raise UploadTooLargeError(f"pasted text: larger than the limit of {max_mb} MB")
-            upload.sources.append(TextSource.from_text("pasted text", pasted_text))
+            target = upload.directory / PASTED_FILE
+            target.write_bytes(encoded)
+            upload.sources.append(TextSource.from_path(target, display_name=PASTED_NAME))
         if not upload.sources:
             raise IngestionInputError("files: choose at least one file or paste some text")
         return upload

@@ -1,7 +1,7 @@
 """Crash safety: the server is killed (SIGKILL) in the middle of an ingestion and started again.
 
-An ingestion counts the text, then stores everything in one transaction, then warms the model caches
-(app/services/ingestion.py). Whatever the moment of the kill, the restarted store must be sound (SQLite's
+An upload is a background task that counts the text, then stores everything in one transaction
+(app/services/ingestion.py); the corpus's model report is a second task that follows (app/services/tasks.py). Whatever the moment of the kill, the restarted store must be sound (SQLite's
 own checks), and the corpus absent or complete, never half; a corpus whose transaction committed before the
 kill must be there (a process crash loses no committed transaction in WAL mode, whatever the synchronous
 setting: SQLite documentation, "Write-Ahead Logging" and "PRAGMA synchronous").
@@ -35,6 +35,7 @@ class Observation:
     progress: float
     listed: bool
     wal_growth: int
+    models: str | None
 
 
 MOMENTS: dict[str, Callable[[Observation], bool]] = {
@@ -42,8 +43,8 @@ MOMENTS: dict[str, Callable[[Observation], bool]] = {
     "counting": lambda o: o.status == "running" and 0 < o.progress < 1 and not o.listed,
     # Counting finished and the one transaction is writing its rows (the WAL grows), not yet committed.
     "storing": lambda o: o.progress == 1 and not o.listed and o.wal_growth > WAL_GROWTH_WHILE_STORING,
-    # Committed (the corpus is listed) and the job still running: the model caches are being warmed.
-    "warming": lambda o: o.listed and o.status == "running",
+    # Committed (the corpus is listed) and its model report being computed by the task worker.
+    "warming": lambda o: o.listed and o.models == "running",
 }
 
 
@@ -68,11 +69,15 @@ def upload_then_kill(server: Server, text: GeneratedText, moment: str, timeout: 
                 progress=job["progress"],
                 listed=any(c["name"] == NAME for c in http.get("/api/corpora").json()),
                 wal_growth=wal_size(server) - wal_before,
+                models=(job["models"] or {}).get("status"),
             )
             if MOMENTS[moment](seen):
                 server.kill()
                 return seen
-            assert job["status"] in ("queued", "running"), f"the job ended before the moment was seen: {job}"
+            assert job["status"] in ("queued", "running") or (job["models"] or {}).get("status") in (
+                "queued",
+                "running",
+            ), f"the job ended before the moment was seen: {job}"
             time.sleep(POLL_SECONDS)
     raise AssertionError(f"moment {moment!r} not seen within {timeout} s")
 
@@ -109,6 +114,18 @@ def test_kill_during_ingestion_leaves_the_corpus_absent_or_complete(tmp_path, re
         for corpus in stored:
             assert_complete_corpus(http, corpus)
             assert_matches(http, corpus, text)
+        if moment == "warming":
+            # The interrupted model report was queued again at start and the new worker takes it up.
+            deadline = time.monotonic() + 60
+            while (
+                status := http.get(f"/api/corpora/{stored[0]['id']}").json()["models"]["status"]
+            ) == "queued":
+                assert time.monotonic() < deadline, "the interrupted model report was not taken up again"
+                time.sleep(0.2)
+            assert status in ("running", "ready", "failed"), status
+            assert "interrupted" not in (
+                http.get(f"/api/corpora/{stored[0]['id']}").json()["models"]["error"] or ""
+            )
 
         # The restarted server keeps working: a new upload lands whole beside what survived.
         small = write_text(tmp_path / "small.txt", 20_000, common_words=2_000, random_state=2)

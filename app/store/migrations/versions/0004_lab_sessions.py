@@ -5,7 +5,7 @@ Like 0001 and 0002, a store whose tables were made by ``SQLModel.metadata.create
 already: only what is missing is added.
 
 Revision ID: 0004_lab_sessions
-Revises: 0002_lab_accounts
+Revises: 0003_background_tasks
 Create Date: 2026-12-03
 """
 
@@ -15,7 +15,7 @@ import sqlalchemy as sa
 from alembic import context, op
 
 revision = "0004_lab_sessions"
-down_revision = "0002_lab_accounts"
+down_revision = "0003_background_tasks"
 branch_labels = None
 depends_on = None
 
