@@ -425,6 +425,68 @@ def logout(request: Request) -> RedirectResponse:
     return RedirectResponse("/login", status_code=303)
 
 
+def _token_count(engine: Engine, member: Member) -> int:
+    return next((n for m, n in accounts.list_accounts(engine) if m.id == member.id), 0)
+
+
+def _password_page(request: Request, status_code: int = 200, **context: Any) -> HTMLResponse:
+    viewer = viewer_of(request)
+    tokens = _token_count(request.app.state.engine, viewer.member)
+    context = {"done": None, "error": None} | context
+    return render(request, "password.html", status_code=status_code, tokens=tokens, json_url=None, **context)
+
+
+@router.get("/account/password", response_class=HTMLResponse)
+def password_page(request: Request):
+    if viewer_of(request).member is None:  # personal mode: there is no account
+        return RedirectResponse("/", status_code=303)
+    return _password_page(request)
+
+
+@router.post("/account/password", response_class=HTMLResponse)
+def change_password(
+    request: Request,
+    current: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    new: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    repeat: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    revoke_tokens: Annotated[bool, Form()] = False,
+):
+    """A member's own password change: the current password is checked (and counted like a sign-in when
+    wrong); every session of the member ends and a new one starts for this browser; API tokens are revoked
+    when asked. The page says what was done."""
+    viewer = viewer_of(request)
+    if viewer.member is None or viewer.via_token:
+        return RedirectResponse("/", status_code=303)
+    guard: Guard = request.app.state.guard
+    engine = request.app.state.engine
+    name, address = viewer.member.name, guard.client_address(request)
+    if signins.wait_seconds(engine, name, address, SIGN_IN_ALLOWANCE) > 0:
+        return _password_page(
+            request, 429, error="Too many wrong passwords from this address: try again later."
+        )
+    if accounts.authenticate(engine, name, current) is None:
+        signins.failed(engine, name, address)
+        return _password_page(request, 401, error="The current password is wrong.")
+    if new != repeat:
+        return _password_page(request, 422, error="The two new passwords differ.")
+    try:
+        change = accounts.set_password(engine, name, new, revoke_tokens=revoke_tokens)
+    except accounts.AccountError as exc:
+        return _password_page(request, 422, error=str(exc))
+    signins.succeeded(engine, name, address)
+    guard.start_session(viewer, accounts.member_by_id(engine, viewer.member.id))
+    log.info("%s changed their password", name)
+    others = change.sessions_ended - 1
+    done = f"Password changed. {others} other signed-in session{'s' if others != 1 else ''} ended."
+    if change.tokens_revoked:
+        done += f" {change.tokens_revoked} API token{'s' if change.tokens_revoked > 1 else ''} revoked."
+    elif change.tokens_kept:
+        done += (
+            f" {change.tokens_kept} API token{'s' if change.tokens_kept > 1 else ''} kept: they still work."
+        )
+    return _password_page(request, done=done)
+
+
 # ------------------------------------------------------------------------------- API documentation
 
 # Swagger UI from the swagger-ui-bundle package, served by the app itself (``SWAGGER_ASSETS``, mounted in

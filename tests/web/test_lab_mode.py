@@ -362,6 +362,40 @@ def test_password_change_ends_every_session_and_revokes_tokens_when_asked(lab):
     lab.tokens["cleo"] = accounts.new_token(engine, "cleo")  # for the tests that follow
 
 
+def test_password_page_changes_the_password_and_says_what_it_did(lab):
+    engine = lab.app.state.engine
+    accounts.add_account(engine, "elio", "first password")
+    lab.passwords["elio"] = "first password"
+    token = accounts.new_token(engine, "elio")
+    elsewhere, _ = lab.signed_in("elio")
+    browser, _ = lab.signed_in("elio")
+    form = browser.get("/account/password")
+    assert form.status_code == 200 and 'id="revoke-tokens"' in form.text and "1 API token" in form.text
+    fields = {"csrf_token": hidden_csrf(form.text), "new": "second password", "repeat": "second password"}
+    wrong = browser.post("/account/password", data=fields | {"current": "not it"})
+    assert wrong.status_code == 401 and "current password is wrong" in wrong.text
+    assert accounts.authenticate(engine, "elio", "first password") is not None  # nothing changed
+    differ = browser.post("/account/password", data=fields | {"current": "first password", "repeat": "other"})
+    assert differ.status_code == 422 and accounts.authenticate(engine, "elio", "first password") is not None
+
+    kept = browser.post("/account/password", data=fields | {"current": "first password"})
+    assert kept.status_code == 200
+    assert (
+        "Password changed. 1 other signed-in session ended. 1 API token kept: they still work." in kept.text
+    )
+    assert elsewhere.get("/", follow_redirects=False).status_code == 303  # the other browser is signed out
+    assert browser.get("/", follow_redirects=False).status_code == 200  # this one has a new session
+    assert lab.client().get("/api/corpora", headers=bearer(token)).status_code == 200
+
+    again = {"csrf_token": hidden_csrf(kept.text), "current": "second password", "new": "third password"}
+    revoked = browser.post(
+        "/account/password", data=again | {"repeat": "third password", "revoke_tokens": "true"}
+    )
+    assert "Password changed. 0 other signed-in sessions ended. 1 API token revoked." in revoked.text
+    assert lab.client().get("/api/corpora", headers=bearer(token)).status_code == 401
+    assert accounts.authenticate(engine, "elio", "third password") is not None
+
+
 @pytest.mark.parametrize(
     "target", ["//evil.example/x", "https://evil.example", "/\\evil.example", "javascript:x"]
 )
