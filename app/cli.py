@@ -273,18 +273,60 @@ def user_list(data_dir: DataDir = None) -> None:
 
 
 @users.command("password")
-def user_password(name: MemberName, password_stdin: PasswordStdin = False, data_dir: DataDir = None) -> None:
-    """Set a new password for a member (their open sessions end)."""
-    from app.store.accounts import AccountError, member_exists, set_password
+def user_password(
+    name: MemberName,
+    password_stdin: PasswordStdin = False,
+    revoke_tokens: Annotated[
+        bool | None,
+        typer.Option(
+            "--revoke-tokens/--keep-tokens",
+            help="Also revoke the member's API tokens, or keep them (asked when neither is given and the "
+            "member has tokens).",
+        ),
+    ] = None,
+    data_dir: DataDir = None,
+) -> None:
+    """Set a new password for a member: every session of theirs ends; their API tokens are revoked or kept."""
+    from app.store.accounts import AccountError, list_accounts, member_exists, set_password
 
     engine = _engine(data_dir)
     try:
         if not member_exists(engine, name):
             raise AccountError(f"no account called {name!r}")
-        set_password(engine, name, _password(password_stdin))
+        password = _password(password_stdin)
+        tokens = next(n for member, n in list_accounts(engine) if member.name == name)
+        if revoke_tokens is None:
+            revoke_tokens = bool(tokens) and typer.confirm(
+                f"{name} has {tokens} API token(s), which keep working after a password change. Revoke them?",
+                default=True,
+            )
+        change = set_password(engine, name, password, revoke_tokens=revoke_tokens)
     except AccountError as exc:
         raise _fail(exc) from exc
-    typer.echo(f"new password set for {name}")
+    typer.echo(f"new password set for {name}; {change.sessions_ended} signed-in session(s) ended")
+    if change.tokens_revoked:
+        typer.echo(f"revoked {change.tokens_revoked} API token(s) of {name}")
+    elif change.tokens_kept:
+        typer.echo(
+            f"kept {change.tokens_kept} API token(s) of {name}: they still work "
+            f"(revoke them with: lexigrowth user token {name} --revoke)"
+        )
+
+
+@users.command("unlock")
+def user_unlock(
+    name: Annotated[str | None, typer.Argument(help="Forget the failed sign-ins of this name.")] = None,
+    address: Annotated[
+        str | None, typer.Option("--address", help="Forget the failed sign-ins from this client address.")
+    ] = None,
+    data_dir: DataDir = None,
+) -> None:
+    """Forget failed sign-ins (of a name from every address, of an address, or all of them with neither),
+    so that nobody has to wait before signing in again."""
+    from app.store.signins import clear
+
+    forgotten = clear(_engine(data_dir), name, address)
+    typer.echo(f"forgot the failed sign-ins of {forgotten} name and address pair(s) or address(es)")
 
 
 @users.command("token")

@@ -51,13 +51,20 @@ class Settings(BaseSettings):
     @property
     def work_dir(self) -> Path:
         """Scratch space for uploads and temporary type-id sequences."""
-        path = self.data_dir / "work"
-        path.mkdir(parents=True, exist_ok=True)
-        return path
+        return private_dir(self.data_dir / "work")
+
+
+def private_dir(path: Path) -> Path:
+    """``path`` as a folder only its owner may enter (mode 0700), made if missing: the data folder holds
+    password hashes, session keys and word counts, the scratch folder copies of uploaded texts."""
+    path.mkdir(mode=0o700, parents=True, exist_ok=True)
+    if path.stat().st_mode & 0o077:
+        path.chmod(0o700)
+    return path
 
 
 @lru_cache
 def get_settings() -> Settings:
     settings = Settings()
-    settings.data_dir.mkdir(parents=True, exist_ok=True)
+    private_dir(settings.data_dir)
     return settings

@@ -13,8 +13,9 @@ from fastapi.exceptions import RequestValidationError
 from fastapi.responses import FileResponse
 from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from swagger_ui_bundle import swagger_ui_path
 
-from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
+from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings, private_dir
 from app.ingest import scratch
 from app.services import tasks
 from app.services.jobs import Dispatcher
@@ -22,6 +23,8 @@ from app.services.worker import TaskWorker
 from app.store.db import make_engine
 from app.web import api, compare, pages, security
 from app.web.caching import EntityTagMiddleware
+from app.web.jsonsafe import FiniteJSONResponse
+from app.web.limits import BodyLimitMiddleware, HeadMiddleware
 
 PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
@@ -59,16 +62,21 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         description="Frequency spectra, vocabulary growth and n-legomena models for comparing corpora.",
         lifespan=lifespan,
         dependencies=[Depends(security.csrf_protect)],
-        docs_url=None,  # served by app.web.security with their own Content-Security-Policy
+        docs_url=None,  # served by app.web.security from local files, with its own Content-Security-Policy
         redoc_url=None,
+        default_response_class=FiniteJSONResponse,
     )
-    settings.data_dir.mkdir(parents=True, exist_ok=True)
+    private_dir(settings.data_dir)
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = Dispatcher(app.state.engine, settings.work_dir, inline=not settings.task_worker)
     app.state.guard = security.Guard(settings, app.state.engine)
+    # Outermost first: HEAD as GET, then the viewer and security headers, then entity tags, then the body
+    # limits.
+    app.add_middleware(BodyLimitMiddleware, upload_mb=settings.max_upload_mb)
     app.add_middleware(EntityTagMiddleware)
     app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
+    app.add_middleware(HeadMiddleware)
 
     @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
     def plotly_js() -> FileResponse:
@@ -76,6 +84,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             PLOTLY_JS, media_type="text/javascript", headers={"Cache-Control": "max-age=86400"}
         )
 
+    app.mount(security.SWAGGER_ASSETS, StaticFiles(directory=swagger_ui_path), name="swagger-ui")
     app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)

@@ -150,3 +150,53 @@ def test_serve_on_every_address_once_there_is_an_account(data, started):
     result = runner.invoke(app, ["serve", "--host", "0.0.0.0", "--port", "8123", *data])
     assert result.exit_code == 0 and "lab mode" in result.output
     assert started[0]["host"] == "0.0.0.0" and started[0]["port"] == 8123
+
+
+def test_password_change_revokes_or_keeps_tokens_and_says_which(data):
+    assert add(data, "ben", "first password").exit_code == 0
+    engine = engine_of(data)
+    tokens = [accounts.new_token(engine, "ben") for _ in range(2)]
+
+    kept = runner.invoke(
+        app, ["user", "password", "ben", "--password-stdin", "--keep-tokens", *data], input="second one\n"
+    )
+    assert kept.exit_code == 0, kept.output
+    assert "kept 2 API token(s) of ben: they still work" in kept.output
+    assert all(accounts.member_by_token(engine, t) is not None for t in tokens)
+
+    asked = runner.invoke(app, ["user", "password", "ben", *data], input="third one!\nthird one!\ny\n")
+    assert asked.exit_code == 0, asked.output
+    assert "has 2 API token(s), which keep working" in asked.output
+    assert "revoked 2 API token(s) of ben" in asked.output
+    assert all(accounts.member_by_token(engine, t) is None for t in tokens)
+
+    token = accounts.new_token(engine, "ben")
+    revoked = runner.invoke(
+        app, ["user", "password", "ben", "--password-stdin", "--revoke-tokens", *data], input="fourth one\n"
+    )
+    assert "revoked 1 API token(s)" in revoked.output and accounts.member_by_token(engine, token) is None
+
+
+def test_unlock_forgets_failed_sign_ins(data):
+    from app.store import signins
+
+    assert add(data, "ben", "first password").exit_code == 0
+    engine = engine_of(data)
+    by_pair = signins.Allowance(pair=1, address=5)  # only the name-and-address pair is over its allowance
+    by_address = signins.Allowance(pair=5, address=1)  # only the address is
+    for address in ("192.0.2.1", "192.0.2.2"):
+        signins.failed(engine, "ben", address)
+    signins.failed(engine, "cleo", "192.0.2.3")
+    assert signins.wait_seconds(engine, "ben", "192.0.2.1", by_pair) > 0
+
+    result = runner.invoke(app, ["user", "unlock", "ben", *data])
+    assert result.exit_code == 0 and "forgot the failed sign-ins of 2" in result.output
+    assert signins.wait_seconds(engine, "BEN", "192.0.2.1", by_pair) == 0  # names are compared folded
+    assert signins.wait_seconds(engine, "ben", "192.0.2.2", by_pair) == 0
+    # the address's own count stays until cleared by address (or everything)
+    assert signins.wait_seconds(engine, "dora", "192.0.2.1", by_address) > 0
+    assert runner.invoke(app, ["user", "unlock", "--address", "192.0.2.1", *data]).exit_code == 0
+    assert signins.wait_seconds(engine, "dora", "192.0.2.1", by_address) == 0
+    assert signins.wait_seconds(engine, "cleo", "192.0.2.3", by_pair) > 0
+    everything = runner.invoke(app, ["user", "unlock", *data])
+    assert everything.exit_code == 0 and signins.wait_seconds(engine, "cleo", "192.0.2.3", by_pair) == 0

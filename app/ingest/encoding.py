@@ -2,7 +2,12 @@
 
 Order of the checks:
 1. A byte-order mark wins: UTF-8 (EF BB BF), UTF-32 LE/BE, UTF-16 LE/BE. The decoder strips it.
-2. Otherwise NUL bytes, or more than ``CONTROL_SHARE`` of other C0 control bytes, mean binary data.
+2. Without a mark, UTF-16 is recognised by its NUL bytes: text in UTF-16 has a NUL in nearly every space,
+   line break and Latin letter, all on odd offsets (little-endian) or all on even ones (big-endian). When at
+   least ``UTF16_MIN_NUL_SHARE`` of the bytes are NULs, ``UTF16_NUL_PARITY`` of them share one parity and the sample decodes in that byte order to
+   text (at least ``UTF16_TEXT_SHARE`` letters, marks, digits, punctuation, symbols and whitespace), it is
+   UTF-16 LE or BE.
+   Otherwise NUL bytes, or more than ``CONTROL_SHARE`` of other C0 control bytes, mean binary data.
 3. A sample that decodes as UTF-8 is UTF-8 (pure ASCII included); so is a mixed sample whose valid UTF-8
    multi-byte sequences outnumber its stray high bytes. Bytes that are not valid UTF-8 are decoded one by one
    as Windows-1252, the usual culprit in mixed files.
@@ -18,6 +23,7 @@ from __future__ import annotations
 
 import codecs
 import re
+import unicodedata
 from collections.abc import Iterator
 from dataclasses import dataclass
 from typing import BinaryIO
@@ -30,6 +36,16 @@ SAMPLE_BYTES = 1 << 16
 CONTROL_SHARE = 0.05
 """Share of C0 control bytes (other than tab, line feed, vertical tab, form feed, carriage return, escape
 and the old end-of-file mark ^Z) above which a sample is taken for binary data (common practice)."""
+
+UTF16_NUL_PARITY = 0.95
+"""Share of a sample's NUL bytes that must sit at offsets of one parity for it to be read as UTF-16."""
+
+UTF16_MIN_NUL_SHARE = 0.02
+"""Share of NUL bytes below which a sample is not taken for UTF-16 (a space every 25 characters is enough)."""
+
+UTF16_TEXT_SHARE = 0.98
+"""Share of the decoded characters that must be text (not controls, unassigned or private-use code points,
+nor lone surrogates) for a sample without a byte-order mark to be read as UTF-16 (common practice)."""
 
 _BOMS = (
     (codecs.BOM_UTF32_LE, "utf-32"),
@@ -66,6 +82,35 @@ def bom_encoding(sample: bytes) -> str | None:
         if sample.startswith(bom):
             return codec
     return None
+
+
+def _text_share(text: str) -> float:
+    if not text:
+        return 0.0
+    wrong = sum(
+        1 for ch in text if ch not in "\t\n\r\f\v" and unicodedata.category(ch) in ("Cc", "Cn", "Co", "Cs")
+    )
+    return 1 - wrong / len(text)
+
+
+def utf16_without_bom(sample: bytes, complete: bool) -> str | None:
+    """ "utf-16-le" or "utf-16-be" for a sample that is UTF-16 text without a byte-order mark, else None."""
+    odd, even = sample[1::2].count(0), sample[0::2].count(0)
+    if not sample or odd + even < UTF16_MIN_NUL_SHARE * len(sample):
+        return None
+    odd = odd / (odd + even)
+    if odd >= UTF16_NUL_PARITY:
+        codec = "utf-16-le"
+    elif odd <= 1 - UTF16_NUL_PARITY:
+        codec = "utf-16-be"
+    else:
+        return None
+    usable = sample if complete else sample[: len(sample) & ~1]
+    try:
+        text = codecs.getincrementaldecoder(codec)().decode(usable, final=complete)
+    except UnicodeDecodeError:
+        return None
+    return codec if _text_share(text) >= UTF16_TEXT_SHARE else None
 
 
 def looks_binary(sample: bytes) -> bool:
@@ -109,8 +154,14 @@ def detect_encoding(sample: bytes, complete: bool) -> Encoding:
     codec = bom_encoding(sample)
     if codec is not None:
         return Encoding(codec)
+    codec = utf16_without_bom(sample, complete)
+    if codec is not None:
+        return Encoding(codec)
     if looks_binary(sample):
-        raise ValueError("looks like binary data, not text")
+        raise ValueError(
+            "looks like binary data, not text (text in UTF-16 or UTF-32 without a byte-order mark that "
+            "cannot be told from binary data: save it as UTF-8, or with a byte-order mark)"
+        )
     if _is_utf8(sample, complete) or _mostly_utf8(sample):
         return Encoding("utf-8", _UTF8_FALLBACK)
     matches = from_bytes(sample)

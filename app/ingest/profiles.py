@@ -23,6 +23,10 @@ The default profile
    Tibetan) every character, with the combining marks that follow it, is one token: "東京に" gives
    "東", "京", "に".
 6. Everything else (punctuation, symbols, emoji, whitespace) separates tokens and is not counted.
+7. A token longer than ``MAX_WORD_CHARS`` characters is not a word (a run of letters without a break,
+   such as an encoded blob or a script written without spaces under ``no-char-units``) and is not counted:
+   no word stored, shown or downloaded is longer (common practice: the longest dictionary words are well
+   under 100 letters).
 
 Steps 3 to 6 run in native code: the token pattern is a regular expression in the syntax of Rust's
 ``regex`` crate, matched by polars (``Series.str.extract_all``), so the same compiled engine, with the same
@@ -42,6 +46,8 @@ import unicodedata
 from dataclasses import asdict, dataclass, fields
 from typing import TYPE_CHECKING, Any, Literal, get_args
 
+from app.ingest.names import clean_name
+
 if TYPE_CHECKING:
     import polars as pl
 
@@ -50,6 +56,9 @@ SplitMode = Literal["keep", "split"]
 
 NUMBER_TYPE = "#num"
 """The single type every number becomes with ``numbers="collapse"``."""
+MAX_WORD_CHARS = 100
+"""Longer tokens are not counted (step 7)."""
+MAX_PROFILE_NAME = 64
 
 _APOSTROPHES = "'\u2019"
 _HYPHENS = "\\-\u2010\u2011"
@@ -82,7 +91,11 @@ class TokenizationProfile:
 
     def __post_init__(self) -> None:
         if not isinstance(self.name, str) or not self.name.strip():
-            raise ValueError(f"profile name must be a non-empty string, not {self.name!r}")
+            raise ValueError(f"profile name must be a non-empty string, not {self.name[:MAX_PROFILE_NAME]!r}")
+        if clean_name(self.name, "profile name", MAX_PROFILE_NAME) != self.name:
+            raise ValueError(
+                "profile name: no spaces at either end and no runs of spaces, tabs or line breaks"
+            )
         for flag in ("case_fold", "char_unit"):
             if not isinstance(getattr(self, flag), bool):
                 raise ValueError(f"profile field {flag!r} must be true or false, not {getattr(self, flag)!r}")
@@ -181,6 +194,7 @@ class Tokenizer:
         pattern = self._char_units if use_char_units else self._plain
         # Exploding the list of an empty text gives one null: tokens are never null otherwise.
         found = column.str.extract_all(pattern).explode().drop_nulls()
+        found = found.filter(found.str.len_chars() <= MAX_WORD_CHARS)
         if self.profile.numbers == "collapse":
             # A token starting with a decimal digit is a number: words start with a letter or mark.
             return found.str.replace(r"^\p{Nd}.*", NUMBER_TYPE, literal=False)

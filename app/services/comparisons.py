@@ -591,11 +591,43 @@ def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, A
     return snapshot
 
 
+class NotAllowedError(PermissionError):
+    """A lab member asked for something only the owner (or an admin) may do; the message says what."""
+
+
+@dataclass(frozen=True)
+class Publisher:
+    """Who publishes: a lab member's id and role (``lab`` False outside lab mode, where anything goes)."""
+
+    lab: bool = False
+    member_id: int | None = None
+    is_admin: bool = False
+
+    def may_manage(self, creator_id: int | None) -> bool:
+        """Unpublish or delete a saved comparison: its creator or an admin (anyone outside lab mode)."""
+        return not self.lab or self.is_admin or (self.member_id is not None and self.member_id == creator_id)
+
+
+def check_publishable(engine: Engine, corpus_ids: list[int], publisher: Publisher) -> None:
+    """NotAllowedError unless every corpus may be made public by ``publisher``: in lab mode only corpora
+    the member uploaded (an admin: any corpus)."""
+    if not publisher.lab or publisher.is_admin:
+        return
+    corpora = store.get_corpora(engine, corpus_ids)
+    foreign = [c for c in corpora.values() if c.owner_id is None or c.owner_id != publisher.member_id]
+    if foreign:
+        names = ", ".join(f"{c.name} (id {c.id})" for c in foreign)
+        raise NotAllowedError(
+            f"only corpora you uploaded can be made public (or ask an admin); not yours: {names}"
+        )
+
+
 def save(
     engine: Engine, settings: ComparisonSettings, creator_id: int | None = None, public: bool = False
 ) -> str:
     """Store the live snapshot of these settings under a new unguessable slug; returns the slug. In lab mode
-    ``creator_id`` is the member saving it, and ``public`` lets anyone with the link see it without words."""
+    ``creator_id`` is the member saving it, and ``public`` lets anyone with the link see it without words
+    (check ``check_publishable`` first)."""
     snapshot = live_comparison(engine, settings)
     row = saved.save_comparison(
         engine,
@@ -640,10 +672,39 @@ def saved_comparison(engine: Engine, slug: str) -> dict[str, Any]:
     }
 
 
+def set_visibility(engine: Engine, slug: str, public: bool, publisher: Publisher) -> None:
+    """Make a saved comparison public or members-only: its creator or an admin (publishing again needs
+    ``check_publishable`` too); NotAllowedError or ComparisonNotFoundError otherwise."""
+    row = saved.get_comparison(engine, slug)
+    if not publisher.may_manage(row.creator_id):
+        raise NotAllowedError(
+            "only the member who saved this comparison, or an admin, may change who sees it"
+        )
+    if public:
+        check_publishable(engine, json.loads(row.corpus_ids_json), publisher)
+    saved.set_public(engine, slug, public)
+
+
+def delete_saved(engine: Engine, slug: str, publisher: Publisher) -> None:
+    """Delete a saved comparison: its creator or an admin; NotAllowedError or ComparisonNotFoundError."""
+    if not publisher.may_manage(saved.creator_of(engine, slug)):
+        raise NotAllowedError("only the member who saved this comparison, or an admin, may delete it")
+    saved.delete_comparison(engine, slug)
+
+
+def may_manage(engine: Engine, slug: str, publisher: Publisher) -> bool:
+    return publisher.may_manage(saved.creator_of(engine, slug))
+
+
 def without_word_lists(snapshot: dict[str, Any]) -> dict[str, Any]:
     """The snapshot as a visitor who is not signed in sees a public permalink: every number and curve, but
-    no word (the distinctive words are emptied and marked hidden; counts of words tested stay)."""
-    return snapshot | {"distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True}}
+    no word (the distinctive words are emptied and marked hidden; counts of words tested stay) and no
+    content hash (the SHA-256 of a corpus's text would let anyone confirm a guess of that text)."""
+    corpora = [{k: v for k, v in c.items() if k != "content_hash"} for c in snapshot["corpora"]]
+    return snapshot | {
+        "corpora": corpora,
+        "distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True},
+    }
 
 
 # ------------------------------------------------------------------------------------------ downloads

@@ -13,6 +13,7 @@ from app.config import PROGRAM_VERSION
 from app.core import text_order
 from app.ingest.counting import count_sources
 from app.ingest.engines import EngineName
+from app.ingest.names import clean_name
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import TextSource
 from app.services import modelling
@@ -20,6 +21,7 @@ from app.store.corpora import CorpusRecord, save_corpus
 
 MAX_NAME_LENGTH = 200
 MAX_LABELS = 50
+MAX_LABEL_KEY, MAX_LABEL_VALUE = 100, 500
 MAX_TEXT_ORDER_TOKENS = 20_000_000  # MATTR/MTLD/segments on at most this many tokens (about 120 MB of text)
 
 ProgressCallback = Callable[[int, int], None]
@@ -56,22 +58,30 @@ def parse_labels(text: str | dict | None) -> dict[str, str]:
                 key, value = line.split("=", 1)
                 pairs.append((key, value))
             items = pairs
-    labels = {str(k).strip(): str(v).strip() for k, v in items}
+    items = list(items)
+    if len(items) > MAX_LABELS:
+        raise IngestionInputError(f"labels: at most {MAX_LABELS} labels")
+    try:
+        labels = {
+            clean_name(str(k), "labels: a key", MAX_LABEL_KEY): clean_name(
+                str(v), f"labels: the value of {str(k)[:MAX_LABEL_KEY]!r}", MAX_LABEL_VALUE
+            )
+            for k, v in items
+        }
+    except ValueError as exc:
+        raise IngestionInputError(str(exc)) from exc
     if any(not k for k in labels):
         raise IngestionInputError("labels: a label needs a non-empty key")
-    if len(labels) > MAX_LABELS or any(len(k) > 100 or len(v) > 500 for k, v in labels.items()):
-        raise IngestionInputError(
-            f"labels: at most {MAX_LABELS} labels, keys up to 100 and values up to 500 characters"
-        )
     return labels
 
 
 def check_name(name: str) -> str:
-    name = (name or "").strip()
+    try:
+        name = clean_name(name or "", "name", MAX_NAME_LENGTH)
+    except ValueError as exc:
+        raise IngestionInputError(str(exc)) from exc
     if not name:
         raise IngestionInputError("name: a corpus needs a name")
-    if len(name) > MAX_NAME_LENGTH:
-        raise IngestionInputError(f"name: at most {MAX_NAME_LENGTH} characters")
     return name
 
 

@@ -25,7 +25,7 @@ from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session
 
 from app.store.db import transaction
-from app.store.tables import Account, ApiToken, Corpus
+from app.store.tables import Account, ApiToken, Corpus, LabSession
 
 SCRYPT_N, SCRYPT_R, SCRYPT_P = 2**14, 8, 1
 SALT_BYTES = 16
@@ -110,7 +110,7 @@ def check_password(password: str) -> str:
     return password
 
 
-def _member(account: Account) -> Member:
+def member_from_account(account: Account) -> Member:
     stamp = hashlib.sha256(account.password_hash.encode("ascii")).hexdigest()[:16]
     return Member(int(account.id), account.name, bool(account.is_admin), stamp)
 
@@ -124,18 +124,36 @@ def add_account(engine: Engine, name: str, password: str, is_admin: bool = False
         with transaction(engine) as session:
             session.add(account)
             session.flush()
-            return _member(account)
+            return member_from_account(account)
     except IntegrityError as exc:
         raise AccountError(f"name: there is already an account called {name!r}") from exc
 
 
-def set_password(engine: Engine, name: str, password: str) -> None:
-    """Replace the password of ``name`` (its sessions end); AccountError for an unknown name."""
+@dataclass(frozen=True)
+class PasswordChange:
+    """What a password change did besides: sessions ended, API tokens revoked and API tokens kept."""
+
+    sessions_ended: int
+    tokens_revoked: int
+    tokens_kept: int
+
+
+def set_password(engine: Engine, name: str, password: str, revoke_tokens: bool = False) -> PasswordChange:
+    """Replace the password of ``name``, end every session of the member and, when asked, revoke their API
+    tokens, in one transaction; AccountError for an unknown name."""
     new_hash = hash_password(check_password(password))
     with transaction(engine) as session:
-        changed = session.execute(update(Account).where(Account.name == name).values(password_hash=new_hash))
-        if changed.rowcount != 1:
+        account_id = session.execute(select(Account.id).where(Account.name == name)).scalar_one_or_none()
+        if account_id is None:
             raise AccountError(f"no account called {name!r}")
+        session.execute(update(Account).where(Account.id == account_id).values(password_hash=new_hash))
+        ended = session.execute(delete(LabSession).where(LabSession.account_id == account_id)).rowcount
+        tokens = delete(ApiToken).where(ApiToken.account_id == account_id)
+        revoked = session.execute(tokens).rowcount if revoke_tokens else 0
+        kept = session.execute(
+            select(func.count()).select_from(ApiToken).where(ApiToken.account_id == account_id)
+        ).scalar_one()
+        return PasswordChange(ended, revoked, int(kept))
 
 
 def any_account(engine: Engine) -> bool:
@@ -152,7 +170,7 @@ def list_accounts(engine: Engine) -> list[tuple[Member, int]]:
             .outerjoin(tokens, tokens.c.account_id == Account.id)
             .order_by(Account.id)
         )
-        return [(_member(account), int(n)) for account, n in rows]
+        return [(member_from_account(account), int(n)) for account, n in rows]
 
 
 def member_exists(engine: Engine, name: str) -> bool:
@@ -163,7 +181,7 @@ def member_exists(engine: Engine, name: str) -> bool:
 def member_by_id(engine: Engine, account_id: int) -> Member | None:
     with Session(engine) as session:
         account = session.get(Account, account_id)
-        return _member(account) if account else None
+        return member_from_account(account) if account else None
 
 
 def authenticate(engine: Engine, name: str, password: str) -> Member | None:
@@ -173,7 +191,7 @@ def authenticate(engine: Engine, name: str, password: str) -> Member | None:
     if account is None:
         verify_password(password, _dummy_hash())
         return None
-    return _member(account) if verify_password(password, account.password_hash) else None
+    return member_from_account(account) if verify_password(password, account.password_hash) else None
 
 
 def _token_digest(token: str) -> str:
@@ -208,7 +226,7 @@ def member_by_token(engine: Engine, token: str) -> Member | None:
             .join(ApiToken, ApiToken.account_id == Account.id)
             .where(ApiToken.token_hash == _token_digest(token))
         ).scalar_one_or_none()
-        return _member(account) if account else None
+        return member_from_account(account) if account else None
 
 
 def set_corpus_owner(engine: Engine, corpus_id: int, account_id: int) -> None:

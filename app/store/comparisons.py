@@ -6,7 +6,7 @@ import json
 import secrets
 from typing import Any
 
-from sqlalchemy import select
+from sqlalchemy import delete, select
 from sqlalchemy.engine import Engine
 from sqlmodel import Session
 
@@ -68,3 +68,22 @@ def get_comparison(engine: Engine, slug: str) -> SavedComparison:
         if row is None:
             raise ComparisonNotFoundError(slug)
         return row
+
+
+def creator_of(engine: Engine, slug: str) -> int | None:
+    """The lab member who saved the comparison (None when saved outside lab mode); ComparisonNotFoundError."""
+    return get_comparison(engine, slug).creator_id
+
+
+def set_public(engine: Engine, slug: str, public: bool) -> None:
+    with transaction(engine) as session:
+        row = session.get(SavedComparison, slug)
+        if row is None:
+            raise ComparisonNotFoundError(slug)
+        row.public = public
+
+
+def delete_comparison(engine: Engine, slug: str) -> None:
+    with transaction(engine) as session:
+        if session.execute(delete(SavedComparison).where(SavedComparison.slug == slug)).rowcount != 1:
+            raise ComparisonNotFoundError(slug)

@@ -6,6 +6,7 @@ newest revision, and a store made before migrations existed is taken over as it 
 
 from __future__ import annotations
 
+import os
 import sqlite3
 import time
 from collections.abc import Iterator
@@ -48,12 +49,21 @@ def _use_wal(cursor: sqlite3.Cursor) -> None:
             time.sleep(0.05)
 
 
+def _private_file(path: Path) -> None:
+    """Create the SQLite file (and its folder, when missing) readable by its owner only: modes 0600 and
+    0700. SQLite gives its -wal and -shm files the mode of the database file."""
+    path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
+    os.close(os.open(path, os.O_RDWR | os.O_CREAT, 0o600))
+    if path.stat().st_mode & 0o077:
+        path.chmod(0o600)
+
+
 def create_store_engine(url: str) -> Engine:
     """The engine alone, schema untouched; SQLite gets WAL, foreign keys and a busy timeout."""
     is_sqlite = url.startswith("sqlite")
     database = make_url(url).database
     if is_sqlite and database and database != ":memory:":
-        Path(database).parent.mkdir(parents=True, exist_ok=True)
+        _private_file(Path(database))
     engine = create_engine(url, connect_args={"check_same_thread": False, "timeout": 30} if is_sqlite else {})
     if is_sqlite:
 

@@ -152,3 +152,24 @@ class BackgroundTask(SQLModel, table=True):
     created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
     updated_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
     heartbeat_at: datetime | None = Field(default=None, sa_type=UTCDateTime)
+
+
+class LabSession(SQLModel, table=True):
+    """A signed-in browser: the session cookie holds a random id, the store only its SHA-256. Deleting the
+    row ends the session in every server process (sign-out, password change, expiry)."""
+
+    id_hash: str = Field(primary_key=True)
+    account_id: int = Field(
+        sa_column=Column(Integer, ForeignKey("account.id", ondelete="CASCADE"), nullable=False, index=True)
+    )
+    created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
+    expires_at: datetime = Field(sa_type=UTCDateTime)
+
+
+class SignInFailures(SQLModel, table=True):
+    """Failed sign-ins counted per key ("pair <name> <address>" or "address <address>"), shared by every
+    server process (app.store.signins)."""
+
+    key: str = Field(primary_key=True)
+    failures: int = Field(default=0)
+    last_failure_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)

@@ -6,7 +6,6 @@ import time
 from typing import Annotated
 
 from fastapi import APIRouter, Depends, File, Form, HTTPException, Path, Query, Request, Response, UploadFile
-from fastapi.responses import JSONResponse
 from pydantic import BaseModel, Field, field_validator
 from sqlalchemy.engine import Engine
 
@@ -19,6 +18,7 @@ from app.store import corpora as store
 from app.store import tasks as queue
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
+from app.web.jsonsafe import FiniteJSONResponse
 from app.web.uploads import parse_profile, receive
 
 router = APIRouter(prefix="/api", tags=["api"])
@@ -48,7 +48,12 @@ def list_corpora(engine: EngineDep) -> list[dict]:
     return [store.summary(c) for c in store.list_corpora(engine)]
 
 
-@router.post("/corpora", status_code=201)
+# The pasted text is one form field: it may be as large as the body limit allows (app.web.limits), which
+# receive() then holds to the upload limit; Starlette's own default would stop it at 1 MB.
+PASTED_TEXT_PART_BYTES = 1 << 40
+
+
+@router.post("/corpora", status_code=201, form_limits={"max_part_size": PASTED_TEXT_PART_BYTES})
 def upload_corpus(
     request: Request,
     engine: EngineDep,
@@ -91,7 +96,7 @@ def upload_corpus(
         raise
     task = jobs.submit(task)
     if not wait:
-        return JSONResponse(jobs.job(task.id) | {"url": f"/api/jobs/{task.id}"}, status_code=202)
+        return FiniteJSONResponse(jobs.job(task.id) | {"url": f"/api/jobs/{task.id}"}, status_code=202)
     while not task.finished:
         time.sleep(WAIT_POLL_SECONDS)
         task = queue.get(engine, task.id)
@@ -225,7 +230,7 @@ def models(corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, D
         if task.state == queue.DONE:  # finished between the two looks
             return _modelling_call(modelling.model_report, engine, corpus_id)
         body = {"status": task.state, "stage": task.stage, "detail": exc.detail}
-        return JSONResponse(body, status_code=202, headers={"Retry-After": "1"})
+        return FiniteJSONResponse(body, status_code=202, headers={"Retry-After": "1"})
 
 
 @router.get("/corpora/{corpus_id}/richness")

@@ -26,6 +26,7 @@ from app.web.compare_figures import comparison_figures
 from app.web.deps import engine_of
 from app.web.downloads import attachment
 from app.web.figures import PALETTE
+from app.web.jsonsafe import FiniteJSONResponse
 from app.web.pages import render
 from app.web.security import Viewer, viewer_of
 
@@ -33,6 +34,45 @@ router = APIRouter()
 EngineDep = Annotated[Engine, Depends(engine_of)]
 ViewerDep = Annotated[Viewer, Depends(viewer_of)]
 SLUG = re.compile(r"[A-Za-z0-9_-]{16,86}")
+
+
+def publisher(viewer: Viewer) -> service.Publisher:
+    member = viewer.member
+    return service.Publisher(viewer.lab, member.id if member else None, bool(member and member.is_admin))
+
+
+def _save(engine: Engine, settings: service.ComparisonSettings, viewer: Viewer, public: bool) -> str:
+    """Save the comparison after its checks: 404/422 for bad corpora or settings, 403 for publishing
+    corpora of other members; nothing is stored when refused."""
+    _live(engine, settings)
+    try:
+        if public:
+            service.check_publishable(engine, list(settings.corpora), publisher(viewer))
+    except service.NotAllowedError as exc:
+        raise HTTPException(status_code=403, detail=str(exc)) from exc
+    return service.save(engine, settings, viewer.member.id if viewer.member else None, public)
+
+
+def _manage(action, engine: Engine, slug: str, *args) -> None:
+    """Run a change of a saved comparison: 404 for an unknown one, 403 when the viewer may not."""
+    if not SLUG.fullmatch(slug):
+        raise HTTPException(status_code=404, detail="no saved comparison at this address")
+    try:
+        action(engine, slug, *args)
+    except ComparisonNotFoundError as exc:
+        raise HTTPException(status_code=404, detail="no saved comparison at this address") from exc
+    except service.NotAllowedError as exc:
+        raise HTTPException(status_code=403, detail=str(exc)) from exc
+
+
+class Visibility(BaseModel):
+    """Body of PATCH /api/comparisons/{slug}."""
+
+    model_config = ConfigDict(extra="forbid")
+
+    public: bool = Field(
+        description="true: anyone with the link sees it (without words); false: members only"
+    )
 
 
 class ComparisonRequest(BaseModel):
@@ -160,6 +200,12 @@ def live_query(snapshot: dict[str, Any]) -> str:
 
 def _page(request: Request, snapshot: dict[str, Any], saved: bool, scale: str | None) -> HTMLResponse:
     query = live_query(snapshot)
+    viewer = viewer_of(request)
+    manage = (
+        saved
+        and not viewer.anonymous
+        and service.may_manage(engine_of(request), snapshot["slug"], publisher(viewer))
+    )
     base = f"/api/comparisons/{snapshot['slug']}" if saved else "/api/compare"
     suffix = "" if saved else f"?{query}"
     return render(
@@ -170,6 +216,7 @@ def _page(request: Request, snapshot: dict[str, Any], saved: bool, scale: str | 
         corpora={c["id"]: c for c in snapshot["corpora"]},
         figures=comparison_figures(snapshot),
         palette=PALETTE,
+        may_manage=manage,
         scale="share" if scale == "share" else "tokens",
         live_query=query,
         json_url=f"{base}{suffix}",
@@ -187,7 +234,7 @@ def _stem(snapshot: dict[str, Any]) -> str:
 
 def _json(snapshot: dict[str, Any], download: bool) -> JSONResponse:
     headers = {"Content-Disposition": f'attachment; filename="{_stem(snapshot)}.json"'} if download else None
-    return JSONResponse(snapshot, headers=headers)
+    return FiniteJSONResponse(snapshot, headers=headers)
 
 
 def _table_csv(snapshot: dict[str, Any]) -> Response:
@@ -224,9 +271,22 @@ def save_from_page(
     settings: Annotated[service.ComparisonSettings, Depends(_form_settings)],
     public: Annotated[bool, Form()] = False,
 ) -> RedirectResponse:
-    _live(engine, settings)  # 404/422 before saving anything
-    slug = service.save(engine, settings, viewer.member.id if viewer.member else None, public)
+    slug = _save(engine, settings, viewer, public)
     return RedirectResponse(service.permalink(slug), status_code=303)
+
+
+@router.post("/compare/{slug}/visibility", include_in_schema=False)
+def change_visibility_from_page(
+    slug: str, engine: EngineDep, viewer: ViewerDep, public: Annotated[bool, Form()] = False
+) -> RedirectResponse:
+    _manage(service.set_visibility, engine, slug, public, publisher(viewer))
+    return RedirectResponse(service.permalink(slug), status_code=303)
+
+
+@router.post("/compare/{slug}/delete", include_in_schema=False)
+def delete_from_page(slug: str, engine: EngineDep, viewer: ViewerDep) -> RedirectResponse:
+    _manage(service.delete_saved, engine, slug, publisher(viewer))
+    return RedirectResponse("/", status_code=303)
 
 
 @router.get("/compare/{slug}", response_class=HTMLResponse, include_in_schema=False)
@@ -252,9 +312,23 @@ def create_comparison(body: ComparisonRequest, engine: EngineDep, viewer: Viewer
         )
     except service.ComparisonInputError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
-    _live(engine, settings)
-    slug = service.save(engine, settings, viewer.member.id if viewer.member else None, body.public)
+    slug = _save(engine, settings, viewer, body.public)
     return {"slug": slug, "url": service.permalink(slug)}
+
+
+@router.patch("/api/comparisons/{slug}", tags=["comparisons"])
+def change_visibility(slug: str, body: Visibility, engine: EngineDep, viewer: ViewerDep) -> dict:
+    """Make a saved comparison public or members-only (lab mode: its creator or an admin; publishing needs
+    every corpus to be the member's own)."""
+    _manage(service.set_visibility, engine, slug, body.public, publisher(viewer))
+    return {"slug": slug, "public": body.public}
+
+
+@router.delete("/api/comparisons/{slug}", status_code=204, tags=["comparisons"])
+def delete_comparison(slug: str, engine: EngineDep, viewer: ViewerDep) -> Response:
+    """Delete a saved comparison: its permalink stops working (lab mode: its creator or an admin)."""
+    _manage(service.delete_saved, engine, slug, publisher(viewer))
+    return Response(status_code=204)
 
 
 @router.get("/api/compare", tags=["comparisons"])

@@ -101,11 +101,14 @@ def model_section(
     }
     rec = predictors["recommended"]
     beyond = curve_x[curve_x >= tokens].astype(float)
-    rec_band = (
-        beyond.tolist(),
-        np.asarray(rec.types_low(beyond)).tolist(),
-        np.asarray(rec.types_high(beyond)).tolist(),
+    low, high = (
+        np.asarray(rec.types_low(beyond), dtype=float),
+        np.asarray(rec.types_high(beyond), dtype=float),
     )
+    # The band's upper edge is unbounded once the backtest error reaches 100% (ErrorBand.limits): far out,
+    # e.g. at 600x a small corpus, the band ends there instead of reaching to infinity.
+    bounded = np.isfinite(low) & np.isfinite(high)
+    rec_band = (beyond[bounded].tolist(), low[bounded].tolist(), high[bounded].tolist())
     predictions = [
         {
             "tokens": n,

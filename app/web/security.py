@@ -6,18 +6,18 @@ security headers are added. Lab mode (as soon as the store has an account, or al
 (``Authorization: Bearer ...``), except the sign-in page, ``/api/health``, static assets and comparisons
 their creator made public. Anonymous API calls get 401 JSON, anonymous pages a redirect to ``/login``.
 
-Sessions are signed cookies (itsdangerous, HMAC-SHA1 over the JSON; key from ``LEXIGROWTH_SECRET_KEY`` or a
-random key kept in the data folder with mode 0600): HttpOnly, SameSite=Lax, Secure over HTTPS. A session
-holds the member's id, a stamp of their password hash (a password change ends older sessions) and a CSRF
-token. Every state-changing request (POST, PUT, PATCH, DELETE) made with the session cookie must send that
+Sessions live in the store (``app.store.sessions``): the cookie holds a random session id and the session's
+CSRF token, signed (itsdangerous, HMAC-SHA1 over the JSON; key from ``LEXIGROWTH_SECRET_KEY`` or a random key
+kept in the data folder with mode 0600), HttpOnly, SameSite=Lax, Secure over HTTPS. Signing out deletes the
+session from the store and a password change deletes every session of the member, so a copied cookie stops
+working in every server process at once (OWASP Session Management Cheat Sheet, "Session Expiration":
+invalidate sessions on the server side). Failed sign-ins are counted in the store (``app.store.signins``). Every state-changing request (POST, PUT, PATCH, DELETE) made with the session cookie must send that
 token, in the ``X-CSRF-Token`` header or the ``csrf_token`` form field (OWASP's synchronizer token pattern);
 requests with an API token need none, because a browser never adds that header by itself.
 """
 
 from __future__ import annotations
 
-import base64
-import hashlib
 import hmac
 import ipaddress
 import logging
@@ -25,16 +25,12 @@ import math
 import os
 import re
 import secrets
-import threading
-import time
-from collections import deque
-from collections.abc import Callable
 from dataclasses import dataclass, field
+from datetime import timedelta
 from typing import Annotated, Any
 from urllib.parse import quote
 
 from fastapi import APIRouter, Form, HTTPException, Request
-from fastapi.openapi.docs import get_redoc_html, get_swagger_ui_html
 from fastapi.responses import HTMLResponse, JSONResponse, RedirectResponse, Response
 from itsdangerous import BadData, URLSafeTimedSerializer
 from sqlalchemy.engine import Engine
@@ -43,7 +39,7 @@ from starlette.datastructures import MutableHeaders
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from app.config import Settings
-from app.store import accounts
+from app.store import accounts, sessions, signins
 from app.store import comparisons as saved_comparisons
 from app.store.accounts import Member
 from app.web.pages import render
@@ -63,9 +59,7 @@ PUBLIC_PERMALINK = re.compile(
     r"/compare/([A-Za-z0-9_-]{16,86})|/api/comparisons/([A-Za-z0-9_-]{16,86})(?:/table\.csv)?"
 )
 FORM_TYPES = ("application/x-www-form-urlencoded", "multipart/form-data")
-SIGN_IN_FAILURES_PER_ADDRESS = 10
-SIGN_IN_FAILURES_PER_NAME = 5
-SIGN_IN_WINDOW_SECONDS = 15 * 60
+SIGN_IN_ALLOWANCE = signins.Allowance(pair=5, address=20)
 
 # Plotly fills an empty <style> element through the CSS object model (which a policy does not restrict);
 # allowing exactly the empty element (this is the SHA-256 of "") lets it do that and nothing else inline.
@@ -83,8 +77,6 @@ CONTENT_SECURITY_POLICY = "; ".join(
         "base-uri 'none'",
     ]
 )
-# The API documentation pages load Swagger UI and ReDoc from their CDN, as FastAPI serves them.
-DOCS_CDN = "https://cdn.jsdelivr.net"
 SECURITY_HEADERS = {
     "content-security-policy": CONTENT_SECURITY_POLICY,
     "x-content-type-options": "nosniff",
@@ -124,13 +116,14 @@ class Viewer:
     def csrf_matches(self, sent: str | None) -> bool:
         return _same(self.session.get("csrf"), sent)
 
-    def sign_in(self, member: Member) -> None:
-        """A new session for ``member``, with a new CSRF token (nothing of the anonymous one is kept)."""
+    def sign_in(self, member: Member, session_id: str) -> None:
+        """The new session ``session_id`` for ``member``, with a new CSRF token (nothing of the anonymous
+        one is kept)."""
         self.member = member
-        self.session = {"uid": member.id, "stamp": member.password_stamp, "csrf": secrets.token_urlsafe(32)}
+        self.session = {"sid": session_id, "csrf": secrets.token_urlsafe(32)}
         self.session_changed = True
 
-    def sign_out(self) -> None:
+    def forget_session(self) -> None:
         self.member = None
         self.session = {}
         self.session_changed = True
@@ -198,65 +191,6 @@ def is_loopback(host: str) -> bool:
         return False
 
 
-class SignInThrottle:
-    """Failed sign-ins counted per client address and per member name over a sliding window; past the
-    allowance, sign-in is refused (429) until the oldest failure leaves the window, whatever the password
-    (OWASP Authentication Cheat Sheet, "Protect against automated attacks": limit failed attempts).
-
-    In memory, for one server process; at most ``MAX_KEYS`` addresses and names are remembered.
-    """
-
-    MAX_KEYS = 10_000
-
-    def __init__(
-        self,
-        per_address: int = SIGN_IN_FAILURES_PER_ADDRESS,
-        per_name: int = SIGN_IN_FAILURES_PER_NAME,
-        window_seconds: float = SIGN_IN_WINDOW_SECONDS,
-        clock: Callable[[], float] = time.monotonic,
-    ) -> None:
-        self.window = window_seconds
-        self.clock = clock
-        self._allowed = {"address": per_address, "name": per_name}
-        self._failures: dict[tuple[str, str], deque[float]] = {}
-        self._lock = threading.Lock()
-
-    @staticmethod
-    def _keys(address: str, name: str) -> list[tuple[str, str]]:
-        return [("address", address), ("name", name.strip().casefold())]
-
-    def _recent(self, key: tuple[str, str], now: float) -> deque[float]:
-        times = self._failures.get(key, deque())
-        while times and times[0] <= now - self.window:
-            times.popleft()
-        if not times:
-            self._failures.pop(key, None)
-        return times
-
-    def wait_seconds(self, address: str, name: str) -> float:
-        """Seconds until a sign-in from ``address`` as ``name`` is allowed again (0 when it is)."""
-        now = self.clock()
-        with self._lock:
-            waits = [
-                times[0] + self.window - now
-                for key in self._keys(address, name)
-                if len(times := self._recent(key, now)) >= self._allowed[key[0]]
-            ]
-        return max(waits, default=0.0)
-
-    def failed(self, address: str, name: str) -> None:
-        now = self.clock()
-        with self._lock:
-            keys = self._keys(address, name)
-            if len(self._failures) > self.MAX_KEYS - len(keys):
-                for key in list(self._failures):
-                    self._recent(key, now)
-                while len(self._failures) > self.MAX_KEYS - len(keys):  # still full: forget the oldest
-                    del self._failures[next(iter(self._failures))]
-            for key in keys:
-                self._failures.setdefault(key, deque()).append(now)
-
-
 class Guard:
     """Decides lab mode, identifies the viewer of a request and refuses what they may not see."""
 
@@ -265,7 +199,6 @@ class Guard:
         self.trust_proxy = settings.trust_proxy
         self._lab = settings.mode == "lab"
         self._serializer = URLSafeTimedSerializer(secret_key(settings), salt="lexigrowth-session")
-        self.sign_ins = SignInThrottle()
 
     def lab_mode(self) -> bool:
         """Lab mode, once on, stays on: accounts are never deleted."""
@@ -308,14 +241,23 @@ class Guard:
             )
             return Viewer(lab=True, member=member, via_token=True, token_rejected=member is None)
         viewer = Viewer(lab=True, session=self._session(request.cookies.get(SESSION_COOKIE)))
-        uid = viewer.session.get("uid")
-        if isinstance(uid, int):
-            member = accounts.member_by_id(self.engine, uid)
-            if member is not None and _same(member.password_stamp, viewer.session.get("stamp")):
+        session_id = viewer.session.get("sid")
+        if "sid" in viewer.session or "uid" in viewer.session:  # "uid": a cookie of an older version
+            member = sessions.member_of(self.engine, session_id) if isinstance(session_id, str) else None
+            if member is not None:
                 viewer.member = member
-            else:  # the account's password changed since: forget the sign-in
-                viewer.session, viewer.session_changed = {}, True
+            else:  # signed out, password changed or expired: forget the sign-in
+                viewer.forget_session()
         return viewer
+
+    def start_session(self, viewer: Viewer, member: Member) -> None:
+        viewer.sign_in(member, sessions.start(self.engine, member.id, timedelta(seconds=SESSION_MAX_AGE)))
+
+    def end_session(self, viewer: Viewer) -> None:
+        session_id = viewer.session.get("sid")
+        if isinstance(session_id, str):
+            sessions.end(self.engine, session_id)
+        viewer.forget_session()
 
     def refusal(self, viewer: Viewer, request: Request) -> Response | None:
         """None when the viewer may go on, else the 401 (API) or the redirect to the sign-in page."""
@@ -435,10 +377,16 @@ def login(
     if not viewer.lab:
         return RedirectResponse("/", status_code=303)
     guard: Guard = request.app.state.guard
+    engine = request.app.state.engine
     address = guard.client_address(request)
-    wait = guard.sign_ins.wait_seconds(address, name)
+    wait = signins.wait_seconds(engine, name, address, SIGN_IN_ALLOWANCE)
     if wait > 0:
-        minutes = max(1, math.ceil(wait / 60))
+        seconds = math.ceil(wait)
+        after = (
+            f"{seconds} second{'s' if seconds > 1 else ''}"
+            if seconds < 120
+            else f"{math.ceil(wait / 60)} minutes"
+        )
         log.warning("sign-in refused after repeated failures from %s", address)
         refusal = render(
             request,
@@ -446,14 +394,14 @@ def login(
             status_code=429,
             next=safe_next(next),
             member_name=name,
-            error=f"Too many failed sign-ins. Try again in {minutes} minute{'s' if minutes > 1 else ''}.",
+            error=f"Too many failed sign-ins from this address. Try again in {after}.",
             json_url=None,
         )
         refusal.headers["Retry-After"] = str(math.ceil(wait))
         return refusal
-    member = accounts.authenticate(request.app.state.engine, name, password)
+    member = accounts.authenticate(engine, name, password)
     if member is None:
-        guard.sign_ins.failed(address, name)
+        signins.failed(engine, name, address)
         log.info("failed sign-in from %s", address)
         return render(
             request,
@@ -464,52 +412,116 @@ def login(
             error="Wrong name or password.",
             json_url=None,
         )
-    viewer.sign_in(member)
+    signins.succeeded(engine, name, address)
+    guard.start_session(viewer, member)
     log.info("%s signed in", member.name)
     return RedirectResponse(safe_next(next), status_code=303)
 
 
 @router.post("/logout")
 def logout(request: Request) -> RedirectResponse:
-    viewer_of(request).sign_out()
+    """Ends the session in the store (a copy of the cookie stops working too) and removes the cookie."""
+    request.app.state.guard.end_session(viewer_of(request))
     return RedirectResponse("/login", status_code=303)
+
+
+def _token_count(engine: Engine, member: Member) -> int:
+    return next((n for m, n in accounts.list_accounts(engine) if m.id == member.id), 0)
+
+
+def _password_page(request: Request, status_code: int = 200, **context: Any) -> HTMLResponse:
+    viewer = viewer_of(request)
+    tokens = _token_count(request.app.state.engine, viewer.member)
+    context = {"done": None, "error": None} | context
+    return render(request, "password.html", status_code=status_code, tokens=tokens, json_url=None, **context)
+
+
+@router.get("/account/password", response_class=HTMLResponse)
+def password_page(request: Request):
+    if viewer_of(request).member is None:  # personal mode: there is no account
+        return RedirectResponse("/", status_code=303)
+    return _password_page(request)
+
+
+@router.post("/account/password", response_class=HTMLResponse)
+def change_password(
+    request: Request,
+    current: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    new: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    repeat: Annotated[str, Form(max_length=accounts.MAX_PASSWORD)],
+    revoke_tokens: Annotated[bool, Form()] = False,
+):
+    """A member's own password change: the current password is checked (and counted like a sign-in when
+    wrong); every session of the member ends and a new one starts for this browser; API tokens are revoked
+    when asked. The page says what was done."""
+    viewer = viewer_of(request)
+    if viewer.member is None or viewer.via_token:
+        return RedirectResponse("/", status_code=303)
+    guard: Guard = request.app.state.guard
+    engine = request.app.state.engine
+    name, address = viewer.member.name, guard.client_address(request)
+    if signins.wait_seconds(engine, name, address, SIGN_IN_ALLOWANCE) > 0:
+        return _password_page(
+            request, 429, error="Too many wrong passwords from this address: try again later."
+        )
+    if accounts.authenticate(engine, name, current) is None:
+        signins.failed(engine, name, address)
+        return _password_page(request, 401, error="The current password is wrong.")
+    if new != repeat:
+        return _password_page(request, 422, error="The two new passwords differ.")
+    try:
+        change = accounts.set_password(engine, name, new, revoke_tokens=revoke_tokens)
+    except accounts.AccountError as exc:
+        return _password_page(request, 422, error=str(exc))
+    signins.succeeded(engine, name, address)
+    guard.start_session(viewer, accounts.member_by_id(engine, viewer.member.id))
+    log.info("%s changed their password", name)
+    others = change.sessions_ended - 1
+    done = f"Password changed. {others} other signed-in session{'s' if others != 1 else ''} ended."
+    if change.tokens_revoked:
+        done += f" {change.tokens_revoked} API token{'s' if change.tokens_revoked > 1 else ''} revoked."
+    elif change.tokens_kept:
+        done += (
+            f" {change.tokens_kept} API token{'s' if change.tokens_kept > 1 else ''} kept: they still work."
+        )
+    return _password_page(request, done=done)
 
 
 # ------------------------------------------------------------------------------- API documentation
 
-
-def _hashes(html: str, tag: str) -> str:
-    """CSP sources for the inline ``<tag>`` elements (without src) of a page we serve as it is."""
-    bodies = re.findall(rf"<{tag}>(.*?)</{tag}>", html, flags=re.S)
-    return " ".join(
-        f"'sha256-{base64.b64encode(hashlib.sha256(b.encode()).digest()).decode()}'" for b in bodies
-    )
-
-
-def _documentation(page: HTMLResponse) -> HTMLResponse:
-    """FastAPI's documentation page with a policy allowing its CDN and exactly its own inline code."""
-    html = page.body.decode()
-    page.headers["content-security-policy"] = "; ".join(
-        [
-            "default-src 'none'",
-            f"script-src 'self' {DOCS_CDN} {_hashes(html, 'script')}",
-            f"style-src 'self' {DOCS_CDN} https://fonts.googleapis.com 'unsafe-inline'",
-            "img-src 'self' data: https:",
-            "font-src https://fonts.gstatic.com",
-            "connect-src 'self'",
-            "worker-src blob:",
-            "frame-ancestors 'none'",
-            "base-uri 'none'",
-        ]
-    )
-    return page
+# Swagger UI from the swagger-ui-bundle package, served by the app itself (``SWAGGER_ASSETS``, mounted in
+# app.main); the page has no inline script: static/swagger-init.js starts it.
+SWAGGER_ASSETS = "/static/vendor/swagger-ui"
+DOCS_PAGE = f"""<!doctype html>
+<html lang="en">
+<head>
+<meta charset="utf-8">
+<title>Lexigrowth API</title>
+<link rel="stylesheet" href="{SWAGGER_ASSETS}/swagger-ui.css">
+</head>
+<body>
+<div id="swagger-ui"></div>
+<script src="{SWAGGER_ASSETS}/swagger-ui-bundle.js"></script>
+<script src="/static/swagger-init.js"></script>
+</body>
+</html>
+"""
+# Scripts, styles and connections from the app only; Swagger UI sets style attributes and draws its
+# icons as data: images, so those two are allowed on this page and nowhere else.
+DOCS_POLICY = "; ".join(
+    [
+        "default-src 'none'",
+        "script-src 'self'",
+        "style-src 'self' 'unsafe-inline'",
+        "img-src 'self' data:",
+        "connect-src 'self'",
+        "frame-ancestors 'none'",
+        "base-uri 'none'",
+        "form-action 'self'",
+    ]
+)
 
 
 @router.get("/docs")
-def swagger_ui(request: Request) -> HTMLResponse:
-    return _documentation(get_swagger_ui_html(openapi_url=request.app.openapi_url, title="Lexigrowth API"))
-
-
-@router.get("/redoc")
-def redoc(request: Request) -> HTMLResponse:
-    return _documentation(get_redoc_html(openapi_url=request.app.openapi_url, title="Lexigrowth API"))
+def swagger_ui() -> HTMLResponse:
+    return HTMLResponse(DOCS_PAGE, headers={"content-security-policy": DOCS_POLICY})

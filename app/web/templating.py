@@ -7,6 +7,8 @@ from pathlib import Path
 
 from fastapi.templating import Jinja2Templates
 
+from app.web import jsonsafe
+
 
 def thousands(value: float | int | None, decimals: int = 0) -> str:
     """1234567.8 -> '1,234,568' (or with ``decimals``); '–' for missing values."""
@@ -25,4 +27,6 @@ def make_templates(directory: Path) -> Jinja2Templates:
     templates = Jinja2Templates(directory=str(directory))
     templates.env.filters["thousands"] = thousands
     templates.env.filters["percent"] = percent
+    # Figures and data embedded with |tojson: NaN and infinities become null (see app.web.jsonsafe).
+    templates.env.policies["json.dumps_function"] = jsonsafe.dumps
     return templates

@@ -48,6 +48,15 @@ WESTERN = "Gabriël zag de coöperatie en het café; één reünie, garçon dé�
         ("utf-16-le BOM", codecs.BOM_UTF16_LE + MULTILINGUAL.encode("utf-16-le"), MULTILINGUAL, {"utf-16"}),
         ("utf-16-be BOM", codecs.BOM_UTF16_BE + MULTILINGUAL.encode("utf-16-be"), MULTILINGUAL, {"utf-16"}),
         ("utf-32", MULTILINGUAL.encode("utf-32"), MULTILINGUAL, {"utf-32"}),
+        # Without a byte-order mark, UTF-16 is told by the parity of its NUL bytes (app.ingest.encoding).
+        ("utf-16-le, no BOM", MULTILINGUAL.encode("utf-16-le"), MULTILINGUAL, {"utf-16-le"}),
+        ("utf-16-be, no BOM", MULTILINGUAL.encode("utf-16-be"), MULTILINGUAL, {"utf-16-be"}),
+        (
+            "utf-16-le, no BOM, Cyrillic",
+            ("Мороз и солнце; день чудесный! " * 4).encode("utf-16-le"),
+            "Мороз и солнце; день чудесный! " * 4,
+            {"utf-16-le"},
+        ),
         ("latin-1", (WESTERN * 3).encode("latin-1"), WESTERN * 3, {"cp1252", "latin_1"}),
         (
             "cp1252",
@@ -258,7 +267,12 @@ def test_missing_file(tmp_path: Path) -> None:
         ),
         ("x.txt", b"text with a NUL\x00 byte", "looks like binary data, not text"),
         ("x.txt", b"\x01\x02\x03\x04 mostly control bytes \x05\x06\x07\x08" * 20, "looks like binary data"),
-        ("x.txt", "UTF-16 without a byte-order mark".encode("utf-16-le"), "looks like binary data, not text"),
+        # NULs on every other offset of three in four: not UTF-16; the message says what would work.
+        (
+            "x.txt",
+            "UTF-32 without a byte-order mark".encode("utf-32-le"),
+            "save it as UTF-8, or with a byte-order",
+        ),
         ("page.html", b"\x00\x01\x02" * 100, "looks like binary data, not HTML"),
         *(
             (
