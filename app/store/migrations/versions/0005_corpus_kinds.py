@@ -14,7 +14,7 @@ import sqlalchemy as sa
 from alembic import context, op
 
 revision = "0005_corpus_kinds"
-down_revision = "0003_background_tasks"  # TEMPORARY: final commit points at 0004_lab_sessions
+down_revision = "0004_lab_sessions"
 branch_labels = None
 depends_on = None
 
