@@ -94,8 +94,10 @@ def serve(
 
 @app.command()
 def ingest(
-    files: Annotated[list[Path], typer.Argument(help="Text files forming one corpus, in order.")],
-    name: Annotated[str, typer.Option("--name", help="Name of the corpus.")],
+    files: Annotated[list[Path], typer.Argument(help="Files forming one corpus, in order.")],
+    name: Annotated[
+        str | None, typer.Option("--name", help="Name of the corpus (a bundle keeps its own without it).")
+    ] = None,
     label: Annotated[
         list[str] | None, typer.Option("--label", help="A label key=value (repeatable).")
     ] = None,
@@ -124,45 +126,81 @@ def ingest(
             help="Fit the models now (default), or leave them to the task worker of a running server.",
         ),
     ] = True,
+    kind: Annotated[
+        Literal["text", "word-counts", "spectrum", "bundle"],
+        typer.Option(
+            "--kind",
+            help="What FILES hold: texts, CSV/TSV word counts (word, count), a frequency spectrum "
+            "(frequency, types) or one corpus bundle from 'export --bundle'.",
+        ),
+    ] = "text",
 ) -> None:
-    """Count FILES as one corpus, store it and fit its models."""
+    """Count FILES as one corpus (or read them as counts, a spectrum or a bundle), store it, fit its models."""
     from app.ingest.profiles import get_profile
-    from app.ingest.readers import TextSource, UnreadableFileError
+    from app.ingest.readers import UnreadableFileError
     from app.services.ingestion import IngestionInputError, parse_labels
-    from app.services.ingestion import ingest as run_ingest
-    from app.services.modelling import model_report
-    from app.services.tasks import queue_models, run_now
-    from app.store.corpora import get_corpus, summary
     from app.store.db import make_engine
 
     settings = _settings(data_dir)
     engine = make_engine(settings.resolved_database_url)
     try:
-        sources = [TextSource.from_path(f) for f in files]
         labels = parse_labels("\n".join(label or []))
         chosen = get_profile(profile)
-        total = sum(s.size for s in sources)
-        with typer.progressbar(length=max(total, 1), label="counting", file=sys.stderr) as bar:
-            last = [0]
-
-            def progress(done: int, _total: int) -> None:
-                bar.update(done - last[0])
-                last[0] = done
-
-            corpus_id = run_ingest(
-                engine,
-                sources,
-                name,
-                labels,
-                chosen,
-                progress,
-                settings.work_dir,
-                counting_engine=count_engine,
-                scheduler=scheduler,
+        if kind == "text":
+            corpus_id = _ingest_texts(
+                engine, settings, files, name or "", labels, chosen, count_engine, scheduler
             )
+        else:
+            corpus_id = _ingest_counts(engine, kind, files, name, labels, chosen)
     except (UnreadableFileError, IngestionInputError, ValueError, FileNotFoundError) as exc:
         typer.echo(f"error: {exc}", err=True)
         raise typer.Exit(code=2) from exc
+    _report_and_fit(engine, settings, corpus_id, fit)
+
+
+def _ingest_counts(engine, kind: str, files: list[Path], name: str | None, labels: dict, profile) -> int:
+    """Word-count lists, spectrum tables or one bundle as a corpus (``app.services.exchange``)."""
+    from app.services.exchange import ingest_counts
+
+    for path in files:
+        if not path.is_file():
+            raise FileNotFoundError(f"{path}: file not found")
+    return ingest_counts(engine, kind, [(p, p.name) for p in files], name, labels, profile)
+
+
+def _ingest_texts(engine, settings, files, name: str, labels: dict, profile, count_engine, scheduler) -> int:
+    """Texts counted with a progress bar on standard error."""
+    from app.ingest.readers import TextSource
+    from app.services.ingestion import ingest as run_ingest
+
+    sources = [TextSource.from_path(f) for f in files]
+    total = sum(s.size for s in sources)
+    with typer.progressbar(length=max(total, 1), label="counting", file=sys.stderr) as bar:
+        last = [0]
+
+        def progress(done: int, _total: int) -> None:
+            bar.update(done - last[0])
+            last[0] = done
+
+        return run_ingest(
+            engine,
+            sources,
+            name,
+            labels,
+            profile,
+            progress,
+            settings.work_dir,
+            counting_engine=count_engine,
+            scheduler=scheduler,
+        )
+
+
+def _report_and_fit(engine, settings, corpus_id: int, fit: bool) -> None:
+    """Print the new corpus's totals and fit its models now (or leave them queued)."""
+    from app.services.modelling import model_report
+    from app.services.tasks import queue_models, run_now
+    from app.store.corpora import get_corpus, summary
+
     s = summary(get_corpus(engine, corpus_id))
     typer.echo(
         f"stored corpus {corpus_id} '{s['name']}': {s['tokens']:,} tokens, {s['types']:,} types, "
@@ -198,9 +236,20 @@ def list_command(data_dir: DataDir = None) -> None:
 
 @app.command()
 def export(
-    corpus_id: Annotated[int, typer.Argument(help="Corpus id (see 'list').")], data_dir: DataDir = None
+    corpus_id: Annotated[int, typer.Argument(help="Corpus id (see 'list').")],
+    data_dir: DataDir = None,
+    bundle: Annotated[
+        bool,
+        typer.Option(
+            "--bundle", help="Write the whole corpus as a bundle (gzip JSON) for 'ingest --kind bundle'."
+        ),
+    ] = False,
+    output: Annotated[
+        Path | None, typer.Option("--output", "-o", help="Write to this file instead of standard output.")
+    ] = None,
 ) -> None:
-    """Print the frequency spectrum of a corpus as TSV (m, V_m)."""
+    """Print the frequency spectrum of a corpus as TSV (m, V_m), or with --bundle the corpus bundle."""
+    from app.services.exchange import export_bundle
     from app.services.export import spectrum_tsv
     from app.store.corpora import CorpusNotFoundError, get_corpus, spectrum_pairs
     from app.store.db import make_engine
@@ -211,7 +260,17 @@ def export(
     except CorpusNotFoundError as exc:
         typer.echo(f"error: {exc}", err=True)
         raise typer.Exit(code=2) from exc
-    sys.stdout.write(spectrum_tsv(spectrum_pairs(engine, corpus_id)))
+    data = (
+        export_bundle(engine, corpus_id)
+        if bundle
+        else spectrum_tsv(spectrum_pairs(engine, corpus_id)).encode("utf-8")
+    )
+    if output is not None:
+        output.write_bytes(data)
+        return
+    sys.stdout.flush()
+    sys.stdout.buffer.write(data)
+    sys.stdout.buffer.flush()
 
 
 # ------------------------------------------------------------------------------------------ lab members

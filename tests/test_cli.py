@@ -41,3 +41,35 @@ def test_bad_file_and_unknown_corpus(tmp_path):
     result = runner.invoke(app, ["ingest", str(bad), "--name", "x", *data])
     assert result.exit_code == 2 and "image.txt" in result.output
     assert runner.invoke(app, ["export", "7", *data]).exit_code == 2
+
+
+def test_ingest_kinds_and_export_bundle(tmp_path):
+    data = ["--data-dir", str(tmp_path / "data")]
+    counts = expected_counts(GETTYSBURG)  # the reference counts of tests/web/test_api.py
+    table = tmp_path / "counts.csv"
+    table.write_text("word,count\n" + "".join(f"{w},{c}\n" for w, c in counts.items()), encoding="utf-8")
+    result = runner.invoke(
+        app, ["ingest", str(table), "--kind", "word-counts", "--name", "List", "--no-fit", *data]
+    )
+    assert result.exit_code == 0, result.output
+    assert f"{sum(counts.values()):,} tokens" in result.output
+
+    bundle = tmp_path / "list.json.gz"
+    exported = runner.invoke(app, ["export", "1", "--bundle", "--output", str(bundle), *data])
+    assert exported.exit_code == 0, exported.output
+    again = runner.invoke(app, ["ingest", str(bundle), "--kind", "bundle", "--no-fit", *data])
+    assert again.exit_code == 0, again.output
+    assert "stored corpus 2 'List'" in again.output
+
+    spectrum = tmp_path / "spectrum.tsv"
+    spectrum.write_text(runner.invoke(app, ["export", "2", *data]).output, encoding="utf-8")
+    third = runner.invoke(
+        app, ["ingest", str(spectrum), "--kind", "spectrum", "--name", "S", "--no-fit", *data]
+    )
+    assert third.exit_code == 0 and f"{len(counts):,} types" in third.output
+
+    spectrum.write_text("1\t-3\n", encoding="utf-8")
+    bad = runner.invoke(app, ["ingest", str(spectrum), "--kind", "spectrum", "--name", "S", *data])
+    assert bad.exit_code == 2 and "line 1" in bad.output
+    listing = runner.invoke(app, ["list", *data]).output
+    assert listing.count("\n") == 4  # header and three corpora: the bad file stored nothing

@@ -418,9 +418,19 @@ def _legomena(members: list[_Member], rows: list[dict[str, Any]]) -> dict[str, A
 
 
 def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: int) -> dict[str, Any]:
-    counts = [store.frequencies(engine, cid) for cid in pair]
+    without = [
+        c.name for c in store.get_corpora(engine, list(pair)).values() if not store.source(c)["word_list"]
+    ]
+    counts = [{}, {}] if without else [store.frequencies(engine, cid) for cid in pair]
     words = distinctive_words(counts[0], counts[1], min_freq) if all(counts) else []
-    return {
+    note = (
+        {
+            "note": f"no distinctive words: {', '.join(without)} has no word list (made from a frequency spectrum)"
+        }
+        if without
+        else {}
+    )
+    return note | {
         "first": pair[0],
         "second": pair[1],
         "min_freq": min_freq,
@@ -454,6 +464,16 @@ def _warnings(members: list[_Member], rows: list[dict[str, Any]], n0: int, horiz
                 "kind": "profiles",
                 "message": "The corpora were tokenized with different tokenization profiles "
                 f"({named}). Their counts of tokens and types are not directly comparable.",
+            }
+        )
+    sources = {m.corpus.id: store.source(m.corpus) for m in members}
+    if len({s["data"] for s in sources.values()}) > 1:
+        named = "; ".join(f"{m.corpus.name}: {sources[m.corpus.id]['data']}" for m in members)
+        out.append(
+            {
+                "kind": "sources",
+                "message": "The corpora were made from different kinds of data "
+                f"({named}). Statistics that need a word list or the order of a text are missing for some.",
             }
         )
     versions = {m.corpus.program_version for m in members}

@@ -25,7 +25,7 @@ from sqlalchemy.engine import Engine
 from app.config import DEMO_DIR, PROGRAM_VERSION
 from app.ingest.profiles import BUILTIN_PROFILES, TokenizationProfile
 from app.ingest.readers import TextSource
-from app.services import ingestion, modelling
+from app.services import exchange, ingestion, modelling
 from app.store import accounts
 from app.store import tasks as queue
 from app.store.corpora import count_corpora
@@ -52,10 +52,13 @@ def ingest_params(
     *,
     scratch: Path | None = None,
     owner_id: int | None = None,
+    source_kind: str = "text",
 ) -> dict[str, Any]:
     """What an ``ingest`` task needs: the files as (path, name shown), the corpus's name, labels and
-    profile, the scratch folder to remove at the end and the member who will own the corpus."""
+    profile, the scratch folder to remove at the end, the member who will own the corpus and what the
+    files hold (``source_kind``: text, word-counts, spectrum or bundle; see ``app.services.exchange``)."""
     return {
+        "source_kind": source_kind,
         "sources": [[str(path), shown] for path, shown in sources],
         "name": name,
         "labels": labels,
@@ -97,18 +100,32 @@ class _Progress:
 def _run_ingest(engine: Engine, task: queue.TaskView, work_dir: Path, progress: _Progress) -> int:
     params = task.params
     progress.stage("reading")
-    sources = [TextSource.from_path(path, display_name=shown) for path, shown in params["sources"]]
-    progress.bytes(0, sum(s.size for s in sources))
-    corpus_id = ingestion.ingest(
-        engine,
-        sources,
-        params["name"],
-        params["labels"],
-        TokenizationProfile.from_dict(params["profile"]),
-        progress=progress.bytes,
-        work_dir=work_dir,
-        on_stage=progress.stage,
-    )
+    profile = TokenizationProfile.from_dict(params["profile"])
+    kind = params.get("source_kind", "text")
+    if kind != "text":
+        corpus_id = exchange.ingest_counts(
+            engine,
+            kind,
+            [(Path(path), shown) for path, shown in params["sources"]],
+            params["name"],
+            params["labels"],
+            profile,
+            progress=progress.bytes,
+            on_stage=progress.stage,
+        )
+    else:
+        sources = [TextSource.from_path(path, display_name=shown) for path, shown in params["sources"]]
+        progress.bytes(0, sum(s.size for s in sources))
+        corpus_id = ingestion.ingest(
+            engine,
+            sources,
+            params["name"],
+            params["labels"],
+            profile,
+            progress=progress.bytes,
+            work_dir=work_dir,
+            on_stage=progress.stage,
+        )
     if params.get("owner_id") is not None:
         accounts.set_corpus_owner(engine, corpus_id, params["owner_id"])
     return corpus_id

@@ -54,6 +54,47 @@ class CorpusRecord:
     growth: list[tuple[int, int]]
     prefix_spectra: dict[str, tuple[int, list[tuple[int, int]]]] = field(default_factory=dict)
     text_order: dict[str, Any] = field(default_factory=dict)
+    source_kind: str = "text"
+    origin: dict[str, Any] | None = None
+
+
+SOURCE_TITLES = {
+    "text": "text",
+    "word-counts": "a word-count list",
+    "spectrum": "a frequency spectrum",
+    "bundle": "a corpus bundle",
+}
+"""What each source kind of a corpus is called on pages."""
+
+
+def source(corpus: Corpus) -> dict[str, Any]:
+    """What a corpus was made from, and what that leaves out: ``kind`` (text, word-counts, spectrum or
+    bundle), ``data`` (the kind of data it holds: a bundle holds that of the corpus it was exported from),
+    ``word_list`` and ``text_order`` (whether it has them) and ``unavailable`` (statistics it cannot give)."""
+    kind = corpus.source_kind or "text"
+    origin = json.loads(corpus.origin_json) if corpus.origin_json else None
+    data = (origin or {}).get("source_kind", "text") if kind == "bundle" else kind
+    word_list = data != "spectrum"
+    text_order = data == "text"
+    unavailable = []
+    if not word_list:
+        unavailable += ["word list and word search", "word counts download", "distinctive words"]
+    if not text_order:
+        unavailable += [
+            "text-order growth curve",
+            "MATTR and MTLD",
+            "text-order spread of segments",
+            "text-order backtests",
+        ]
+    return {
+        "kind": kind,
+        "title": SOURCE_TITLES.get(kind, kind),
+        "data": data,
+        "origin": origin,
+        "word_list": word_list,
+        "text_order": text_order,
+        "unavailable": unavailable,
+    }
 
 
 def summary(corpus: Corpus) -> dict[str, Any]:
@@ -72,6 +113,7 @@ def summary(corpus: Corpus) -> dict[str, Any]:
         "content_hash": corpus.content_hash,
         "program_version": corpus.program_version,
         "created_at": corpus.created_at.isoformat(),
+        "source": source(corpus),
     }
 
 
@@ -120,6 +162,8 @@ def save_corpus(engine: Engine, record: CorpusRecord) -> int:
             content_hash=record.content_hash,
             program_version=record.program_version,
             text_order_json=json.dumps(record.text_order),
+            source_kind=record.source_kind,
+            origin_json=json.dumps(record.origin, ensure_ascii=False) if record.origin else None,
         )
         session.add(corpus)
         session.flush()

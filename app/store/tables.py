@@ -45,6 +45,10 @@ class Corpus(SQLModel, table=True):
     # The lab member who uploaded it (an Account id); None when counted by the command line, for the demo,
     # or before lab mode. Not a database foreign key: see migration 0002.
     owner_id: int | None = Field(default=None)
+    # What the corpus was made from: "text", "word-counts", "spectrum" or "bundle" (None: text, before 0005),
+    # and for a bundle where it came from (JSON: the kind of its data, name, exporting version...).
+    source_kind: str | None = Field(default="text")
+    origin_json: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
 
 
 class WordCount(SQLModel, table=True):

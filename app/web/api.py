@@ -12,14 +12,15 @@ from sqlalchemy.engine import Engine
 from app.config import Settings
 from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import estimator, ingestion, modelling, tasks
+from app.ingest.readers import TextSource
+from app.services import estimator, exchange, ingestion, modelling, tasks
 from app.services.jobs import Dispatcher
 from app.store import corpora as store
 from app.store import tasks as queue
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
 from app.web.jsonsafe import FiniteJSONResponse
-from app.web.uploads import parse_profile, receive
+from app.web.uploads import parse_profile, plain_file, receive
 
 router = APIRouter(prefix="/api", tags=["api"])
 
@@ -59,20 +60,28 @@ def upload_corpus(
     engine: EngineDep,
     settings: Annotated[Settings, Depends(settings_of)],
     jobs: Annotated[Dispatcher, Depends(jobs_of)],
-    name: Annotated[str, Form(max_length=1000)],
+    name: Annotated[str | None, Form(max_length=1000)] = None,
     files: Annotated[list[UploadFile] | None, File()] = None,
     text: Annotated[str | None, Form()] = None,
     labels: Annotated[str | None, Form()] = None,
     profile: Annotated[str | None, Form()] = None,
+    kind: Annotated[str | None, Form(max_length=40)] = None,
     wait: bool = False,
 ):
     """Ingest files (and/or pasted ``text``) as one corpus. With ``wait=1`` answer 201 with the summary once
-    stored; otherwise 202 with a job to poll at ``/api/jobs/{id}``."""
+    stored; otherwise 202 with a job to poll at ``/api/jobs/{id}``.
+
+    ``kind`` says what the files hold: ``text`` (default), ``word-counts`` (CSV/TSV rows word, count),
+    ``spectrum`` (rows frequency, types) or ``bundle`` (a file from ``/api/corpora/{id}/bundle``; its own
+    name is kept when ``name`` is empty)."""
     try:
-        name = ingestion.check_name(name)
+        source_kind = exchange.check_kind(kind)
+        if source_kind != "bundle" or name:
+            name = ingestion.check_name(name or "")
         label_map = ingestion.parse_labels(labels)
         chosen = parse_profile(profile)
-        upload = receive(files or [], text, settings.work_dir, settings.max_upload_mb)
+        describe = TextSource.from_path if source_kind == "text" else plain_file
+        upload = receive(files or [], text, settings.work_dir, settings.max_upload_mb, describe)
     except INPUT_ERRORS as exc:
         raise input_error(exc) from exc
 
@@ -88,6 +97,7 @@ def upload_corpus(
                 chosen,
                 scratch=upload.directory,
                 owner_id=member.id if member is not None else None,
+                source_kind=source_kind,
             ),
             size_hint=upload.total_bytes,
         )
@@ -156,11 +166,11 @@ def spectrum(corpus_id: CorpusId, engine: EngineDep) -> dict:
 @router.get("/corpora/{corpus_id}/growth")
 def growth(corpus_id: CorpusId, engine: EngineDep) -> dict:
     """Exact text-order type growth and the random-order expectation with its 95% band."""
-    corpus_or_404(engine, corpus_id)
+    source = store.source(corpus_or_404(engine, corpus_id))
     return {
         "text_order": [{"tokens": n, "types": v} for n, v in store.growth_points(engine, corpus_id)],
         "random_order": modelling.random_order_growth(engine, corpus_id),
-    }
+    } | ({} if source["text_order"] else {"text_order_note": no_text_order(source)})
 
 
 @router.get("/corpora/{corpus_id}/words")
@@ -171,7 +181,9 @@ def words(
     limit: Annotated[int, Query(ge=1, le=10_000)] = 100,
     offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
 ) -> dict:
-    corpus_or_404(engine, corpus_id)
+    source = store.source(corpus_or_404(engine, corpus_id))
+    if not source["word_list"]:
+        return {"total": 0, "offset": offset, "words": [], "available": False, "note": no_word_list(source)}
     total, rows = store.word_counts(engine, corpus_id, search, limit, offset)
     return {"total": total, "offset": offset, "words": [{"word": w, "count": c} for w, c in rows]}
 
@@ -185,7 +197,29 @@ def spectrum_tsv(corpus_id: CorpusId, engine: EngineDep) -> Response:
 @router.get("/corpora/{corpus_id}/words.csv")
 def words_csv(corpus_id: CorpusId, engine: EngineDep) -> Response:
     corpus = corpus_or_404(engine, corpus_id)
+    source = store.source(corpus)
+    if not source["word_list"]:
+        raise HTTPException(status_code=409, detail=no_word_list(source))
     return downloads.word_counts_csv_response(corpus, store.word_counts(engine, corpus_id, limit=None)[1])
+
+
+@router.get("/corpora/{corpus_id}/bundle")
+def bundle(corpus_id: CorpusId, engine: EngineDep, compress: bool = True) -> Response:
+    """The corpus as one bundle file (gzip-compressed JSON, or plain JSON with ``compress=0``) that
+    ``POST /api/corpora`` with ``kind=bundle`` turns back into the same corpus on any installation."""
+    corpus = corpus_or_404(engine, corpus_id)
+    return downloads.bundle_response(corpus, exchange.export_bundle(engine, corpus_id, compress), compress)
+
+
+def no_word_list(source: dict) -> str:
+    return f"this corpus was made from {source['title']} and has no word list"
+
+
+def no_text_order(source: dict) -> str:
+    return (
+        f"this corpus was made from {source['title']}, without the order of a text: "
+        "only the random-order expectation exists"
+    )
 
 
 # ------------------------------------------------------------------------------------------- modelling

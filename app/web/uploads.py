@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import shutil
 import tempfile
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path, PurePath
 
@@ -63,8 +64,21 @@ class ReceivedUpload:
         shutil.rmtree(self.directory, ignore_errors=True)
 
 
-def receive(files: list[UploadFile], pasted_text: str | None, work_dir: Path, max_mb: int) -> ReceivedUpload:
-    """Copy uploads to a private scratch folder (capped at ``max_mb`` in all) and open them as text sources."""
+def plain_file(path: Path, display_name: str) -> TextSource:
+    """A received file described without checking it as a text (a word-count list, spectrum or bundle is
+    read by ``app.ingest.counts``)."""
+    return TextSource(name=display_name, kind=path.suffix.lower(), size=path.stat().st_size, path=path)
+
+
+def receive(
+    files: list[UploadFile],
+    pasted_text: str | None,
+    work_dir: Path,
+    max_mb: int,
+    describe: Callable[[Path, str], TextSource] = TextSource.from_path,
+) -> ReceivedUpload:
+    """Copy uploads to a private scratch folder (capped at ``max_mb`` in all) and open them as text sources
+    (``describe``: how a received file is checked, by default as a text)."""
     limit = max_mb * (1 << 20)
     upload = ReceivedUpload(Path(tempfile.mkdtemp(prefix=scratch.prefix(scratch.UPLOAD), dir=work_dir)))
     try:
@@ -80,14 +94,14 @@ def receive(files: list[UploadFile], pasted_text: str | None, work_dir: Path, ma
                             f"{name}: the upload is larger than the limit of {max_mb} MB (LEXIGROWTH_MAX_UPLOAD_MB)"
                         )
                     out.write(block)
-            upload.sources.append(TextSource.from_path(target, display_name=name))
+            upload.sources.append(describe(target, name))
         if pasted_text and pasted_text.strip():
             encoded = pasted_text.removeprefix("\ufeff").encode("utf-8", "surrogatepass")
             if len(encoded) + used > limit:
                 raise UploadTooLargeError(f"pasted text: larger than the limit of {max_mb} MB")
             target = upload.directory / PASTED_FILE
             target.write_bytes(encoded)
-            upload.sources.append(TextSource.from_path(target, display_name=PASTED_NAME))
+            upload.sources.append(describe(target, PASTED_NAME))
         if not upload.sources:
             raise IngestionInputError("files: choose at least one file or paste some text")
         return upload

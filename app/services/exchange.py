@@ -1,0 +1,168 @@
+"""Corpora from counts: word-count lists, frequency spectra and corpus bundles in, bundles out.
+
+A word-count list or a spectrum has no text order: such a corpus is stored without a text-order growth
+curve, prefix spectra or text-order statistics (pages show the random-order expectation only and the
+text-order backtests are skipped). A bundle recreates the corpus it was exported from, whatever that was
+made from, and records its origin.
+"""
+
+from __future__ import annotations
+
+import json
+from collections.abc import Callable
+from datetime import UTC, datetime
+from pathlib import Path
+from typing import Any
+
+from sqlalchemy.engine import Engine
+
+from app.config import PROGRAM_VERSION
+from app.ingest import counts as parse
+from app.ingest.profiles import TokenizationProfile
+from app.services import modelling
+from app.services.ingestion import IngestionInputError, check_name
+from app.store import corpora as store
+from app.store.corpora import CorpusRecord, save_corpus
+
+COUNT_KINDS = (parse.WORD_COUNTS, parse.SPECTRUM, parse.BUNDLE)
+ProgressCallback = Callable[[int, int], None]
+StageCallback = Callable[[str], None]
+
+
+def check_kind(kind: str | None) -> str:
+    """The source kind of an upload (``text`` when not given); a clear error for anything else."""
+    kind = (kind or parse.TEXT).strip()
+    if kind not in parse.SOURCE_KINDS:
+        raise IngestionInputError(f"kind: {kind!r} is not one of {', '.join(parse.SOURCE_KINDS)}")
+    return kind
+
+
+def _record_from_counts(
+    kind: str, files: list[tuple[Path, str]], name: str, labels: dict[str, str], profile: TokenizationProfile
+) -> CorpusRecord:
+    counts: dict[str, int] = {}
+    if kind == parse.WORD_COUNTS:
+        counts = parse.read_word_counts(files, profile)
+        spectrum = parse.spectrum_of_counts(counts)
+        content = parse.data_hash(kind, sorted(counts.items()))
+    else:
+        spectrum = parse.read_spectrum(files).pairs
+        content = parse.data_hash(kind, spectrum)
+    tokens, types = parse.check_spectrum(spectrum, None, None, kind)
+    return CorpusRecord(
+        name=check_name(name),
+        labels=labels,
+        profile=profile.to_dict(),
+        sources=[shown for _, shown in files],
+        tokens=tokens,
+        types=types,
+        hapaxes=dict(spectrum).get(1, 0),
+        content_hash=content,
+        program_version=PROGRAM_VERSION,
+        counts=counts,
+        spectrum=spectrum,
+        growth=[],
+        source_kind=kind,
+    )
+
+
+def _record_from_bundle(
+    files: list[tuple[Path, str]], name: str | None, labels: dict[str, str]
+) -> CorpusRecord:
+    if len(files) != 1:
+        raise IngestionInputError("files: a bundle is one file; upload bundles one at a time")
+    path, shown = files[0]
+    bundle = parse.read_bundle(path, shown)
+    return CorpusRecord(
+        name=check_name(name or bundle.name),
+        labels=bundle.labels | labels,
+        profile=bundle.profile,
+        sources=bundle.sources,
+        tokens=bundle.tokens,
+        types=bundle.types,
+        hapaxes=bundle.hapaxes,
+        content_hash=bundle.content_hash,
+        program_version=bundle.program_version,
+        counts=bundle.counts,
+        spectrum=bundle.spectrum,
+        growth=bundle.growth,
+        prefix_spectra=bundle.prefix_spectra,
+        text_order=bundle.text_order,
+        source_kind=parse.BUNDLE,
+        origin=bundle.origin | {"file": shown},
+    )
+
+
+def ingest_counts(
+    engine: Engine,
+    kind: str,
+    files: list[tuple[Path, str]],
+    name: str | None,
+    labels: dict[str, str] | None = None,
+    profile: TokenizationProfile | None = None,
+    progress: ProgressCallback | None = None,
+    on_stage: StageCallback | None = None,
+) -> int:
+    """Read word-count lists, spectrum tables or one bundle (``kind``) as one corpus and store it; returns
+    its id. Raises ``CountsInputError``/``IngestionInputError`` (nothing stored) for input that does not fit.
+    ``name`` may be empty for a bundle (its own name is kept)."""
+    stage = on_stage or (lambda _name: None)
+    if kind not in COUNT_KINDS:
+        raise IngestionInputError(f"kind: {kind!r} is not one of {', '.join(COUNT_KINDS)}")
+    if not files:
+        raise IngestionInputError("files: give at least one file")
+    total = sum(path.stat().st_size for path, _ in files)
+    if progress:
+        progress(0, total)
+    if kind == parse.BUNDLE:
+        record = _record_from_bundle(files, name, labels or {})
+    else:
+        record = _record_from_counts(kind, files, name or "", labels or {}, profile or TokenizationProfile())
+    if progress:
+        progress(total, total)
+    stage("storing")
+    corpus_id = save_corpus(engine, record)
+    stage("exact statistics")
+    modelling.random_order_growth(engine, corpus_id)
+    return corpus_id
+
+
+def bundle_document(engine: Engine, corpus_id: int) -> dict[str, Any]:
+    """Everything of a stored corpus that a bundle carries (see the README for the fields)."""
+    corpus = store.get_corpus(engine, corpus_id)
+    summary = store.summary(corpus)
+    source = summary["source"]
+    counts = store.frequencies(engine, corpus_id)
+    prefixes = store.prefix_spectra(engine, corpus_id)
+    return {
+        "program_version": PROGRAM_VERSION,
+        "exported_at": datetime.now(UTC).isoformat(timespec="seconds"),
+        "corpus": {
+            "name": corpus.name,
+            "labels": summary["labels"],
+            "profile": summary["profile"],
+            "source_kind": source["data"],
+            "origin": source["origin"],
+            "sources": summary["sources"],
+            "content_hash": corpus.content_hash,
+            "program_version": corpus.program_version,
+            "created_at": summary["created_at"],
+            "tokens": corpus.tokens,
+            "types": corpus.types,
+            "hapaxes": corpus.hapaxes,
+            "counts": [[w, counts[w]] for w in sorted(counts)] if source["word_list"] else None,
+            "spectrum": [list(p) for p in store.spectrum_pairs(engine, corpus_id)],
+            "growth": [list(p) for p in store.growth_points(engine, corpus_id)] or None,
+            "prefix_spectra": {
+                share: {"tokens": n, "spectrum": [list(p) for p in pairs]}
+                for share, (n, pairs) in prefixes.items()
+            }
+            or None,
+            "text_order": json.loads(corpus.text_order_json or "{}") or None,
+        },
+    }
+
+
+def export_bundle(engine: Engine, corpus_id: int, compress: bool = True) -> bytes:
+    """The bundle file of a stored corpus (gzip-compressed JSON unless ``compress`` is false)."""
+    return parse.encode_bundle(bundle_document(engine, corpus_id), compress)
