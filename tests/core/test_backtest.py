@@ -114,7 +114,8 @@ def test_weights_follow_the_anchored_rule(report):
             for name in names
         ]
         mse = np.array(
-            [np.mean(anchor)] + [np.mean(squares(errors[n][kind])) for n, j in zip(names, joins) if j]
+            [np.mean(anchor)]
+            + [np.mean(squares(errors[n][kind])) for n, j in zip(names, joins, strict=True) if j]
         )
         shares = (1 / (mse + WEIGHT_FLOOR**2)) / np.sum(1 / (mse + WEIGHT_FLOOR**2))
         expected = np.zeros(len(names))
@@ -190,7 +191,9 @@ def test_recommended_is_the_weighted_average_with_a_widening_band(report, fzm_co
     # Legomena: the types times the u-weighted mixture's shares, so that they never exceed the types.
     pairs = zip(ensemble.legomena_weights, ensemble.members, strict=True)
     spectra = sum(w * f.spectrum(10 * N, 5) for w, f in pairs)
-    mixed_types = sum(w * f.types(10 * N) for w, f in zip(ensemble.legomena_weights, ensemble.members))
+    mixed_types = sum(
+        w * f.types(10 * N) for w, f in zip(ensemble.legomena_weights, ensemble.members, strict=True)
+    )
     np.testing.assert_allclose(
         ensemble.spectrum(10 * N, 5), ensemble.types(10 * N) * spectra / mixed_types, rtol=1e-12
     )
