@@ -112,11 +112,17 @@ class Anchored:
         low, high = band.limits(n / self.corpus.tokens, value)
         return float(low), float(high)
 
-    def types_low(self, n: float) -> float:
-        return self._limits(n)[0]
+    def types_low(self, n: ArrayLike) -> ArrayLike:
+        """Lower end of the nominal 90% range of V(n) (scalar or array n)."""
+        return self._side(n, 0)
 
-    def types_high(self, n: float) -> float:
-        return self._limits(n)[1]
+    def types_high(self, n: ArrayLike) -> ArrayLike:
+        """Upper end of the nominal 90% range of V(n) (scalar or array n)."""
+        return self._side(n, 1)
+
+    def _side(self, n: ArrayLike, side: int) -> ArrayLike:
+        values = np.array([self._limits(float(x))[side] for x in np.atleast_1d(n)])
+        return as_output(values.reshape(np.shape(n)), n)
 
     def as_dict(self) -> dict[str, Any]:
         return self.predictor.as_dict()
