@@ -154,8 +154,15 @@ class Ensemble(BandedPredictions):
     on strong evidence; the fixed pair is what the accuracy benchmark (``benchmarks/accuracy.py``, README
     "Benchmarks") shows to be better than each model alone.
 
+    Measured with ``benchmarks/accuracy.py`` on 9 public-domain books (English, French, Dutch; 17,000 to
+    170,000 tokens), 5 random samples per book, median absolute % error over the 45 samples at 10x
+    (V / V_1): this rule 3.32 / 8.57, perfect Zipf 3.96 / 11.79, population spectrum 3.98 / 12.07, GIGP
+    4.99 / 10.99, finite Zipf-Mandelbrot 5.60 / 18.46; at 4x 1.07 / 2.37 against 1.61 / 6.08 for perfect
+    Zipf, the best single model there. The largest per-book bias of V at 10x is +6.9% (the smallest book).
+
     The band (``ErrorBand``) combines the parametric bootstrap spread of this predictor (``bootstrap_spread``)
-    with the bias of its own random backtests.
+    with the bias of its own random backtests; its 90% ranges held the truth in 93% of the samples above,
+    with a median half-width of 10% at 10x and 4% at 4x.
     """
 
     name: ClassVar[str] = "recommended"
