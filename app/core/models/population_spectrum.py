@@ -1,8 +1,8 @@
 """The population-spectrum model: the population's frequency spectrum recovered by linear programming.
 
-After Valiant & Valiant, "Estimating the unseen: improved estimators for entropy and other properties"
-(NIPS 2013; J. ACM 64, 2017): instead of assuming a parametric type density, find a histogram of
-population frequencies that explains the observed spectrum.
+After Valiant & Valiant, "Estimating the unseen" (STOC 2011; with improved estimators, NIPS 2013 and
+J. ACM 64, 2017): instead of assuming a parametric type density, find a histogram of population frequencies
+that explains the observed spectrum (the "fingerprint", V_1, V_2, ...) by linear programming.
 
 The population is described by a histogram: h_j types whose relative frequency is x_j, for a geometric grid
 x_j = lambda_j / N with lambda_j (the expected count at the corpus size N) from LAMBDA_MIN to M (the highest
@@ -19,9 +19,14 @@ w_m = 1 / sqrt(V_m + 1):
 
 1. minimise the discrepancy  D(h) = sum_{m=1}^{M} w_m |V_m - sum_j a_mj h_j|
    subject to h >= 0 and the token total  sum_j lambda_j h_j = N - (tokens of the frequent types);
-2. with D(h) <= D* + SLACK_PER_ROW x (number of non-empty V_m, m <= M), minimise and then maximise the number of types sum_j h_j: the lower and the
-   upper solutions, both consistent with the data. The prediction is their midpoint (a feasible histogram
-   too, the constraints being convex), and the two solutions are kept as the model's own range.
+2. with D(h) <= D* + SLACK_PER_ROW x (number of non-empty V_m, m <= M), minimise and then maximise the
+   number of types sum_j h_j: the lower and the upper solutions, both consistent with the data. The
+   prediction is their midpoint (a feasible histogram too, the constraints being convex), and the two
+   solutions are kept as the model's own range (``expected_types(n, params, "lower" or "upper")``).
+
+Known limitation (measured in tests/core/test_backtest.py): on a nearly exhausted finite population the
+upper solution puts many types at the rarest grid frequency, and the midpoint overshoots (about +15% at 10x
+on a simulated finite Zipf-Mandelbrot corpus whose types are 90% seen).
 
 The linear programs are solved by scipy.optimize.linprog with the HiGHS solver. Types far rarer than 1/N
 are nearly invisible in a corpus of N tokens, so the two solutions part as the prediction goes further
