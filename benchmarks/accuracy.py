@@ -1,19 +1,23 @@
 """Accuracy benchmark: how well every model (and the recommended ensemble) extrapolates real texts.
 
-Usage: ``python benchmarks/accuracy.py DIR [--states K] [--fraction F]``
+Usage: ``python benchmarks/accuracy.py DIR [--states K] [--fractions 0.1,0.25]``
 
 For every ``.txt`` file in DIR (a Project Gutenberg header and licence, when both the ``*** START OF`` and
 ``*** END OF`` markers are present, are cut off first; ``***START OF`` also counts), the text is tokenized
-by the ingestion service with the default profile, exactly as an upload would be. Then:
+by the ingestion service with the default profile, exactly as an upload would be. Then, for each
+fraction F:
 
-1. Extrapolation. Every model of ``MODELS`` and the ``recommended`` ensemble (``app.core.backtest``, the
-   same call the modelling service makes) is fitted on
+1. Extrapolation. ``app.core.backtest.backtest`` (the same call the modelling service makes: every model
+   of ``MODELS``, the backtests and the ``recommended`` ensemble with its ranges) runs on
    - K random samples of round(F N) tokens (drawn without replacement from the token sequence, one numpy
      Generator per random state 1..K), and on
    - the first round(F N) tokens of the text (the text-order prefix),
-   and predicts V and V_1 at the full size N (an extrapolation by the factor 1 / F). The table gives the
-   signed errors 100 (predicted - observed) / observed in percent, the random ones averaged over the K
-   states, and per model the median and mean absolute error across texts.
+   and every predictor predicts V and V_1 at the full size N (an extrapolation by the factor 1 / F), as the
+   service does beyond the corpus size (anchored at the sample's V, ``app.core.anchored``). Errors are
+   signed, 100 (predicted - observed) / observed in percent. Per text: the bias (mean signed error over
+   the K samples) and how many of the K nominal 90% ranges of V hold the observed V. Summary per
+   predictor: median absolute error over every sample of every text, the largest per-text |bias|, the
+   coverage of the 90% ranges and their median half-width (100 (high - low) / 2 / prediction).
 2. Interpolation check. The exact random-sample formula E[V(n)] (``app.core.interpolation``, hypergeometric)
    against the mean V of 30 random samples of n tokens drawn without replacement, n = 5%, 20% and 50% of N:
    signed % difference per text with the standard error of the Monte Carlo mean, and the median across
@@ -30,6 +34,7 @@ import platform
 import re
 import sys
 import time
+import warnings
 from collections.abc import Sequence
 from dataclasses import dataclass
 from pathlib import Path
@@ -37,6 +42,7 @@ from pathlib import Path
 import numpy as np
 import scipy
 
+from app.core.anchored import Anchored
 from app.core.backtest import backtest
 from app.core.interpolation import expected_types
 from app.core.models import MODELS
@@ -49,7 +55,6 @@ RECOMMENDED = "recommended"
 PREDICTORS = (*MODELS, RECOMMENDED)
 INTERPOLATION_SHARES = (0.05, 0.2, 0.5)
 MONTE_CARLO_SAMPLES = 30
-ERROR_COLUMNS = ("V random", "V prefix", "V_1 random", "V_1 prefix")
 
 _START = re.compile(r"^\*\*\* ?START OF[^\n]*\n?", re.MULTILINE)
 _END = re.compile(r"^\*\*\* ?END OF", re.MULTILINE)
@@ -80,26 +85,45 @@ def random_sample(ids: np.ndarray, n: int, rng: np.random.Generator) -> np.ndarr
     return ids[rng.choice(ids.size, size=n, replace=False)]
 
 
-def prediction_errors(part: Spectrum, full: Spectrum) -> dict[str, tuple[float, float]]:
-    """Signed % errors of (V, V_1) at the full size for every model and the ensemble fitted on ``part``
-    (NaN where a fit failed)."""
+@dataclass(frozen=True)
+class Outcome:
+    """One predictor on one sample: signed % errors of V and V_1 at N, whether the 90% range of V holds
+    the observed V, and the range's half-width in % of the prediction (NaN where the fit failed)."""
+
+    types_error: float
+    hapax_error: float
+    covered: bool
+    half_width: float
+
+
+FAILED = Outcome(float("nan"), float("nan"), False, float("nan"))
+
+
+def prediction_errors(part: Spectrum, full: Spectrum) -> dict[str, Outcome]:
+    """The outcome of every model and of the ensemble fitted on ``part``, predicting at the full size."""
     N = full.tokens
-    nan = (float("nan"), float("nan"))
     try:
         report = backtest(part)
     except ValueError:
-        return dict.fromkeys(PREDICTORS, nan)
+        return dict.fromkeys(PREDICTORS, FAILED)
     predictors = {**report.fitted, RECOMMENDED: report.recommended}
-    errors = {}
+    out = {}
     for name in PREDICTORS:
         if name not in predictors:
-            errors[name] = nan
+            out[name] = FAILED
             continue
+        anchored = Anchored(predictors[name], part)
         with np.errstate(all="ignore"):
-            types = float(predictors[name].types(N))
-            hapaxes = float(predictors[name].spectrum(N, 1)[0])
-        errors[name] = (100 * (types / full.types - 1), 100 * (hapaxes / full.hapaxes - 1))
-    return errors
+            types = float(anchored.types(N))
+            hapaxes = float(anchored.spectrum(N, 1)[0])
+            low, high = anchored.types_low(N), anchored.types_high(N)
+        out[name] = Outcome(
+            100 * (types / full.types - 1),
+            100 * (hapaxes / full.hapaxes - 1),
+            low <= full.types <= high,
+            100 * (high - low) / 2 / types,
+        )
+    return out
 
 
 @dataclass(frozen=True)
@@ -132,82 +156,85 @@ def interpolation_check(
 
 @dataclass(frozen=True)
 class TextResult:
-    """One text: its size, the extrapolation errors per predictor and the interpolation checks.
+    """One text: its size, the outcomes per fraction and predictor, and the interpolation checks.
 
-    ``random`` holds one {predictor: (V error, V_1 error)} per random state, ``prefix`` the text-order fit.
+    ``random[F]`` holds one {predictor: Outcome} per random state, ``prefix[F]`` the text-order fit.
     """
 
     name: str
     tokens: int
     types: int
     hapaxes: int
-    random: tuple[dict[str, tuple[float, float]], ...]
-    prefix: dict[str, tuple[float, float]]
+    random: dict[float, tuple[dict[str, Outcome], ...]]
+    prefix: dict[float, dict[str, Outcome]]
     interpolation: tuple[InterpolationCheck, ...]
 
-    def errors(self, name: str) -> tuple[float, float, float, float]:
-        """(V random, V prefix, V_1 random, V_1 prefix): random errors averaged over the states."""
-        random = np.nanmean([state[name] for state in self.random], axis=0) if self.random else (np.nan,) * 2
-        return float(random[0]), self.prefix[name][0], float(random[1]), self.prefix[name][1]
+    def bias(self, fraction: float, name: str) -> tuple[float, float]:
+        """Mean signed error of V and of V_1 over the random samples (failed fits left out)."""
+        draws = np.array([(d[name].types_error, d[name].hapax_error) for d in self.random[fraction]])
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", RuntimeWarning)
+            return tuple(map(float, np.nanmean(draws, axis=0)))
+
+    def covered(self, fraction: float, name: str) -> int:
+        return sum(d[name].covered for d in self.random[fraction])
 
 
-def evaluate_text(path: Path, states: int, fraction: float) -> TextResult:
+def evaluate_text(path: Path, states: int, fractions: Sequence[float]) -> TextResult:
     ids = token_ids(path)
     full = spectrum_of(ids)
-    n = round(fraction * ids.size)
-    random = tuple(
-        prediction_errors(spectrum_of(random_sample(ids, n, np.random.default_rng(state))), full)
-        for state in range(1, states + 1)
-    )
+    random, prefix = {}, {}
+    for fraction in fractions:
+        n = round(fraction * ids.size)
+        random[fraction] = tuple(
+            prediction_errors(spectrum_of(random_sample(ids, n, np.random.default_rng(state))), full)
+            for state in range(1, states + 1)
+        )
+        prefix[fraction] = prediction_errors(spectrum_of(ids[:n]), full)
     rng = np.random.default_rng(0)
     checks = tuple(
         interpolation_check(ids, full, round(share * ids.size), rng) for share in INTERPOLATION_SHARES
     )
-    return TextResult(
-        path.stem,
-        full.tokens,
-        full.types,
-        full.hapaxes,
-        random,
-        prediction_errors(spectrum_of(ids[:n]), full),
-        checks,
-    )
+    return TextResult(path.stem, full.tokens, full.types, full.hapaxes, random, prefix, checks)
 
 
+ERROR_COLUMNS = ("V bias", "V_1 bias", "V prefix", "V_1 prefix", "V in 90% range")
 SUMMARY_HEADER = (
     "model",
-    *(
-        f"{column} {stat}"
-        for column in ("V random", "V_1 random")
-        for stat in ("median", "mean", "per sample")
-    ),
-    *(f"{column} {stat}" for column in ("V prefix", "V_1 prefix") for stat in ("median", "mean")),
+    "V median abs",
+    "V_1 median abs",
+    "V max text abs bias",
+    "V_1 max text abs bias",
+    "90% range coverage",
+    "median half-width",
 )
 
 
-def summary_row(results: Sequence[TextResult], name: str) -> list[str]:
-    """One model's cells of the summary table (NaN errors, from failed fits, are left out)."""
+def summary_row(results: Sequence[TextResult], fraction: float, name: str) -> list[str]:
+    """One predictor's cells of the summary table (NaN errors, from failed fits, are left out)."""
+    draws = [d[name] for r in results for d in r.random[fraction]]
+    types = np.abs([d.types_error for d in draws])
+    hapaxes = np.abs([d.hapax_error for d in draws])
+    biases = np.abs([r.bias(fraction, name) for r in results])
+    widths = np.array([d.half_width for d in draws])
 
-    def stats(values: np.ndarray, per_sample: np.ndarray | None = None) -> list[str]:
-        values = np.abs(values[np.isfinite(values)])
-        cells = (
-            [_cell(float(np.median(values)), False), _cell(float(np.mean(values)), False)]
-            if values.size
-            else ["n/a"] * 2
-        )
-        if per_sample is not None:
-            finite = np.abs(per_sample[np.isfinite(per_sample)])
-            cells.append(_cell(float(np.mean(finite)), False) if finite.size else "n/a")
-        return cells
+    def median(values: np.ndarray) -> str:
+        values = values[np.isfinite(values)]
+        return _cell(float(np.median(values)), False) if values.size else "n/a"
 
-    per_text = np.array([r.errors(name) for r in results])
-    samples = np.array([state[name] for r in results for state in r.random]).reshape(-1, 2)
+    def largest(values: np.ndarray) -> str:
+        values = values[np.isfinite(values)]
+        return _cell(float(np.max(values)), False) if values.size else "n/a"
+
+    coverage = 100 * np.mean([d.covered for d in draws])
     return [
         name,
-        *stats(per_text[:, 0], samples[:, 0]),
-        *stats(per_text[:, 2], samples[:, 1]),
-        *stats(per_text[:, 1]),
-        *stats(per_text[:, 3]),
+        median(types),
+        median(hapaxes),
+        largest(biases[:, 0]),
+        largest(biases[:, 1]),
+        f"{coverage:.0f}%",
+        median(widths),
     ]
 
 
@@ -223,9 +250,9 @@ def _table(header: Sequence[str], rows: Sequence[Sequence[str]]) -> list[str]:
     return [_row(header), _row(["---"] * len(header)), *map(_row, rows)]
 
 
-def render(results: Sequence[TextResult], states: int, fraction: float) -> str:
-    """The Markdown report: texts, extrapolation errors, their summary, and the interpolation check."""
-    factor = 1 / fraction
+def render(results: Sequence[TextResult], states: int, fractions: Sequence[float]) -> str:
+    """The Markdown report: texts, extrapolation errors per text and their summary for each fraction,
+    and the interpolation check."""
     lines = [
         f"## Texts ({len(results)}; default tokenization profile)",
         "",
@@ -234,23 +261,40 @@ def render(results: Sequence[TextResult], states: int, fraction: float) -> str:
             [[r.name, f"{r.tokens:,}", f"{r.types:,}", f"{r.hapaxes:,}"] for r in results],
         ),
         "",
-        f"## Extrapolation from {fraction:.0%} of the tokens to N ({factor:g}x): signed error, %",
-        "",
-        f"random: mean over {states} random samples of round({fraction:g} N) tokens (without replacement); "
-        f"prefix: the first round({fraction:g} N) tokens of the text.",
-        "",
-        *_table(
-            ["text", "model", *ERROR_COLUMNS],
-            [[r.name, name, *map(_cell, r.errors(name))] for r in results for name in PREDICTORS],
-        ),
-        "",
-        f"## Absolute extrapolation error across the {len(results)} texts, % ({factor:g}x)",
-        "",
-        "median, mean: of the absolute error per text (random: of the mean signed error over the samples); "
-        "per sample: mean absolute error over every random sample of every text.",
-        "",
     ]
-    lines += [*_table(SUMMARY_HEADER, [summary_row(results, name) for name in PREDICTORS]), ""]
+    for fraction in fractions:
+        factor = 1 / fraction
+        lines += [
+            f"## Extrapolation from {fraction:.0%} of the tokens to N ({factor:g}x): signed error, %",
+            "",
+            f"bias: mean over {states} random samples of round({fraction:g} N) tokens (without replacement); "
+            f"prefix: the first round({fraction:g} N) tokens of the text; range: samples whose nominal 90% "
+            "range of V holds the observed V.",
+            "",
+            *_table(
+                ["text", "model", *ERROR_COLUMNS],
+                [
+                    [
+                        r.name,
+                        name,
+                        *map(_cell, r.bias(fraction, name)),
+                        _cell(r.prefix[fraction][name].types_error),
+                        _cell(r.prefix[fraction][name].hapax_error),
+                        f"{r.covered(fraction, name)}/{states}",
+                    ]
+                    for r in results
+                    for name in PREDICTORS
+                ],
+            ),
+            "",
+            f"## Summary from {fraction:.0%} ({factor:g}x) across the {len(results)} texts, %",
+            "",
+            "median abs: of the absolute error over every random sample of every text; max text abs bias: "
+            "the largest absolute per-text bias; coverage and median half-width of the nominal 90% range of V.",
+            "",
+            *_table(SUMMARY_HEADER, [summary_row(results, fraction, name) for name in PREDICTORS]),
+            "",
+        ]
     shares = [f"{share:.0%} of N" for share in INTERPOLATION_SHARES]
     rows = [
         [r.name, *(f"{c.error:+.3f} ± {c.standard_error_percent:.3f}" for c in r.interpolation)]
@@ -284,18 +328,19 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("directory", type=Path, help="folder of .txt files")
     parser.add_argument("--states", type=int, default=5, help="random samples per text (default 5)")
     parser.add_argument(
-        "--fraction", type=float, default=0.1, help="share of the tokens fitted on (default 0.1)"
+        "--fractions", default="0.1,0.25", help="shares of the tokens fitted on (default 0.1,0.25)"
     )
     args = parser.parse_args(argv)
     paths = sorted(args.directory.glob("*.txt"))
     if not paths:
         parser.error(f"no .txt files in {args.directory}")
-    if not 0 < args.fraction < 1 or args.states < 1:
-        parser.error("--fraction must lie strictly between 0 and 1 and --states must be positive")
+    fractions = [float(f) for f in args.fractions.split(",")]
+    if not all(0 < f < 1 for f in fractions) or args.states < 1:
+        parser.error("every fraction must lie strictly between 0 and 1 and --states must be positive")
     started = time.perf_counter()
-    results = [evaluate_text(path, args.states, args.fraction) for path in paths]
+    results = [evaluate_text(path, args.states, fractions) for path in paths]
     print("# Lexigrowth accuracy benchmark", "", f"machine: {machine()}", "", sep="\n")
-    print(render(results, args.states, args.fraction))
+    print(render(results, args.states, fractions))
     print(f"\nrun time: {time.perf_counter() - started:.1f} s")
     return 0
 

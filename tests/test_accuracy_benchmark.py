@@ -95,22 +95,27 @@ def test_texts_are_tokenized_without_the_licence(output, corpus):
 
 
 def test_error_tables_have_every_text_model_and_finite_numbers(output):
-    errors = _table(output, "Extrapolation from 10%")
-    assert errors[0] == ["text", "model", *ERROR_COLUMNS]
-    assert [(row[0], row[1]) for row in errors[1:]] == [
-        (t, m) for t in ("first", "second") for m in PREDICTORS
-    ]
+    for heading in ("Extrapolation from 10%", "Extrapolation from 25%"):
+        errors = _table(output, heading)
+        assert errors[0] == ["text", "model", *ERROR_COLUMNS]
+        assert [(row[0], row[1]) for row in errors[1:]] == [
+            (t, m) for t in ("first", "second") for m in PREDICTORS
+        ]
+        values = np.array([[float(cell) for cell in row[2:6]] for row in errors[1:]])
+        assert values.shape == (2 * len(PREDICTORS), 4) and np.all(np.isfinite(values))
+        # "k/K": how many of the K = 2 samples' 90% ranges held the observed V
+        assert all(row[6] in ("0/2", "1/2", "2/2") for row in errors[1:])
     assert set(PREDICTORS) == {*MODELS, "recommended"}
-    values = np.array([[float(cell) for cell in row[2:]] for row in errors[1:]])
-    assert values.shape == (2 * len(PREDICTORS), 4) and np.all(np.isfinite(values))
 
-    summary = _table(output, "Absolute extrapolation error")
-    assert tuple(summary[0]) == SUMMARY_HEADER
-    assert [row[0] for row in summary[1:]] == list(PREDICTORS)
-    numbers = np.array([[float(cell) for cell in row[1:]] for row in summary[1:]])
-    assert np.all(np.isfinite(numbers)) and np.all(numbers >= 0)
-    # The median and mean of two texts' absolute errors are the same number (column "V random").
-    np.testing.assert_allclose(numbers[:, 0], numbers[:, 1], atol=0.011)
+    for heading in ("Summary from 10%", "Summary from 25%"):
+        summary = _table(output, heading)
+        assert tuple(summary[0]) == SUMMARY_HEADER
+        assert [row[0] for row in summary[1:]] == list(PREDICTORS)
+        numbers = np.array([[float(cell) for cell in (*row[1:5], row[6])] for row in summary[1:]])
+        assert np.all(np.isfinite(numbers)) and np.all(numbers >= 0)
+        coverage = [float(row[5].rstrip("%")) for row in summary[1:]]
+        # 4 samples in all: coverage is a multiple of 25%
+        assert all(c in (0, 25, 50, 75, 100) for c in coverage)
 
     checks = _table(output, "Interpolation check")
     assert [row[0] for row in checks[1:]] == ["first", "second", "median"]

@@ -8,6 +8,10 @@ Targets:
 - share s of the whole population: E[V(N*)] = s S, only for models with a finite population S (finite
   Zipf-Mandelbrot, GIGP).
 
+The predictor is what the service predicts with (``app.core.anchored.Anchored``): the exact random-sample
+interpolation at or below the corpus size N and the model anchored at the observed V beyond, so that
+planning is the inverse of prediction on both sides of N: plan(types = predict(n)) = n.
+
 E[V(n)] rises and E[V_1(n)] / n falls monotonically in n for these models, so each equation has at most one
 root, found by Brent's method in log n. A target outside the model's range has no root: it raises
 ``UnreachableTargetError`` with the reason instead of giving a number.

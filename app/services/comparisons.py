@@ -25,6 +25,7 @@ from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
 from app.core import richness
+from app.core.anchored import Anchored
 from app.core.comparison import distinctive_words, pairwise_z_tests, size_matched
 from app.core.interpolation import Z95, expected_spectrum, types_band
 from app.core.models import Predictor
@@ -213,7 +214,8 @@ def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
     predictor = failure = None
     if largest_size > corpus.tokens:
         try:
-            predictor = modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED]
+            # beyond N the service's prediction: the recommended model anchored at the observed types
+            predictor = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
         except MODEL_ERRORS as exc:
             failure = str(exc) or type(exc).__name__
     return _Member(corpus, spectrum, json.loads(corpus.text_order_json or "{}"), predictor, failure)
@@ -284,7 +286,7 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
     types, low, high = values
     return row | {
         "basis": "model-based",
-        "method": "recommended model (perfect Zipf unless the backtests clearly prefer other models), extrapolated",
+        "method": "recommended model, extrapolated and anchored at the corpus's own types; nominal 90% range",
         "types": _num(types),
         "types_sd": None,
         "types_sd_random": None,

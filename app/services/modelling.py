@@ -16,9 +16,11 @@ from sqlalchemy.engine import Engine
 from app.config import PROGRAM_VERSION
 from app.core import planning, unseen
 from app.core import richness as richness_core
+from app.core.anchored import Anchored, incoherence
 from app.core.backtest import Ensemble, backtest
 from app.core.interpolation import expected_spectrum, growth_band, types_band
 from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
+from app.core.models.base import RANGE_LEVEL, RANGE_METHOD
 from app.core.spectrum import Spectrum
 from app.store import corpora as store
 
@@ -127,11 +129,12 @@ def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
 
 
 def _band(data: dict | None) -> ErrorBand | None:
-    return None if not data else ErrorBand(tuple(data["factors"]), tuple(data["rms_relative_error"]))
+    return ErrorBand.from_dict(data)
 
 
 def _fitted(data: dict) -> FittedModel:
-    return FittedModel(MODELS[data["model"]], data["params"], int(data["tokens"]), band=_band(data["band"]))
+    params = {**data["params"], **data.get("arrays", {})}
+    return FittedModel(MODELS[data["model"]], params, int(data["tokens"]), band=_band(data["band"]))
 
 
 def predictors(engine: Engine, corpus_id: int) -> dict[str, Predictor]:
@@ -173,53 +176,81 @@ def load_models(engine: Engine, corpus_id: int) -> LoadedModels:
 def predict(
     engine: Engine, corpus_id: int, tokens: int, model: str = RECOMMENDED, loaded: LoadedModels | None = None
 ) -> dict[str, Any]:
-    """E[V(n)] with its range and E[V_k(n)], k = 1..20, by one model.
+    """E[V(n)] with its nominal 90% range and E[V_k(n)], k = 1..20, by one model.
 
-    ``sample`` is the exact random-sample interpolation (n <= N). ``recommended`` uses it too for n <= N (the
-    corpus itself is the best model of its own samples) and the backtest-chosen ``Ensemble`` beyond N.
+    At or below the corpus size N every model answers with the exact random-sample interpolation
+    (hypergeometric; the corpus itself is the best model of its own samples), beyond N with the model
+    anchored at the observed V (``app.core.anchored``); planning inverts exactly this. ``sample`` covers
+    n <= N only. A prediction that breaks V_1 + ... + V_k <= V is refused with the reason.
     ``loaded`` saves reloading the corpus's models when a page asks for many predictions.
     """
-    corpus = store.get_corpus(engine, corpus_id) if loaded is None else None
-    corpus_tokens = corpus.tokens if corpus is not None else loaded.tokens
     if model not in MODEL_NAMES:
         raise PredictionError(f"unknown model {model!r}; known: {', '.join(MODEL_NAMES)}")
     if not 1 <= tokens <= MAX_PREDICTION_TOKENS:
         raise PredictionError(f"tokens must lie between 1 and {MAX_PREDICTION_TOKENS:,}")
-    extrapolated = tokens > corpus_tokens
-    if model == SAMPLE or (model == RECOMMENDED and not extrapolated):
-        if extrapolated:
-            raise PredictionError(
-                f"the 'sample' interpolation covers sizes up to the corpus size {corpus_tokens:,}; "
-                "choose a model to extrapolate"
-            )
-        spectrum = load_spectrum(engine, corpus_id) if loaded is None else loaded.spectrum
-        band = types_band(spectrum, tokens)
-        return {
-            "tokens": tokens,
-            "model": model,
-            "method": "exact random-sample interpolation (hypergeometric)",
-            "extrapolated": False,
-            "types": band.types,
-            "types_sd": band.sd,
-            "types_low": band.low,
-            "types_high": band.high,
-            "legomena": _legomena(expected_spectrum(spectrum, tokens, LEGOMENA_SHOWN)),
-        }
+    spectrum = load_spectrum(engine, corpus_id) if loaded is None else loaded.spectrum
+    extrapolated = tokens > spectrum.tokens
+    if model == SAMPLE and extrapolated:
+        raise PredictionError(
+            f"the 'sample' interpolation covers sizes up to the corpus size {spectrum.tokens:,}; "
+            "choose a model to extrapolate"
+        )
+    anchored = _anchored(engine, corpus_id, model, spectrum, loaded)
+    types = float(anchored.types(tokens))
+    legomena = anchored.spectrum(tokens, LEGOMENA_SHOWN)
+    problem = incoherence(types, legomena)
+    if problem is not None:
+        raise PredictionError(f"model {model!r} cannot predict {tokens:,} tokens coherently: {problem}")
+    low, high = anchored.types_low(tokens), anchored.types_high(tokens)
+    sd = anchored.types_sd(tokens)
+    out = {
+        "tokens": tokens,
+        "model": model,
+        "method": INTERPOLATION_METHOD if not extrapolated else anchored.predictor.title,
+        "extrapolated": extrapolated,
+        "types": types,
+        "types_low": low,
+        "types_high": high,
+        "range": {
+            "level": RANGE_LEVEL,
+            "method": INTERPOLATION_RANGE if not extrapolated else RANGE_METHOD,
+        },
+        "legomena": _legomena(legomena),
+    }
+    if sd is not None:
+        out["types_sd"] = sd
+    return out
+
+
+INTERPOLATION_METHOD = "exact random-sample interpolation (hypergeometric)"
+INTERPOLATION_RANGE = (
+    "nominal 90% range of random samples of this size: E[V(n)] +- 1.645 exact standard deviations"
+)
+
+
+class _Interpolation:
+    """The corpus as its own model (``sample``): used at or below N only."""
+
+    name = SAMPLE
+    title = INTERPOLATION_METHOD
+    band = None
+
+    def __init__(self, tokens: int) -> None:
+        self.tokens = tokens
+
+
+def _anchored(
+    engine: Engine, corpus_id: int, model: str, spectrum: Spectrum, loaded: LoadedModels | None = None
+) -> Anchored:
+    """The predictor of ``model`` on both sides of N (``app.core.anchored``)."""
+    if model == SAMPLE:
+        return Anchored(_Interpolation(spectrum.tokens), spectrum)
     predictor = (predictors(engine, corpus_id) if loaded is None else loaded.predictors).get(model)
     if predictor is None:
         failures = model_report(engine, corpus_id)["failures"] if loaded is None else loaded.failures
         reason = failures.get(model, "the fit failed")
         raise PredictionError(f"model {model!r} could not be fitted to this corpus: {reason}")
-    return {
-        "tokens": tokens,
-        "model": model,
-        "method": predictor.title if model == RECOMMENDED else predictor.model.title,
-        "extrapolated": extrapolated,
-        "types": float(predictor.types(tokens)),
-        "types_low": float(predictor.types_low(tokens)),
-        "types_high": float(predictor.types_high(tokens)),
-        "legomena": _legomena(predictor.spectrum(tokens, LEGOMENA_SHOWN)),
-    }
+    return Anchored(predictor, spectrum)
 
 
 # ------------------------------------------------------------------------------------ richness, unseen
@@ -281,14 +312,22 @@ def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = R
     corpus = store.get_corpus(engine, corpus_id)
     if model not in (*MODELS, RECOMMENDED):
         raise PredictionError(f"unknown model {model!r}; known: {', '.join((*MODELS, RECOMMENDED))}")
-    fitted = predictors(engine, corpus_id)
-    if model not in fitted:
+    spectrum = load_spectrum(engine, corpus_id)
+    fitted_models = predictors(engine, corpus_id)
+    if model not in fitted_models:
         raise PredictionError(f"model {model!r} could not be fitted to this corpus")
+    # Planning inverts the prediction: exact interpolation up to N, the anchored model beyond.
+    fitted = {name: Anchored(p, spectrum) for name, p in fitted_models.items()}
 
     def population(name: str) -> float | None:
-        return None if name == RECOMMENDED else fitted[name].model.population_size(fitted[name].params)
+        if name == RECOMMENDED:
+            return None
+        p = fitted_models[name]
+        size = p.model.population_size(p.params)
+        # anchoring scales the model's types, and so its population, by V / E[V(N)]
+        return None if size is None else size * fitted[name].scale()
 
-    chao1 = unseen.chao1(load_spectrum(engine, corpus_id)).value
+    chao1 = unseen.chao1(spectrum).value
     try:
         tokens = planning.plan(fitted[model], target, population(model))
     except planning.UnreachableTargetError as exc:

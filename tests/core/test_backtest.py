@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 from scipy import stats
 
+from app.core.anchored import Anchored
 from app.core.backtest import (
     ANCHOR,
     EVIDENCE_Z,
@@ -68,44 +69,62 @@ def test_thinning_is_a_binomial_sample():
     assert all(d.m.max() <= spectrum.m.max() for d in draws)
 
 
-def test_simulated_finite_zipf_mandelbrot_corpus_gives_that_model_the_largest_weight(report):
-    ensemble = report.recommended
-    names = [f.name for f in ensemble.members]
-    assert names[int(np.argmax(ensemble.types_weights))] == "bounded_power_law"
-    assert names[int(np.argmax(ensemble.legomena_weights))] == "bounded_power_law"
+def test_simulated_finite_zipf_mandelbrot_population_lies_between_the_recovered_solutions(report):
+    # Reference: the population itself, E[V(n)] = sum_i (1 - e^(-n pi_i)) under Poisson sampling (Baayen
+    # 2001, ch. 2). Finite Zipf-Mandelbrot, the family that generated the corpus, predicts 10x within 3%; the
+    # truth lies between the recovered population spectrum's lower and upper solutions (Valiant & Valiant
+    # 2017: both explain the observed spectrum). Known limitation, measured here: the recommended midpoint
+    # average overshoots such a nearly exhausted finite population (about +20% at 10x), because the upper
+    # solution puts many types at the rarest grid frequency.
+    pi = stratified_population(power_law_density(0.5, 1e-6, 0.02), 1e-6, 0.02)
+    N = report.tokens
+    truth = float(np.sum(-np.expm1(-10 * N * pi)))
+    assert report.fitted["bounded_power_law"].types(10 * N) == pytest.approx(truth, rel=0.03)
+    population = report.fitted["population_spectrum"]
+    lower = population.model.expected_types(10 * N, population.params, "lower")
+    upper = population.model.expected_types(10 * N, population.params, "upper")
+    assert lower < truth < upper
 
 
-def _random_squares(report, name: str) -> tuple[np.ndarray, np.ndarray]:
-    """Per random run (in run order): squared relative error of V, and mean squared error of V_1..V_5."""
+def _random_errors(report, name: str) -> tuple[np.ndarray, np.ndarray]:
+    """Per random run (in run order): signed relative error of V, and of V_1..V_5."""
     runs = [r for r in report.runs if r.model == name and r.kind == RANDOM]
-    types = np.array([r.types_error / 100 for r in runs]) ** 2
-    legomena = np.array([np.nanmean((np.array(r.legomena_errors) / 100) ** 2) for r in runs])
-    return types, legomena
+    return np.array([r.types_error / 100 for r in runs]), np.array([r.legomena_errors for r in runs]) / 100
 
 
 def test_weights_follow_the_anchored_rule(report):
-    # Recomputed from the recorded random runs. A model joins perfect Zipf when its squared errors are
-    # smaller by more than EVIDENCE_Z paired standard errors: the statistic of scipy.stats.ttest_rel on the
-    # paired squared errors (the Diebold & Mariano 1995 comparison of two forecasts). Members share
-    # w_j ~ 1 / (mean squared error + floor^2) (inverse-MSE weights, Bates & Granger 1969); others get 0.
+    # Recomputed from the recorded random runs. The anchor's error is the average of perfect Zipf's and the
+    # population spectrum's signed errors (the error of the averaged prediction). A model joins when its
+    # squared errors (V; mean over V_1..V_5) are smaller than the anchor's by more than EVIDENCE_Z paired
+    # standard errors: the statistic of scipy.stats.ttest_rel (the Diebold & Mariano 1995 comparison of two
+    # forecasts). Members share 1 / (mean squared error + floor^2) (inverse-MSE weights, Bates & Granger
+    # 1969), the anchor's share split equally between its two models; others get 0.
     ensemble = report.recommended
     names = [f.name for f in ensemble.members]
-    squares = {name: _random_squares(report, name) for name in names}
+    errors = {name: _random_errors(report, name) for name in names}
     for kind, weights in enumerate((ensemble.types_weights, ensemble.legomena_weights)):
-        anchor = squares[ANCHOR][kind]
+        anchor_error = (errors[ANCHOR[0]][kind] + errors[ANCHOR[1]][kind]) / 2
+
+        def squares(e):
+            return e**2 if e.ndim == 1 else np.nanmean(e**2, axis=1)
+
+        anchor = squares(anchor_error)
         joins = [
-            name == ANCHOR or stats.ttest_rel(anchor, squares[name][kind]).statistic > EVIDENCE_Z
+            name not in ANCHOR and stats.ttest_rel(anchor, squares(errors[name][kind])).statistic > EVIDENCE_Z
             for name in names
         ]
-        mse = np.array([np.mean(squares[name][kind]) for name, j in zip(names, joins, strict=True) if j])
+        mse = np.array(
+            [np.mean(anchor)]
+            + [np.mean(squares(errors[n][kind])) for n, j in zip(names, joins, strict=True) if j]
+        )
+        shares = (1 / (mse + WEIGHT_FLOOR**2)) / np.sum(1 / (mse + WEIGHT_FLOOR**2))
         expected = np.zeros(len(names))
-        expected[joins] = (1 / (mse + WEIGHT_FLOOR**2)) / np.sum(1 / (mse + WEIGHT_FLOOR**2))
+        expected[[names.index(a) for a in ANCHOR]] = shares[0] / 2
+        expected[np.array(joins)] = shares[1:]
         np.testing.assert_allclose(weights, expected, rtol=1e-12, atol=1e-15)
         assert sum(weights) == pytest.approx(1.0)
-    # The rule is not vacuous here: finite Zipf-Mandelbrot joins, Zipf-Mandelbrot (infinite population,
-    # far off on a finite one) does not.
-    fzm, zm = names.index("bounded_power_law"), names.index("power_law")
-    assert ensemble.types_weights[fzm] > 0 and ensemble.types_weights[zm] == 0
+    # Zipf-Mandelbrot (infinite population, far off on a finite one) does not join.
+    assert ensemble.types_weights[names.index("power_law")] == 0
 
 
 def test_clearly_better_is_the_paired_t_statistic_against_the_threshold():
@@ -127,19 +146,23 @@ def test_clearly_better_is_the_paired_t_statistic_against_the_threshold():
 
 
 def test_anchored_weights_leave_out_models_not_clearly_better():
-    # Three models over 30 runs: model 1 is clearly better than the anchor 0, model 2 clearly worse.
-    # Expected weights: inverse-MSE (floor^2 added) over {0, 1}, zero for 2; with the best model as the
-    # anchor it stands alone; without an anchor all three share.
+    # Four models over 30 runs, signed errors: models 0 and 1 err in opposite directions, so their average
+    # (the anchor) errs little; model 2 is clearly better than that average, model 3 clearly worse.
+    # Expected weights: inverse-MSE (floor^2 added) over {anchor, 2}, the anchor's share split between 0 and
+    # 1, zero for 3; with model 2 as the anchor it stands alone; without an anchor all four share.
     rng = np.random.default_rng(5)
-    base = rng.uniform(0.002, 0.004, 30)
-    squares = np.column_stack([base, base / 4 + rng.uniform(0, 1e-4, 30), base * 3])
-    mse = squares.mean(axis=0)
-    inverse = 1 / (mse + WEIGHT_FLOOR**2)
+    base = rng.uniform(0.04, 0.06, 30)
+    errors = np.column_stack([base + 0.02, -base + 0.01, 0.001 * rng.uniform(-1, 1, 30), 3 * base])
+    anchor_mse = np.mean(((errors[:, 0] + errors[:, 1]) / 2) ** 2)
+    mse = (errors**2).mean(axis=0)
+    inverse = 1 / (np.array([anchor_mse, mse[2]]) + WEIGHT_FLOOR**2)
+    shares = inverse / inverse.sum()
     np.testing.assert_allclose(
-        anchored_weights(squares, 0), [inverse[0], inverse[1], 0] / inverse[:2].sum(), rtol=1e-12
+        anchored_weights(errors, [0, 1]), [shares[0] / 2, shares[0] / 2, shares[1], 0], rtol=1e-12
     )
-    np.testing.assert_allclose(anchored_weights(squares, 1), [0, 1, 0], atol=0)
-    np.testing.assert_allclose(anchored_weights(squares, None), inverse / inverse.sum(), rtol=1e-12)
+    np.testing.assert_allclose(anchored_weights(errors, [2]), [0, 0, 1, 0], atol=0)
+    everyone = 1 / (mse + WEIGHT_FLOOR**2)
+    np.testing.assert_allclose(anchored_weights(errors, []), everyone / everyone.sum(), rtol=1e-12)
 
 
 def test_ensemble_rebuilt_from_its_dict_predicts_the_same(report, fzm_corpus):
@@ -165,10 +188,15 @@ def test_recommended_is_the_weighted_average_with_a_widening_band(report, fzm_co
         average = sum(w * f.types(n) for w, f in zip(ensemble.types_weights, ensemble.members, strict=True))
         assert ensemble.types(n) == pytest.approx(average, rel=1e-12)
         assert ensemble.types_low(n) < ensemble.types(n) < ensemble.types_high(n)
-    spectra = sum(
-        w * f.spectrum(10 * N, 5) for w, f in zip(ensemble.legomena_weights, ensemble.members, strict=True)
+    # Legomena: the types times the u-weighted mixture's shares, so that they never exceed the types.
+    pairs = zip(ensemble.legomena_weights, ensemble.members, strict=True)
+    spectra = sum(w * f.spectrum(10 * N, 5) for w, f in pairs)
+    mixed_types = sum(
+        w * f.types(10 * N) for w, f in zip(ensemble.legomena_weights, ensemble.members, strict=True)
     )
-    np.testing.assert_allclose(ensemble.spectrum(10 * N, 5), spectra, rtol=1e-12)
+    np.testing.assert_allclose(
+        ensemble.spectrum(10 * N, 5), ensemble.types(10 * N) * spectra / mixed_types, rtol=1e-12
+    )
     widths = [ensemble.types_high(n) / ensemble.types_low(n) for n in (2 * N, 10 * N, 100 * N)]
     assert widths[0] < widths[1] < widths[2]
     # The band's factors are the backtest extrapolation factors N / (p N) for p = 0.5, 0.25, 0.1.
@@ -187,7 +215,9 @@ def test_random_runs_are_reproducible_from_their_random_state(report, fzm_corpus
             for r in report.runs
             if r.kind == RANDOM and r.label == f"{p:g}" and r.draw == 1 and r.model == "sichel"
         )
-        predicted = MODELS["sichel"].fit(part).types(fzm_corpus.tokens)
+        # predictions beyond the sample are anchored at its V (app.core.anchored)
+        fitted = MODELS["sichel"].fit(part)
+        predicted = part.types * fitted.types(fzm_corpus.tokens) / fitted.types(part.tokens)
         assert run.fit_tokens == part.tokens
         assert run.types_error == pytest.approx(100 * (predicted / fzm_corpus.types - 1), rel=1e-9)
 
@@ -214,7 +244,9 @@ def test_models_that_cannot_be_fitted_are_recorded_not_raised():
     assert "V_1" in result.failures["perfect_zipf"]
     runs = [r for r in result.runs if r.model == "perfect_zipf"]
     assert runs and all(r.failure and np.isnan(r.types_error) for r in runs)
-    assert "perfect_zipf" not in [f.name for f in result.recommended.members]
-    # Without the anchor every usable model is a member (inverse-MSE weights, all positive).
-    assert all(w > 0 for w in result.recommended.types_weights)
-    assert result.recommended.types(400) == pytest.approx(400, rel=0.01)
+    names = [f.name for f in result.recommended.members]
+    assert "perfect_zipf" not in names
+    # Without perfect Zipf the population spectrum is the anchor alone.
+    assert result.recommended.types_weights[names.index("population_spectrum")] > 0
+    corpus = Spectrum.from_pairs([(1, 400)])
+    assert Anchored(result.recommended, corpus).types(400) == pytest.approx(400, rel=1e-12)

@@ -7,6 +7,7 @@ import math
 
 import numpy as np
 import pytest
+from scipy import stats
 
 from app.core.models import MODELS, ErrorBand
 from app.core.spectrum import Spectrum
@@ -79,6 +80,14 @@ def test_error_band_grows_with_the_extrapolation_factor():
     assert band.relative_error(100.0) == pytest.approx(0.10)
     assert band.relative_error(0.25) == pytest.approx(0.02)
     low, high = band.limits(10.0, 1000.0)
-    # 95% normal range of the signed error e = (prediction - truth) / truth: truth = prediction / (1 + e)
-    assert low == pytest.approx(1000 / (1 + 1.959963984540054 * 0.05))
-    assert high == pytest.approx(1000 / (1 - 1.959963984540054 * 0.05))
+    # Without a bootstrap: the 90% normal range of the signed error e = (prediction - truth) / truth from
+    # the RMS, truth = prediction / (1 + e); z = scipy.stats.norm.ppf(0.95).
+    z = stats.norm.ppf(0.95)
+    assert low == pytest.approx(1000 / (1 + z * 0.05))
+    assert high == pytest.approx(1000 / (1 - z * 0.05))
+    # With a bootstrap spread s and a backtest bias b: e = z sqrt(s^2 + b^2), each curve linear in log t.
+    full = ErrorBand((2.0, 4.0, 10.0), (0.01, 0.02, 0.05), (0.0, -0.01, -0.03), (10.0, 100.0), (0.04, 0.08))
+    assert full.half_width(10.0) == pytest.approx(z * math.hypot(0.04, 0.03))
+    assert full.half_width(100.0) == pytest.approx(z * math.hypot(0.08, 0.06))
+    assert full.half_width(4.0) == pytest.approx(z * math.hypot(0.04 * math.log(4) / math.log(10), 0.01))
+    assert ErrorBand.from_dict(json.loads(json.dumps(full.as_dict()))) == full

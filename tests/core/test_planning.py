@@ -80,3 +80,30 @@ def test_unreachable_targets_say_why(fitted):
         planning.plan(fzm, planning.Target("types", 2 * population), population)
     with pytest.raises(planning.UnreachableTargetError):
         planning.Target("coverage", 1.5)
+
+
+@pytest.mark.parametrize("name", [*MODELS, "recommended"])
+def test_plan_inverts_the_anchored_prediction_on_both_sides_of_the_corpus_size(
+    fitted, docstring_spectrum, name
+):
+    """What the service predicts (exact interpolation up to N, the anchored model beyond: app.core.anchored)
+    is what it plans: plan(types = predict(n)) == n within 0.1% for n from N/50 to 1000 N.
+
+    Reference below N: scipy.stats.hypergeom, E[V(n)] = sum_i (1 - hypergeom.pmf(0; N, f_i, n))."""
+    from scipy import stats
+
+    from app.core.anchored import Anchored
+
+    if name not in fitted:
+        pytest.skip(f"{name} could not be fitted to the docstrings")
+    predictor = Anchored(fitted[name], docstring_spectrum)
+    N = docstring_spectrum.tokens
+    frequencies = np.repeat(docstring_spectrum.m, docstring_spectrum.vm)
+    for n in np.rint(np.geomspace(N / 50, 1000 * N, 9)):
+        types = float(predictor.types(n))
+        if n <= N:
+            exact = float(np.sum(1 - stats.hypergeom.pmf(0, N, frequencies, n)))
+            assert types == pytest.approx(exact, rel=1e-9)
+        if n > N and float(predictor.types(n)) - float(predictor.types(n / 1.001)) < 1e-6 * types:
+            continue  # a finite population already exhausted: the types no longer identify the size
+        assert planning.plan(predictor, planning.Target("types", types)) == pytest.approx(n, rel=1e-3)

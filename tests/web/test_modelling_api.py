@@ -170,6 +170,25 @@ def test_plan_api(docstring_corpus):
     assert page.status_code == 200 and "About " in page.text and "target reached" in page.text
 
 
+def test_plan_inverts_predict_below_and_beyond_the_corpus_size(docstring_corpus):
+    # For every model: plan(types = predict(n).types) == n within 0.1%, at n = N / 5 (exact interpolation;
+    # reference scipy.stats.hypergeom) and at n = 10 N (the anchored model). Every prediction carries its
+    # nominal 90% range with the level and the method.
+    client, cid, _ = docstring_corpus
+    N = client.get(f"/api/corpora/{cid}").json()["tokens"]
+    models = client.get(f"/api/corpora/{cid}/models").json()["fitted"]
+    for model in ["recommended", *(m for m in models if m != "perfect_zipf_totals")]:
+        for n in (N // 5, 10 * N):
+            body = client.get(f"/api/corpora/{cid}/predict", params={"tokens": n, "model": model}).json()
+            assert body["range"]["level"] == 0.9 and body["range"]["method"]
+            assert body["types_low"] <= body["types"], body
+            assert body["types_high"] is None or body["types"] <= body["types_high"], body
+            assert body["legomena"]["1"] <= body["types"]
+            plan = client.get(f"/api/corpora/{cid}/plan", params={"types": body["types"], "model": model})
+            assert plan.status_code == 200, (model, n, plan.text)
+            assert plan.json()["tokens"] == pytest.approx(n, rel=1e-3), (model, n)
+
+
 def test_estimator_plans_from_totals(client):
     forward = client.post(
         "/api/estimate", json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400, "sizes": [400_000]}

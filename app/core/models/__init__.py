@@ -9,6 +9,7 @@ from app.core.models.gigp import GIGP
 from app.core.models.goodness import GoodnessOfFit
 from app.core.models.heaps import Heaps
 from app.core.models.perfect_zipf import PerfectZipf, PerfectZipfTotals, fit_from_totals
+from app.core.models.population_spectrum import PopulationSpectrum
 from app.core.models.zipf_mandelbrot import ZipfMandelbrot
 
 MODELS: dict[str, VocabularyModel] = {
@@ -20,6 +21,7 @@ MODELS: dict[str, VocabularyModel] = {
         ZipfMandelbrot(),
         FiniteZipfMandelbrot(),
         GIGP(),
+        PopulationSpectrum(),
     )
 }
 

@@ -36,8 +36,8 @@ from typing import Any, ClassVar, Protocol
 import numpy as np
 from scipy.optimize import least_squares
 from scipy.special import expit, logit
+from scipy.stats import norm
 
-from app.core.interpolation import Z95
 from app.core.models.goodness import (
     GoodnessOfFit,
     chi_square,
@@ -47,7 +47,8 @@ from app.core.models.goodness import (
 )
 from app.core.spectrum import Spectrum
 
-Params = dict[str, float]
+Params = dict[str, Any]
+"""Named parameters: numbers, or sequences of numbers for a model described by a histogram."""
 ArrayLike = float | np.ndarray
 _BREAKDOWN = 1e8  # residual used where a model's formulas overflow or are undefined
 MIN_TYPES_TO_FIT = 10
@@ -76,36 +77,90 @@ def as_output(values: np.ndarray, like: ArrayLike) -> ArrayLike:
     return float(values) if np.ndim(like) == 0 else values
 
 
+RANGE_LEVEL = 0.9
+"""Nominal coverage of every prediction range."""
+Z90 = float(norm.ppf(0.5 + RANGE_LEVEL / 2))  # 1.645, the standard normal 95% quantile
+RANGE_METHOD = (
+    "nominal 90% range: +-1.645 x sqrt(s^2 + b^2) relative to the prediction, where s is the relative "
+    "standard deviation of the recommended prediction over parametric bootstrap replicates (samples of N "
+    "tokens drawn from the recovered population spectrum and refitted) and b is the model's mean signed "
+    "error in the random backtests at the same extrapolation factor (its bias)"
+)
+
+
+def log_factor_curve(factors: tuple[float, ...], values: tuple[float, ...], t: ArrayLike) -> np.ndarray:
+    """A non-negative quantity known at extrapolation factors t_i > 1, as a function of t: linear in log t
+    from 0 at t = 1 through the points; beyond the largest factor in proportion to log t (an assumption:
+    each further tenfold extrapolation adds as much as the last); below 1 that of the reciprocal factor."""
+    log_t = np.abs(np.log(np.asarray(t, dtype=float)))
+    xs = np.concatenate(([0.0], np.log(factors)))
+    ys = np.concatenate(([0.0], values))
+    inside = np.interp(log_t, xs, ys)
+    return np.where(log_t > xs[-1], ys[-1] * log_t / xs[-1], inside)
+
+
 @dataclass(frozen=True)
 class ErrorBand:
     """Relative error of a type-count prediction as a function of the extrapolation factor t = n / N_fit.
 
-    ``factors`` (ascending, > 1) are the factors a backtest extrapolated over and ``rms`` the root mean
-    square of its signed relative errors there. Between backtested factors the error is interpolated
-    linearly in log t from 0 at t = 1; beyond the largest it grows in proportion to log t (an assumption:
-    each further tenfold extrapolation adds as much error as the last). Sizes below N_fit use the error of
-    the reciprocal factor. The band is prediction / (1 + e) for e = +-Z95 * rms(t), the range
-    of true values whose signed error e = (prediction - truth) / truth would lie within the normal 95% range.
+    ``factors`` (ascending, > 1) are the factors a random backtest extrapolated over, ``rms`` the root mean
+    square and ``bias`` the mean of its signed relative errors there; ``sampling_factors`` and
+    ``sampling_sd`` the relative standard deviation of the prediction over parametric bootstrap replicates
+    (``app.core.backtest.bootstrap_spread``). Each curve is ``log_factor_curve``.
+
+    The range is the nominal 90% range prediction / (1 + e) .. prediction / (1 - e), e = Z90 sqrt(s(t)^2 +
+    b(t)^2), the range of true values whose signed error e = (prediction - truth) / truth lies within +-e:
+    s the sampling spread of the data (bootstrap), b the model's own bias (backtests). Without a bootstrap
+    (a corpus too small for one) the backtest RMS stands in for both.
     """
 
     factors: tuple[float, ...]
     rms: tuple[float, ...]
+    bias: tuple[float, ...] = ()
+    sampling_factors: tuple[float, ...] = ()
+    sampling_sd: tuple[float, ...] = ()
 
     def relative_error(self, t: ArrayLike) -> np.ndarray:
-        log_t = np.abs(np.log(np.asarray(t, dtype=float)))
-        xs = np.concatenate(([0.0], np.log(self.factors)))
-        ys = np.concatenate(([0.0], self.rms))
-        inside = np.interp(log_t, xs, ys)
-        return np.where(log_t > xs[-1], ys[-1] * log_t / xs[-1], inside)
+        """The backtest RMS relative error at factor t."""
+        return log_factor_curve(self.factors, self.rms, t)
+
+    def half_width(self, t: ArrayLike) -> np.ndarray:
+        """e(t) of the class docstring."""
+        if not self.sampling_factors or not self.bias:
+            return Z90 * self.relative_error(t)
+        s = log_factor_curve(self.sampling_factors, self.sampling_sd, t)
+        b = log_factor_curve(self.factors, tuple(abs(v) for v in self.bias), t)
+        return Z90 * np.sqrt(s**2 + b**2)
 
     def limits(self, t: ArrayLike, prediction: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
-        e = Z95 * self.relative_error(t)
+        e = self.half_width(t)
         with np.errstate(divide="ignore"):
             high = np.where(e < 1, np.asarray(prediction) / np.maximum(1 - e, 0.0), np.inf)
         return np.asarray(prediction) / (1 + e), high
 
     def as_dict(self) -> dict[str, Any]:
-        return {"factors": list(self.factors), "rms_relative_error": list(self.rms)}
+        return {
+            "factors": list(self.factors),
+            "rms_relative_error": list(self.rms),
+            "mean_relative_error": list(self.bias),
+            "sampling": {"factors": list(self.sampling_factors), "relative_sd": list(self.sampling_sd)},
+            "level": RANGE_LEVEL,
+            "method": RANGE_METHOD,
+        }
+
+    @classmethod
+    def from_dict(cls, data: Mapping[str, Any] | None) -> ErrorBand | None:
+        """Inverse of ``as_dict`` (also reads the older form with factors and RMS only)."""
+        if not data:
+            return None
+        sampling = data.get("sampling") or {}
+        return cls(
+            tuple(data["factors"]),
+            tuple(data["rms_relative_error"]),
+            tuple(data.get("mean_relative_error", ())),
+            tuple(sampling.get("factors", ())),
+            tuple(sampling.get("relative_sd", ())),
+        )
 
 
 class Predictor(Protocol):
@@ -142,11 +197,11 @@ class BandedPredictions:
         return as_output(low, n), as_output(high, n)
 
     def types_low(self, n: ArrayLike) -> ArrayLike:
-        """Lower end of the backtest error band of E[V(n)] (E[V(n)] itself when there is no band)."""
+        """Lower end of the nominal 90% range of E[V(n)] (E[V(n)] itself when there is no band)."""
         return self._limits(n)[0]
 
     def types_high(self, n: ArrayLike) -> ArrayLike:
-        """Upper end of the backtest error band of E[V(n)] (E[V(n)] itself when there is no band)."""
+        """Upper end of the nominal 90% range of E[V(n)] (E[V(n)] itself when there is no band)."""
         return self._limits(n)[1]
 
 
@@ -168,6 +223,10 @@ class FittedModel(BandedPredictions):
     def name(self) -> str:
         return self.model.name
 
+    @property
+    def title(self) -> str:
+        return self.model.title
+
     @cached_property
     def goodness_of_fit(self) -> GoodnessOfFit:
         if self.spectrum_fitted is None:
@@ -186,7 +245,10 @@ class FittedModel(BandedPredictions):
         return {
             "model": self.model.name,
             "title": self.model.title,
-            "params": {k: float(v) for k, v in self.params.items()},
+            "params": {k: float(v) for k, v in self.params.items() if np.ndim(v) == 0},
+            "arrays": {
+                k: np.asarray(v, dtype=float).tolist() for k, v in self.params.items() if np.ndim(v) > 0
+            },
             "tokens": self.tokens,
             "goodness_of_fit": self.goodness_of_fit.as_dict(),
             "band": None if self.band is None else self.band.as_dict(),
@@ -258,7 +320,8 @@ class VocabularyModel(ABC):
         return residuals
 
     def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:
-        """Minimise the cost of the module docstring from every initial guess; the lowest cost wins."""
+        """Fit by ``estimate`` (by default: minimise the cost of the module docstring from every initial
+        guess; the lowest cost wins) and check the expectations for soundness."""
         if spectrum.types == 0:
             raise ValueError("cannot fit a model to an empty spectrum")
         if spectrum.types < MIN_TYPES_TO_FIT:
@@ -266,13 +329,19 @@ class VocabularyModel(ABC):
                 f"{self.name}: {spectrum.types} type(s) are too few to fit a model "
                 f"(at least {MIN_TYPES_TO_FIT} are needed)"
             )
+        params = self.estimate(spectrum, m_max)
+        self.check_growth(params, spectrum.tokens)
+        return FittedModel(self, params, spectrum.tokens, spectrum, m_max)
+
+    def estimate(self, spectrum: Spectrum, m_max: int = 15) -> Params:
+        """The parameters that ``fit`` wraps in a FittedModel: here the least-squares cost of the module
+        docstring. A model fitted another way (a closed form, a linear program) overrides this hook only;
+        the checks, the FittedModel and every verb stay shared."""
         residuals = self._residuals(spectrum, m_max, lambda d, e: d / np.sqrt(np.maximum(e, 1e-12)))
         best = _minimise(residuals, [self.to_unconstrained(g) for g in self.initial_guesses(spectrum)])
         if best is None:
             raise ValueError(f"{self.name}: no initial guess led to a finite cost")
-        params = self.from_unconstrained(best)
-        self.check_growth(params, spectrum.tokens)
-        return FittedModel(self, params, spectrum.tokens, spectrum, m_max)
+        return self.from_unconstrained(best)
 
     def check_growth(self, params: Mapping[str, float], tokens: int) -> None:
         """Raise ValueError unless E[V(n)] is finite, within [0, n] and non-decreasing for n from 1 to
