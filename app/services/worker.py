@@ -46,11 +46,14 @@ def _lane(
         if task is None:
             stop.wait(POLL_SECONDS)
             continue
-        running[lane] = task
-        try:
-            tasks.run(engine, task, work_dir, lambda _queued: None)
-        finally:
-            running.pop(lane, None)
+        follow_ups: list[queue.TaskView] = []  # a new corpus's model report: fitted at once, in this lane
+        while task is not None:
+            running[lane] = task
+            try:
+                tasks.run(engine, task, work_dir, follow_ups.append)
+            finally:
+                running.pop(lane, None)
+            task = queue.claim(engine, follow_ups.pop(0).id, owner) if follow_ups else None
 
 
 def worker_main(database_url: str, work_dir: str) -> None:

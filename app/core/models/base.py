@@ -54,6 +54,10 @@ _BREAKDOWN = 1e8  # residual used where a model's formulas overflow or are undef
 MIN_TYPES_TO_FIT = 10
 """Fewest types a model is fitted to: below that the spectrum holds a handful of non-zero counts, the
 parameters are not identified and the optimiser only wanders (a choice of ours)."""
+POPULATION_FIT_MIN_TOKENS = 1_000
+"""Fewest tokens a parametric population model (two or three parameters fitted by least squares) is fitted
+to: on fewer the spectrum holds a handful of classes, the fit does not identify its parameters and each try
+costs much of the time a draft's report may take (a choice of ours)."""
 GROWTH_CHECK_FACTOR = 100
 """Fitted parameters are checked for sound expectations up to this many times the corpus size."""
 
@@ -267,6 +271,8 @@ class VocabularyModel(ABC):
     title: ClassVar[str]
     parameter_names: ClassVar[tuple[str, ...]]
     bounds: ClassVar[dict[str, tuple[float, float]]] = {}
+    min_tokens: ClassVar[int] = 0
+    """Fewest tokens the model is fitted to (its parameters are not identified on fewer)."""
 
     @abstractmethod
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
@@ -328,6 +334,11 @@ class VocabularyModel(ABC):
             raise ValueError(
                 f"{self.name}: {spectrum.types} type(s) are too few to fit a model "
                 f"(at least {MIN_TYPES_TO_FIT} are needed)"
+            )
+        if spectrum.tokens < self.min_tokens:
+            raise ValueError(
+                f"{self.name}: not fitted to fewer than {self.min_tokens:,} tokens ({spectrum.tokens:,} here): "
+                "its parameters are not identified on so few"
             )
         params = self.estimate(spectrum, m_max)
         self.check_growth(params, spectrum.tokens)

@@ -19,7 +19,7 @@ from collections.abc import Mapping
 import numpy as np
 from scipy.special import expit, logit
 
-from app.core.models.base import ArrayLike, Params, VocabularyModel
+from app.core.models.base import POPULATION_FIT_MIN_TOKENS, ArrayLike, Params, VocabularyModel
 from app.core.models.zipf_mandelbrot import (
     hapax_exponent,
     power_law_constant,
@@ -36,6 +36,7 @@ class FiniteZipfMandelbrot(VocabularyModel):
     name = "bounded_power_law"
     title = "bounded power law (finite Zipf-Mandelbrot)"
     parameter_names = ("a", "A", "B")
+    min_tokens = POPULATION_FIT_MIN_TOKENS
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
         return power_law_types(n, params["a"], params["A"], params["B"])

@@ -19,7 +19,7 @@ from collections.abc import Mapping
 import numpy as np
 from scipy.special import gammaln, kve
 
-from app.core.models.base import ArrayLike, Params, VocabularyModel, as_output
+from app.core.models.base import POPULATION_FIT_MIN_TOKENS, ArrayLike, Params, VocabularyModel, as_output
 from app.core.spectrum import Spectrum
 
 
@@ -29,6 +29,7 @@ class GIGP(VocabularyModel):
     name = "sichel"
     title = "Sichel mixture (generalised inverse Gauss-Poisson)"
     parameter_names = ("b", "c", "g")
+    min_tokens = POPULATION_FIT_MIN_TOKENS
     bounds = {"b": (0.0, np.inf), "c": (0.0, np.inf), "g": (-1.0, 0.0)}
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:

@@ -18,7 +18,7 @@ from collections.abc import Mapping
 import numpy as np
 from scipy.special import gamma, gammainc, gammaincc, gammaln
 
-from app.core.models.base import ArrayLike, Params, VocabularyModel, as_output
+from app.core.models.base import POPULATION_FIT_MIN_TOKENS, ArrayLike, Params, VocabularyModel, as_output
 from app.core.spectrum import Spectrum
 
 
@@ -84,6 +84,7 @@ class ZipfMandelbrot(VocabularyModel):
     name = "power_law"
     title = "power law (Zipf-Mandelbrot)"
     parameter_names = ("a", "B")
+    min_tokens = POPULATION_FIT_MIN_TOKENS
     bounds = {"a": (0.0, 1.0), "B": (0.0, np.inf)}
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
