@@ -21,7 +21,7 @@ import threading
 from pathlib import Path
 
 from app.ingest.lifetime import die_with_parent
-from app.services import tasks
+from app.services import modelling, tasks
 from app.store import tasks as queue
 from app.store.db import create_store_engine
 
@@ -73,6 +73,7 @@ def worker_main(database_url: str, work_dir: str) -> None:
 
     signal.signal(signal.SIGTERM, on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group: the server stops us
+    modelling.warm_up()
     lanes = [
         threading.Thread(
             target=_lane, name=name, args=(engine, Path(work_dir), owner, size, running, stop), daemon=True
