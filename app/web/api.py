@@ -18,6 +18,7 @@ from app.store import accounts
 from app.store import corpora as store
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
+from app.web.forms import optional
 from app.web.uploads import parse_profile, receive
 
 router = APIRouter(prefix="/api", tags=["api"])
@@ -86,7 +87,7 @@ def upload_corpus(
             raise input_error(exc) from exc
         finally:
             upload.cleanup()
-        return store.summary(store.get_corpus(engine, corpus_id))
+        return with_warnings(store.summary(store.get_corpus(engine, corpus_id)))
     job = jobs.submit(work, cleanup=upload.cleanup)
     return JSONResponse(job.as_dict() | {"url": f"/api/jobs/{job.id}"}, status_code=202)
 
@@ -99,9 +100,17 @@ def job_status(job_id: str, jobs: Annotated[JobRunner, Depends(jobs_of)]) -> dic
     return job.as_dict()
 
 
+def with_warnings(summary: dict) -> dict:
+    """A corpus summary with ``warnings``: sentences to show before any extrapolation (tiny texts)."""
+    warning = modelling.small_corpus_warning(summary["tokens"])
+    return summary | {"warnings": [warning] if warning else []}
+
+
 @router.get("/corpora/{corpus_id}")
 def corpus_summary(corpus_id: CorpusId, engine: EngineDep) -> dict:
-    return store.summary(corpus_or_404(engine, corpus_id))
+    """The corpus summary, with ``warnings`` to show before any extrapolation (e.g. a text under 1,000
+    tokens)."""
+    return with_warnings(store.summary(corpus_or_404(engine, corpus_id)))
 
 
 @router.delete("/corpora/{corpus_id}", status_code=204)
@@ -185,6 +194,13 @@ def predict(
     return _modelling_call(modelling.predict, engine, corpus_id, tokens, model)
 
 
+@router.get("/models")
+def model_catalogue() -> list[dict]:
+    """Every model id the prediction and planning endpoints accept, with its name in words, its formula
+    and its parameters (names as in ``/corpora/{id}/models``, with their meaning)."""
+    return modelling.model_catalogue()
+
+
 @router.get("/corpora/{corpus_id}/models")
 def models(corpus_id: CorpusId, engine: EngineDep) -> dict:
     """Every fitted model: parameters, goodness of fit, backtest errors, and the recommended ensemble."""
@@ -224,13 +240,15 @@ def random_sample(
 class TotalsEstimate(BaseModel):
     tokens: int = Field(ge=1, le=10**12, description="tokens N of the text")
     types: int = Field(ge=1, le=10**12, description="types V of the text")
-    hapaxes: int | None = Field(default=None, ge=1, le=10**12, description="hapax legomena V_1, if known")
-    sizes: list[int] = Field(default_factory=list, max_length=50, description="sizes to predict at")
-    plan_types: float | None = Field(
-        default=None, gt=0, le=1e13, description="planning: tokens until this many types"
+    hapaxes: optional(int, ge=1, le=10**12) = Field(
+        default=None, description="hapax legomena V_1, if known (null or empty: not known)"
     )
-    plan_new_type_rate: float | None = Field(
-        default=None, gt=0, lt=1, description="planning: until this new-type rate"
+    sizes: list[int] = Field(default_factory=list, max_length=50, description="sizes to predict at")
+    plan_types: optional(float, gt=0, le=1e13) = Field(
+        default=None, description="planning: tokens until this many types (optional)"
+    )
+    plan_new_type_rate: optional(float, gt=0, lt=1) = Field(
+        default=None, description="planning: until this new-type rate (optional)"
     )
 
     @field_validator("sizes")
@@ -293,19 +311,22 @@ def planning_target(
 def plan(
     corpus_id: CorpusId,
     engine: EngineDep,
-    types: Annotated[float | None, Query(gt=0, le=1e13, description="target number of types V*")] = None,
+    types: Annotated[
+        optional(float, gt=0, le=1e13), Query(description="target number of types V*")
+    ] = None,
     new_type_rate: Annotated[
-        float | None, Query(gt=0, lt=1, description="target chance that the next token is new")
+        optional(float, gt=0, lt=1), Query(description="target chance that the next token is new")
     ] = None,
     coverage: Annotated[
-        float | None, Query(gt=0, lt=1, description="target coverage 1 - new-type rate")
+        optional(float, gt=0, lt=1), Query(description="target coverage 1 - new-type rate")
     ] = None,
     share: Annotated[
-        float | None, Query(gt=0, lt=1, description="target share of the whole population")
+        optional(float, gt=0, lt=1), Query(description="target share of the whole population")
     ] = None,
     model: ModelName = modelling.RECOMMENDED,
 ) -> dict:
-    """How many tokens until the corpus reaches a vocabulary target, with the range over models."""
+    """How many tokens until the corpus reaches a vocabulary target, with the range over models. Give one
+    target; the others may be left out or sent empty (``coverage=``), as a browser form sends them."""
     corpus_or_404(engine, corpus_id)
     target = planning_target(types, new_type_rate, coverage, share)
     return _modelling_call(modelling.plan, engine, corpus_id, target, model)
