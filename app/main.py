@@ -4,24 +4,21 @@ from __future__ import annotations
 
 import logging
 from contextlib import asynccontextmanager
-from pathlib import Path
 
-import plotly
 from fastapi import Depends, FastAPI, Request
 from fastapi.exception_handlers import http_exception_handler, request_validation_exception_handler
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import FileResponse
-from fastapi.staticfiles import StaticFiles
+from fastapi.responses import Response
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.middleware.gzip import GZipMiddleware
 
 from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings
 from app.ingest import scratch
 from app.services.ingestion import load_demo_corpora
 from app.services.jobs import JobRunner
 from app.store.db import make_engine
-from app.web import api, compare, pages, security
+from app.web import api, assets, compare, library, pages, security
 
-PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
 
 
@@ -56,16 +53,22 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.guard = security.Guard(settings, app.state.engine)
     app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
 
-    @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
-    def plotly_js() -> FileResponse:
-        return FileResponse(
-            PLOTLY_JS, media_type="text/javascript", headers={"Cache-Control": "max-age=86400"}
-        )
+    # Responses of 1 kB or more are gzip-compressed when the browser accepts it (plotly.js is compressed once).
+    app.add_middleware(GZipMiddleware, minimum_size=1000)
 
-    app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
+    @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
+    def plotly_js(request: Request) -> Response:
+        return assets.serve(assets.plotly_assets()[0], request)
+
+    @app.get("/static/vendor/plotly.css", include_in_schema=False)
+    def plotly_css(request: Request) -> Response:
+        return assets.serve(assets.plotly_assets()[1], request)
+
+    app.mount("/static", assets.CachedStaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)
     app.include_router(compare.router)
+    app.include_router(library.router)
     app.include_router(security.router)
 
     def wants_json(request: Request) -> bool:

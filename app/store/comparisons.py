@@ -68,3 +68,19 @@ def get_comparison(engine: Engine, slug: str) -> SavedComparison:
         if row is None:
             raise ComparisonNotFoundError(slug)
         return row
+
+
+def list_comparisons(engine: Engine) -> list[SavedComparison]:
+    """Every saved comparison, newest first."""
+    with Session(engine) as session:
+        rows = session.execute(select(SavedComparison).order_by(SavedComparison.created_at.desc())).scalars()
+        return list(rows)
+
+
+def delete_comparison(engine: Engine, slug: str) -> None:
+    """Delete the comparison saved at ``slug`` (ComparisonNotFoundError when there is none)."""
+    with transaction(engine) as session:
+        row = session.get(SavedComparison, slug)
+        if row is None:
+            raise ComparisonNotFoundError(slug)
+        session.delete(row)

@@ -311,9 +311,7 @@ def planning_target(
 def plan(
     corpus_id: CorpusId,
     engine: EngineDep,
-    types: Annotated[
-        optional(float, gt=0, le=1e13), Query(description="target number of types V*")
-    ] = None,
+    types: Annotated[optional(float, gt=0, le=1e13), Query(description="target number of types V*")] = None,
     new_type_rate: Annotated[
         optional(float, gt=0, lt=1), Query(description="target chance that the next token is new")
     ] = None,

@@ -43,7 +43,10 @@ def model_style(name: str) -> ModelStyle:
     index = list(modelling.MODELS).index(name)
     title = titles[name]
     return ModelStyle(
-        lines[index % len(lines)], MODEL_DASHES[(index // len(lines)) % len(MODEL_DASHES)], short(title), title
+        lines[index % len(lines)],
+        MODEL_DASHES[(index // len(lines)) % len(MODEL_DASHES)],
+        short(title),
+        title,
     )
 
 
@@ -93,7 +96,10 @@ def figure(
         "yaxis": axis(y_title, log_y),
     }
     units = (_unit(x_title), _unit(y_title))
-    data = [t if "hovertemplate" in t or t.get("hoverinfo") == "skip" else t | {"hovertemplate": hover(*units)} for t in data]
+    data = [
+        t if "hovertemplate" in t or t.get("hoverinfo") == "skip" else t | {"hovertemplate": hover(*units)}
+        for t in data
+    ]
     return {"data": data, "layout": base | layout}
 
 
@@ -113,7 +119,9 @@ def line(x, y, name: str, colour_hex: str, dashed: bool = False, **extra: Any) -
     } | extra
 
 
-def band(x, low, high, name: str, colour_hex: str, group: str | None = None, alpha: float = 0.18) -> list[dict]:
+def band(
+    x, low, high, name: str, colour_hex: str, group: str | None = None, alpha: float = 0.18
+) -> list[dict]:
     """A translucent band between ``low`` and ``high`` (two traces: lower edge, then filled upper edge). It
     has no legend entry of its own: it belongs to the legend entry of ``group`` (its line), so that clicking
     that entry hides both. Draw bands before lines, so that no fill covers a line."""
@@ -212,7 +220,11 @@ def spectrum_bars(
                 style.colour,
                 mode="lines+markers",
                 marker={"size": 5},
-                line={"color": style.colour, "width": 2.5 if name == "recommended" else 2, "dash": style.dash},
+                line={
+                    "color": style.colour,
+                    "width": 2.5 if name == "recommended" else 2,
+                    "dash": style.dash,
+                },
                 hovertemplate=f"<b>{style.title}</b><br>expected %{{y:,.1f}} types occurring %{{x}} times"
                 "<extra></extra>",
             )
@@ -226,7 +238,11 @@ def spectrum_bars(
         yaxis=axis(title, log=True),
         **views_control(
             {
-                "log": {"yaxis.type": "log", "yaxis.autorange": True, "yaxis.title.text": f"{title} (log scale)"},
+                "log": {
+                    "yaxis.type": "log",
+                    "yaxis.autorange": True,
+                    "yaxis.title.text": f"{title} (log scale)",
+                },
                 "linear": {"yaxis.type": "linear", "yaxis.autorange": True, "yaxis.title.text": title},
             },
             "log",
@@ -271,7 +287,9 @@ def growth_lines(
     rec_group = "recommended"
     if recommended_band:
         bx, low, high = recommended_band
-        data += band(bx, low, high, "recommended: backtest error band", RECOMMENDED, group=rec_group, alpha=0.12)
+        data += band(
+            bx, low, high, "recommended: backtest error band", RECOMMENDED, group=rec_group, alpha=0.12
+        )
     data += band(
         xs, [p["low"] for p in random_order], [p["high"] for p in random_order], "random order", RANDOM_ORDER
     )
@@ -299,7 +317,15 @@ def growth_lines(
                 hovertemplate=f"<b>{style.title}</b><br>%{{x:,}} tokens: %{{y:,.0f}} types expected<extra></extra>",
             )
         )
-    data.append(line([n for n, _ in text_order], [v for _, v in text_order], "text order (observed)", OBSERVED, line={"color": OBSERVED, "width": 2.5}))
+    data.append(
+        line(
+            [n for n, _ in text_order],
+            [v for _, v in text_order],
+            "text order (observed)",
+            OBSERVED,
+            line={"color": OBSERVED, "width": 2.5},
+        )
+    )
     layout: dict[str, Any] = {}
     horizon = max((max(mx) for mx, _ in (models or {}).values()), default=corpus_tokens or 1)
     if models and corpus_tokens and horizon > corpus_tokens:

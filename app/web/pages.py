@@ -9,11 +9,11 @@ from fastapi.responses import HTMLResponse
 from sqlalchemy.engine import Engine
 
 from app.config import TEMPLATES_DIR
-from app.ingest.profiles import BUILTIN_PROFILES
 from app.core import planning
-from app.services import estimator, modelling
+from app.ingest.profiles import BUILTIN_PROFILES
+from app.services import estimator, library, modelling
 from app.store import corpora as store
-from app.web import api, corpus_view, figures
+from app.web import api, assets, corpus_view, figures
 from app.web.deps import corpus_or_404, engine_of
 from app.web.forms import FormInput
 from app.web.glossary import GLOSSARY
@@ -22,6 +22,7 @@ from app.web.templating import make_templates
 router = APIRouter(include_in_schema=False)
 templates = make_templates(TEMPLATES_DIR)
 templates.env.globals["glossary"] = GLOSSARY
+templates.env.globals["plotly_map_style_id"] = assets.plotly_assets()[2]
 EngineDep = Annotated[Engine, Depends(engine_of)]
 
 
@@ -30,18 +31,21 @@ def render(request: Request, name: str, status_code: int = 200, **context) -> HT
 
 
 @router.get("/", response_class=HTMLResponse)
-def library(request: Request, engine: EngineDep, label: str | None = None):
-    corpora = [store.summary(c) for c in store.list_corpora(engine)]
-    label_values = sorted({f"{k}={v}" for c in corpora for k, v in c["labels"].items()})
-    if label and "=" in label:
-        key, value = label.split("=", 1)
-        corpora = [c for c in corpora if c["labels"].get(key) == value]
+def library_page(request: Request, engine: EngineDep):
+    """The Library: filter by label values (several keys at once; values of one key are alternatives) and by
+    a search over names, labels and free-text notes."""
+    every = [store.summary(c) for c in store.list_corpora(engine)]
+    chosen = [v[:500] for v in request.query_params.getlist("label")]
+    search = (request.query_params.get("search") or "")[:200]
     return render(
         request,
         "library.html",
-        corpora=corpora,
-        label_values=label_values,
-        label=label,
+        corpora=library.filter_corpora(every, chosen, search),
+        total=len(every),
+        filters=library.label_filter(every),
+        chosen=set(chosen),
+        search=search,
+        deleted=request.query_params.get("deleted"),
         json_url="/api/corpora",
     )
 
@@ -77,9 +81,14 @@ def _planning_target(form: FormInput) -> planning.Target | None:
 
 
 @router.get("/corpora/{corpus_id}", response_class=HTMLResponse)
-def corpus_page(request: Request, corpus_id: api.CorpusId, engine: EngineDep):
+def corpus_page_route(request: Request, corpus_id: api.CorpusId, engine: EngineDep):
     """The corpus page. Its forms send every field, empty ones included; problems are shown beside the
     form they belong to, with the text kept as typed."""
+    return corpus_page(request, corpus_id, engine)
+
+
+def corpus_page(request: Request, corpus_id: int, engine: Engine, edit: dict | None = None) -> HTMLResponse:
+    """The corpus page; ``edit``: the "Name and labels" form as typed, with its error, to show again."""
     corpus = corpus_or_404(engine, corpus_id)
     form = FormInput(dict(request.query_params))
     page = form.number("page", "page", whole=True, at_least=1, at_most=10**7) or 1
@@ -99,10 +108,30 @@ def corpus_page(request: Request, corpus_id: api.CorpusId, engine: EngineDep):
         plan_model = modelling.RECOMMENDED
     target = _planning_target(form)
     context = corpus_view.corpus_context(
-        engine, corpus_id, form.text("q")[:200] or None, page, sizes_text, horizon, common_size, target, plan_model
+        engine,
+        corpus_id,
+        form.text("q")[:200] or None,
+        page,
+        sizes_text,
+        horizon,
+        common_size,
+        target,
+        plan_model,
     )
-    status = 422 if form.errors else 200  # the page itself, with each problem beside its form
-    return render(request, "corpus.html", status_code=status, form=form, **context)
+    status = 422 if form.errors or edit else 200  # the page itself, with each problem beside its form
+    viewer = request.state.viewer
+    return render(
+        request,
+        "corpus.html",
+        status_code=status,
+        form=form,
+        may_edit=viewer.may_delete(corpus.owner_id),
+        labels_text=library.labels_as_text(context["corpus"]["labels"]),
+        edit_form=edit,
+        edit_error=edit["error"] if edit else None,
+        edit_saved=form.text("saved") == "1" and not edit,
+        **context,
+    )
 
 
 @router.get("/estimate", response_class=HTMLResponse)
@@ -139,12 +168,16 @@ def estimate_page(request: Request):
         try:
             draws = form.text("draws")[:500]
             drawn = (
-                corpus_view.parse_sizes(draws, total) if draws.strip() else sorted({1, total // 4, total // 2, total})
+                corpus_view.parse_sizes(draws, total)
+                if draws.strip()
+                else sorted({1, total // 4, total // 2, total})
             )
             uniform = estimator.uniform_design(uniform_types, repeats, drawn)
         except (ValueError, ArithmeticError) as exc:
             form.fail("draws", str(exc).replace("sizes:", "draws:"))
-    elif form.given("uniform_types") != form.given("repeats") and not form.errors_of("uniform_types", "repeats"):
+    elif form.given("uniform_types") != form.given("repeats") and not form.errors_of(
+        "uniform_types", "repeats"
+    ):
         form.fail("uniform_types", "Give both the number of types (k) and the occurrences of each (r).")
     return render(
         request,
@@ -163,7 +196,9 @@ def estimate_page(request: Request):
 def estimate_figure(result: dict) -> dict:
     """The perfect-Zipf growth curve solved from the totals, in that model's colour, with the table's sizes."""
     rows = result["predictions"]
-    style = figures.model_style("perfect_zipf_totals" if result["input"]["hapaxes"] is None else "perfect_zipf")
+    style = figures.model_style(
+        "perfect_zipf_totals" if result["input"]["hapaxes"] is None else "perfect_zipf"
+    )
     curve = figures.line(
         result["curve"]["tokens"],
         result["curve"]["types"],

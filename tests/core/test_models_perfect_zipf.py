@@ -118,7 +118,9 @@ def test_fitted_model_reproduces_the_corpus_types_and_hapaxes():
     assert fitted.spectrum(spectrum.tokens, 1)[0] == pytest.approx(spectrum.hapaxes, rel=1e-9)
     # Z = N / x and W = V (x - 1) / (x ln x) by definition.
     x = spectrum.tokens / fitted.params["zipf_size"]
-    assert fitted.params["zipf_types"] == pytest.approx(spectrum.types * (x - 1) / (x * math.log(x)), rel=1e-12)
+    assert fitted.params["zipf_types"] == pytest.approx(
+        spectrum.types * (x - 1) / (x * math.log(x)), rel=1e-12
+    )
 
 
 def test_fewer_than_half_hapaxes_means_a_smaller_zipf_size():

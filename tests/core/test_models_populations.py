@@ -20,14 +20,24 @@ from tests.core.population_samples import (
 
 # (model name, parameters, density written from its definition, integration range)
 CASES = [
-    ("power_law", {"exponent": 0.6, "max_probability": 0.02}, power_law_density(0.6, 0.0, 0.02), (1e-35, 0.02)),
+    (
+        "power_law",
+        {"exponent": 0.6, "max_probability": 0.02},
+        power_law_density(0.6, 0.0, 0.02),
+        (1e-35, 0.02),
+    ),
     (
         "bounded_power_law",
         {"exponent": 0.7, "min_probability": 1e-6, "max_probability": 0.02},
         power_law_density(0.7, 1e-6, 0.02),
         (1e-6, 0.02),
     ),
-    ("sichel", {"rare_cutoff": 0.02, "frequent_scale": 0.01, "shape": -0.6}, gigp_density(0.02, 0.01, -0.6), (1e-26, 2.0)),
+    (
+        "sichel",
+        {"rare_cutoff": 0.02, "frequent_scale": 0.01, "shape": -0.6},
+        gigp_density(0.02, 0.01, -0.6),
+        (1e-26, 2.0),
+    ),
 ]
 SIZES = [10.0, 1e3, 1e5, 1e7, 1e9]
 
@@ -74,10 +84,12 @@ def test_zipf_mandelbrot_grows_without_bound_and_finite_model_saturates():
     zm, fzm = MODELS["power_law"], MODELS["bounded_power_law"]
     a, A, B = 0.7, 1e-6, 0.02
     C = (1 - a) / (B ** (1 - a) - A ** (1 - a))
-    assert fzm.expected_types(1e12, {"exponent": a, "min_probability": A, "max_probability": B}) == pytest.approx(
-        C * (A**-a - B**-a) / a, rel=1e-12
+    assert fzm.expected_types(
+        1e12, {"exponent": a, "min_probability": A, "max_probability": B}
+    ) == pytest.approx(C * (A**-a - B**-a) / a, rel=1e-12)
+    ratio = zm.expected_types(1e12, {"exponent": a, "max_probability": B}) / zm.expected_types(
+        1e11, {"exponent": a, "max_probability": B}
     )
-    ratio = zm.expected_types(1e12, {"exponent": a, "max_probability": B}) / zm.expected_types(1e11, {"exponent": a, "max_probability": B})
     assert ratio == pytest.approx(10**a, rel=1e-3)
 
 

@@ -70,7 +70,11 @@ class FiniteZipfMandelbrot(VocabularyModel):
 
     def from_unconstrained(self, theta: np.ndarray) -> Params:
         B = math.exp(theta[1])
-        return {"exponent": float(expit(theta[0])), "min_probability": B * float(expit(theta[2])), "max_probability": B}
+        return {
+            "exponent": float(expit(theta[0])),
+            "min_probability": B * float(expit(theta[2])),
+            "max_probability": B,
+        }
 
     def initial_guesses(self, spectrum: Spectrum) -> list[Params]:
         """a and B as for Zipf-Mandelbrot; A from a population of 2, 5 or 20 times the observed types,

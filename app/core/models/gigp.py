@@ -85,5 +85,6 @@ class GIGP(VocabularyModel):
         g = float(np.clip(2 * v2 / v1 - 1, -0.95, -0.05))
         c = (v1 * N**g) ** (-1 / (1 + g))
         return [
-            {"rare_cutoff": 2 * np.sqrt(q / (N * c)), "frequent_scale": c, "shape": g} for q in (0.01, 0.1, 1.0)
+            {"rare_cutoff": 2 * np.sqrt(q / (N * c)), "frequent_scale": c, "shape": g}
+            for q in (0.01, 0.1, 1.0)
         ]

@@ -134,7 +134,9 @@ class PerfectZipf(VocabularyModel):
     bounds = {"zipf_size": (0.0, np.inf), "zipf_types": (0.0, np.inf)}  # used by the minimum chi-square
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
-        return as_output(params["zipf_types"] * growth_factor(np.asarray(n, dtype=float) / params["zipf_size"]), n)
+        return as_output(
+            params["zipf_types"] * growth_factor(np.asarray(n, dtype=float) / params["zipf_size"]), n
+        )
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
         n_arr, m_arr = np.broadcast_arrays(np.asarray(n, dtype=float), np.asarray(m, dtype=float))

@@ -84,7 +84,9 @@ class ZipfMandelbrot(VocabularyModel):
 
     name = "power_law"
     title = "power law (Zipf-Mandelbrot)"
-    formula = "g(pi) = C pi^(-exponent-1) for 0 < pi <= max_probability; E[V_m(n)] = C n^a gamma(m - a, n B) / m!"
+    formula = (
+        "g(pi) = C pi^(-exponent-1) for 0 < pi <= max_probability; E[V_m(n)] = C n^a gamma(m - a, n B) / m!"
+    )
     parameter_names = ("exponent", "max_probability")
     parameter_meanings = {
         "exponent": "a, 0 < a < 1: how fast the number of types grows as probabilities fall (larger = more rare types)",
