@@ -141,8 +141,9 @@ def band(
     ]
 
 
-def extrapolation_shading(start: float, end: float) -> dict[str, Any]:
-    """Layout pieces that shade the x range [start, end] and label it "extrapolated"."""
+def extrapolation_shading(start: float, end: float, log_x: bool = False) -> dict[str, Any]:
+    """Layout pieces that shade the x range [start, end] and label it "extrapolated" at its start (plotly.js
+    places annotations on a log axis by log10 of the position, shapes by the position)."""
     return {
         "shapes": [
             {
@@ -160,13 +161,13 @@ def extrapolation_shading(start: float, end: float) -> dict[str, Any]:
         ],
         "annotations": [
             {
-                "x": 1,
-                "xref": "paper",
-                "xanchor": "right",
+                "x": math.log10(start) if log_x else start,
+                "xref": "x",
+                "xanchor": "left",
                 "y": 1,
                 "yref": "paper",
                 "yanchor": "top",
-                "text": "extrapolated",
+                "text": " extrapolated →",
                 "showarrow": False,
                 "font": {"color": "#5b6675"},
             }
@@ -229,12 +230,14 @@ def spectrum_bars(
                 "<extra></extra>",
             )
         )
-    title = "V_m: types occurring m times"
+    title = "types (V_m)"
     return figure(
         [bars, *lines],
         "m (occurrences per type)",
         title,
-        xaxis=axis("m (occurrences per type)", dtick=1),
+        xaxis=axis(
+            "m (occurrences per type)", tickvals=[1, 2, 3, 4, 5, 10, 15, 20], range=[0.4, k_max + 0.6]
+        ),
         yaxis=axis(title, log=True),
         **views_control(
             {
@@ -328,9 +331,9 @@ def growth_lines(
     )
     layout: dict[str, Any] = {}
     horizon = max((max(mx) for mx, _ in (models or {}).values()), default=corpus_tokens or 1)
-    if models and corpus_tokens and horizon > corpus_tokens:
-        layout = extrapolation_shading(corpus_tokens, horizon)
     log_x = bool(corpus_tokens and models and horizon > 50 * corpus_tokens)
+    if models and corpus_tokens and horizon > corpus_tokens:
+        layout = extrapolation_shading(corpus_tokens, horizon, log_x)
     if marker:
         x, label = marker
         layout.setdefault("shapes", []).append(vertical_line(x, "#CC79A7", 2))
