@@ -158,18 +158,19 @@ def list_command(data_dir: DataDir = None) -> None:
 def export(
     corpus_id: Annotated[int, typer.Argument(help="Corpus id (see 'list').")], data_dir: DataDir = None
 ) -> None:
-    """Print the frequency spectrum of a corpus as TSV (m, V_m)."""
+    """Print the frequency spectrum of a corpus as TSV: a commented header (corpus, profile, tokens, types,
+    version), then the columns occurrences and types."""
     from app.services.export import spectrum_tsv
     from app.store.corpora import CorpusNotFoundError, get_corpus, spectrum_pairs
     from app.store.db import make_engine
 
     engine = make_engine(_settings(data_dir).resolved_database_url)
     try:
-        get_corpus(engine, corpus_id)
+        corpus = get_corpus(engine, corpus_id)
     except CorpusNotFoundError as exc:
         typer.echo(f"error: {exc}", err=True)
         raise typer.Exit(code=2) from exc
-    sys.stdout.write(spectrum_tsv(spectrum_pairs(engine, corpus_id)))
+    sys.stdout.write(spectrum_tsv(spectrum_pairs(engine, corpus_id), corpus))
 
 
 # ------------------------------------------------------------------------------------------ lab members
