@@ -54,7 +54,8 @@
       group.addEventListener("change", function (event) {
         var views = el && el.layout && el.layout.meta && el.layout.meta.views;
         if (window.Plotly && views && views[event.target.value]) {
-          Plotly.relayout(el, views[event.target.value]);
+          // a copy: plotly.js must not be handed an object that lives inside its own layout
+          Plotly.relayout(el, JSON.parse(JSON.stringify(views[event.target.value])));
         }
       });
     });

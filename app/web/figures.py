@@ -108,12 +108,18 @@ def _unit(title: str) -> str:
     return title.rsplit("(", 1)[1].rstrip(")") if title.endswith(")") else title
 
 
+def finite(values) -> list:
+    """Values for a figure's JSON: infinite or undefined ones (an unbounded band edge) become gaps (None);
+    JSON has no Infinity, and the browser would refuse the whole figure."""
+    return [v if v is None or math.isfinite(v) else None for v in values]
+
+
 def line(x, y, name: str, colour_hex: str, dashed: bool = False, **extra: Any) -> dict[str, Any]:
     return {
         "type": "scatter",
         "mode": "lines",
-        "x": list(x),
-        "y": list(y),
+        "x": finite(x),
+        "y": finite(y),
         "name": name,
         "line": {"color": colour_hex, "width": 2, "dash": "dash" if dashed else "solid"},
     } | extra
@@ -136,8 +142,8 @@ def band(
         "name": name,
     }
     return [
-        edge | {"x": x, "y": list(low)},
-        edge | {"x": x, "y": list(high), "fill": "tonexty", "fillcolor": translucent(colour_hex, alpha)},
+        edge | {"x": x, "y": finite(low)},
+        edge | {"x": x, "y": finite(high), "fill": "tonexty", "fillcolor": translucent(colour_hex, alpha)},
     ]
 
 
@@ -244,9 +250,18 @@ def spectrum_bars(
                 "log": {
                     "yaxis.type": "log",
                     "yaxis.autorange": True,
+                    "yaxis.dtick": 1,
+                    "yaxis.minor.ticks": "outside",
                     "yaxis.title.text": f"{title} (log scale)",
                 },
-                "linear": {"yaxis.type": "linear", "yaxis.autorange": True, "yaxis.title.text": title},
+                # a linear axis ticked every 1 would draw thousands of ticks: back to automatic ticks
+                "linear": {
+                    "yaxis.type": "linear",
+                    "yaxis.autorange": True,
+                    "yaxis.dtick": None,
+                    "yaxis.minor.ticks": "",
+                    "yaxis.title.text": title,
+                },
             },
             "log",
         ),
