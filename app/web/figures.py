@@ -89,7 +89,7 @@ def figure(
         "margin": {"l": 70, "r": 20, "t": 20, "b": 80},
         "paper_bgcolor": "white",
         "plot_bgcolor": "white",
-        "legend": {"orientation": "h", "yanchor": "top", "y": -0.22, "x": 0, "font": {"size": 12}},
+        "legend": {"orientation": "h", "yanchor": "top", "y": -0.3, "x": 0, "font": {"size": 12}},
         "hovermode": "closest",
         "hoverlabel": {"namelength": -1},
         "xaxis": axis(x_title, log_x),
@@ -167,13 +167,14 @@ def extrapolation_shading(start: float, end: float, log_x: bool = False) -> dict
         ],
         "annotations": [
             {
-                "x": math.log10(start) if log_x else start,
+                # in the middle of the shaded range: hidden with it while the plot shows the observed range only
+                "x": (math.log10(start) + math.log10(end)) / 2 if log_x else (start + end) / 2,
                 "xref": "x",
-                "xanchor": "left",
+                "xanchor": "center",
                 "y": 1,
                 "yref": "paper",
                 "yanchor": "top",
-                "text": " extrapolated →",
+                "text": "extrapolated",
                 "showarrow": False,
                 "font": {"color": "#5b6675"},
             }
