@@ -71,6 +71,16 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.include_router(library.router)
     app.include_router(security.router)
 
+    def typed_back(request: Request) -> dict:
+        """What the error page offers: the values that were sent (shown again) and the page the visitor came
+        from (same site only), so that nothing typed is lost."""
+        referer = request.headers.get("referer", "")
+        same_site = referer.startswith(str(request.base_url)) and referer != str(request.url)
+        return {
+            "typed": [(k, v[:200]) for k, v in request.query_params.multi_items() if v.strip()][:30],
+            "back_url": referer if same_site else None,
+        }
+
     def wants_json(request: Request) -> bool:
         return request.url.path.startswith(("/api", "/static", "/docs", "/openapi"))
 
@@ -91,6 +101,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             heading="Cannot use this input",
             detail=f"Check the address or the form: {problems}.",
             json_url=None,
+            **typed_back(request),
         )
 
     @app.exception_handler(StarletteHTTPException)
@@ -107,6 +118,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             heading=heading,
             detail=exc.detail,
             json_url=None,
+            **typed_back(request),
         )
 
     return app
