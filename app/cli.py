@@ -248,7 +248,8 @@ def export(
         Path | None, typer.Option("--output", "-o", help="Write to this file instead of standard output.")
     ] = None,
 ) -> None:
-    """Print the frequency spectrum of a corpus as TSV (m, V_m), or with --bundle the corpus bundle."""
+    """Print the frequency spectrum of a corpus as TSV: a commented header (corpus, profile, tokens, types,
+    version), then the columns occurrences and types; with --bundle, the whole corpus as a bundle."""
     from app.services.exchange import export_bundle
     from app.services.export import spectrum_tsv
     from app.store.corpora import CorpusNotFoundError, get_corpus, spectrum_pairs
@@ -256,14 +257,14 @@ def export(
 
     engine = make_engine(_settings(data_dir).resolved_database_url)
     try:
-        get_corpus(engine, corpus_id)
+        corpus = get_corpus(engine, corpus_id)
     except CorpusNotFoundError as exc:
         typer.echo(f"error: {exc}", err=True)
         raise typer.Exit(code=2) from exc
     data = (
         export_bundle(engine, corpus_id)
         if bundle
-        else spectrum_tsv(spectrum_pairs(engine, corpus_id)).encode("utf-8")
+        else spectrum_tsv(spectrum_pairs(engine, corpus_id), corpus).encode("utf-8")
     )
     if output is not None:
         output.write_bytes(data)

@@ -4,15 +4,14 @@ from __future__ import annotations
 
 import logging
 from contextlib import asynccontextmanager
-from pathlib import Path
 
-import plotly
 from fastapi import Depends, FastAPI, Request
 from fastapi.exception_handlers import http_exception_handler, request_validation_exception_handler
 from fastapi.exceptions import RequestValidationError
-from fastapi.responses import FileResponse
+from fastapi.responses import Response
 from fastapi.staticfiles import StaticFiles
 from starlette.exceptions import HTTPException as StarletteHTTPException
+from starlette.middleware.gzip import GZipMiddleware
 from swagger_ui_bundle import swagger_ui_path
 
 from app.config import PROGRAM_VERSION, STATIC_DIR, Settings, get_settings, private_dir
@@ -21,12 +20,11 @@ from app.services import tasks
 from app.services.jobs import Dispatcher
 from app.services.worker import TaskWorker
 from app.store.db import make_engine
-from app.web import api, compare, pages, security
+from app.web import api, assets, compare, library, pages, security
 from app.web.caching import EntityTagMiddleware
 from app.web.jsonsafe import FiniteJSONResponse
 from app.web.limits import BodyLimitMiddleware, HeadMiddleware
 
-PLOTLY_JS = Path(plotly.__file__).parent / "package_data" / "plotly.min.js"
 log = logging.getLogger("lexigrowth")
 
 
@@ -78,18 +76,35 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_middleware(security.SecurityMiddleware, guard=app.state.guard)
     app.add_middleware(HeadMiddleware)
 
-    @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
-    def plotly_js() -> FileResponse:
-        return FileResponse(
-            PLOTLY_JS, media_type="text/javascript", headers={"Cache-Control": "max-age=86400"}
-        )
+    # Responses of 1 kB or more are gzip-compressed when the browser accepts it (plotly.js is compressed once).
+    app.add_middleware(GZipMiddleware, minimum_size=1000)
 
     app.mount(security.SWAGGER_ASSETS, StaticFiles(directory=swagger_ui_path), name="swagger-ui")
-    app.mount("/static", StaticFiles(directory=STATIC_DIR), name="static")
+
+    @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
+    def plotly_js(request: Request) -> Response:
+        return assets.serve(assets.plotly_assets()[0], request)
+
+    @app.get("/static/vendor/plotly.css", include_in_schema=False)
+    def plotly_css(request: Request) -> Response:
+        return assets.serve(assets.plotly_assets()[1], request)
+
+    app.mount("/static", assets.CachedStaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
     app.include_router(pages.router)
     app.include_router(compare.router)
+    app.include_router(library.router)
     app.include_router(security.router)
+
+    def typed_back(request: Request) -> dict:
+        """What the error page offers: the values that were sent (shown again) and the page the visitor came
+        from (same site only), so that nothing typed is lost."""
+        referer = request.headers.get("referer", "")
+        same_site = referer.startswith(str(request.base_url)) and referer != str(request.url)
+        return {
+            "typed": [(k, v[:200]) for k, v in request.query_params.multi_items() if v.strip()][:30],
+            "back_url": referer if same_site else None,
+        }
 
     def wants_json(request: Request) -> bool:
         return request.url.path.startswith(("/api", "/static", "/docs", "/openapi"))
@@ -111,6 +126,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             heading="Cannot use this input",
             detail=f"Check the address or the form: {problems}.",
             json_url=None,
+            **typed_back(request),
         )
 
     @app.exception_handler(StarletteHTTPException)
@@ -127,6 +143,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
             heading=heading,
             detail=exc.detail,
             json_url=None,
+            **typed_back(request),
         )
 
     return app

@@ -47,9 +47,34 @@
     });
   }
 
+  // A plot's named views (layout.meta.views, e.g. log/linear, observed range/extrapolation) chosen by radios.
+  function viewControls(root) {
+    (root || document).querySelectorAll(".plot-views[data-plot]").forEach(function (group) {
+      var el = document.getElementById(group.dataset.plot);
+      group.addEventListener("change", function (event) {
+        var views = el && el.layout && el.layout.meta && el.layout.meta.views;
+        if (window.Plotly && views && views[event.target.value]) {
+          // a copy: plotly.js must not be handed an object that lives inside its own layout
+          Plotly.relayout(el, JSON.parse(JSON.stringify(views[event.target.value])));
+        }
+      });
+    });
+  }
+
+  // Tables wider than their box: show the "scroll sideways" cue only when they really overflow.
+  function scrollCues() {
+    document.querySelectorAll(".scroll-box").forEach(function (box) {
+      var inner = box.querySelector(".scroll");
+      box.classList.toggle("overflowing", !!inner && inner.scrollWidth > inner.clientWidth + 1);
+    });
+  }
+
   window.Lexigrowth = { renderFigures: renderFigures };
   document.addEventListener("DOMContentLoaded", function () {
     renderFigures(document);
+    viewControls(document);
+    scrollCues();
+    window.addEventListener("resize", scrollCues);
     document.querySelectorAll("table.sortable").forEach(makeSortable);
   });
 })();

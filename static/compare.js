@@ -49,8 +49,6 @@
   document.addEventListener("DOMContentLoaded", function () {
     var form = document.getElementById("compare-form");
     if (form) { librarySelection(form); }
-    var filter = document.getElementById("label-filter");
-    if (filter) { filter.addEventListener("change", function () { filter.form.submit(); }); }
     var copy = document.getElementById("copy-link");
     if (copy) { copyLink(copy); }
     var radios = document.querySelectorAll("input[name=growth-scale]");

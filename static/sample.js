@@ -17,11 +17,13 @@
         out.textContent = "Sample " + draws + ": " + s.types.toLocaleString() + " types observed, " +
           Math.round(s.expected_types).toLocaleString() + " expected for " + Number(s.tokens).toLocaleString() + " tokens.";
         Plotly.react("sample-plot", [
-          { type: "bar", x: ks, y: s.observed, name: "this sample (observed)", marker: { color: "#9fb3c8" } },
-          { type: "scatter", mode: "lines+markers", x: ks, y: s.expected, name: "prediction (exact)", line: { color: "#D55E00", dash: "dash" } }
+          { type: "bar", x: ks, y: s.observed, name: "this sample (observed)", marker: { color: "#b9c6d4" },
+            hovertemplate: "<b>this sample</b><br>%{y:,} types occur exactly %{x} times<extra></extra>" },
+          { type: "scatter", mode: "lines+markers", x: ks, y: s.expected, name: "prediction (exact)", line: { color: "#000000", dash: "dash" },
+            hovertemplate: "<b>exact prediction</b><br>%{y:,.1f} types expected to occur %{x} times<extra></extra>" }
         ], {
-          margin: { l: 60, r: 10, t: 10, b: 50 }, legend: { orientation: "h", y: -0.25 },
-          xaxis: { title: { text: "m (occurrences per type)" }, dtick: 1 }, yaxis: { title: { text: "V_m (types)" }, separatethousands: true }
+          margin: { l: 60, r: 10, t: 10, b: 50 }, legend: { orientation: "h", yanchor: "top", y: -0.25 }, hoverlabel: { namelength: -1 },
+          xaxis: { title: { text: "m (occurrences per type)" }, dtick: 1 }, yaxis: { title: { text: "types (V_m)" }, separatethousands: true }
         }, { displaylogo: false, responsive: true });
       });
   });

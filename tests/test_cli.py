@@ -27,8 +27,11 @@ def test_ingest_list_export(tmp_path):
     assert listing.exit_code == 0 and "Speech" in listing.output
 
     exported = runner.invoke(app, ["export", "1", *data])
-    lines = exported.output.strip().splitlines()
-    assert lines[0] == "m\tV_m"
+    comments = [line for line in exported.output.splitlines() if line.startswith("#")]
+    assert "# corpus: Speech (id 1)" in comments and "# tokenization profile: default" in comments
+    assert f"# tokens: {sum(counts.values())}" in comments
+    lines = [line for line in exported.output.strip().splitlines() if not line.startswith("#")]
+    assert lines[0] == "occurrences\ttypes"
     assert [tuple(map(int, line.split("\t"))) for line in lines[1:]] == sorted(
         Counter(counts.values()).items()
     )

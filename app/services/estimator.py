@@ -52,7 +52,7 @@ def estimate_from_totals(
         "curve": {"tokens": curve.tolist(), "types": np.asarray(fitted.types(curve), dtype=float).tolist()},
         "model": fitted.model.name,
         "params": {k: float(v) for k, v in fitted.params.items()},
-        "zipf_size": float(fitted.params["Z"]),
+        "zipf_size": float(fitted.params["zipf_size"]),
         "assumption": ASSUMPTION_WITH_HAPAXES
         if isinstance(fitted.model, PerfectZipf)
         else ASSUMPTION_TOTALS_ONLY,

@@ -6,6 +6,9 @@ import csv
 import io
 from collections.abc import Iterable, Sequence
 
+from app.config import PROGRAM_VERSION
+from app.store.tables import Corpus
+
 FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
 
 
@@ -24,6 +27,25 @@ def table_text(header: Sequence[str], rows: Iterable[Sequence[object]], delimite
     return out.getvalue()
 
 
-def spectrum_tsv(pairs: Iterable[tuple[int, int]]) -> str:
-    """The frequency spectrum as TSV with columns m, V_m."""
-    return table_text(["m", "V_m"], pairs, delimiter="\t")
+SPECTRUM_COLUMNS = ("occurrences", "types")
+
+
+def _one_line(text: object) -> str:
+    return " ".join(str(text).split())
+
+
+def spectrum_tsv(pairs: Iterable[tuple[int, int]], corpus: Corpus) -> str:
+    """The frequency spectrum in our own layout: a header of '#' comment lines naming the corpus, its
+    tokenization profile, tokens, types and the program version, then two named columns: ``occurrences``
+    (how often a type occurs, m) and ``types`` (how many types occur exactly that often, V_m), m ascending."""
+    header = [
+        "# Lexigrowth frequency spectrum",
+        f"# corpus: {_one_line(corpus.name)} (id {corpus.id})",
+        f"# tokenization profile: {_one_line(corpus.profile_name)}",
+        f"# tokens: {corpus.tokens}",
+        f"# types: {corpus.types}",
+        f"# counted by Lexigrowth version: {_one_line(corpus.program_version)}",
+        f"# exported by Lexigrowth version: {PROGRAM_VERSION}",
+        "# columns: occurrences = times a type occurs; types = number of types that occur exactly that often",
+    ]
+    return "\n".join(header) + "\n" + table_text(SPECTRUM_COLUMNS, pairs, delimiter="\t")

@@ -21,6 +21,7 @@ from app.core.backtest import Ensemble, backtest
 from app.core.interpolation import expected_spectrum, growth_band, types_band
 from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
 from app.core.models.base import RANGE_LEVEL, RANGE_METHOD
+from app.core.models.goodness import spectrum_misfit
 from app.core.spectrum import Spectrum
 from app.store import corpora as store
 
@@ -29,7 +30,26 @@ LEGOMENA_SHOWN = 20
 SAMPLE = "sample"
 RECOMMENDED = "recommended"
 MODEL_NAMES = (SAMPLE, *MODELS, RECOMMENDED)
+PLAN_MODELS = (RECOMMENDED, *MODELS)
 MAX_PREDICTION_TOKENS = 10**12
+RESULT_SCHEMA = 2
+"""Version of the layout of cached results (2: descriptive parameter names). Cached payloads are keyed by
+program version and this schema, so a payload written with other parameter names is never read back."""
+CACHE_KEY = f"{PROGRAM_VERSION}+schema{RESULT_SCHEMA}"
+SMALL_CORPUS_TOKENS = 1_000
+"""Below this many tokens a spectrum holds too few repeated types for any extrapolation to be trusted (a
+rule of thumb of ours: backtests on texts of a few hundred tokens miss by tens of per cent)."""
+
+
+def small_corpus_warning(tokens: int) -> str | None:
+    """The warning shown before any extrapolation of a text under SMALL_CORPUS_TOKENS tokens (else None)."""
+    if tokens >= SMALL_CORPUS_TOKENS:
+        return None
+    return (
+        f"This text has only {tokens:,} tokens (fewer than {SMALL_CORPUS_TOKENS:,}): its spectrum holds too "
+        "few repeated words for models to be trusted. Treat every extrapolation beyond its own size as a rough "
+        "guess; the exact interpolation up to its size still holds."
+    )
 
 
 class PredictionError(ValueError):
@@ -42,11 +62,12 @@ def load_spectrum(engine: Engine, corpus_id: int) -> Spectrum:
 
 
 def cached(engine: Engine, corpus_id: int, kind: str, compute) -> dict:
-    """Return the cached result of ``kind`` for this program version, computing and storing it if absent."""
-    payload = store.cached_result(engine, corpus_id, kind, PROGRAM_VERSION)
+    """Return the cached result of ``kind`` for this program version and result schema (``CACHE_KEY``),
+    computing and storing it if absent."""
+    payload = store.cached_result(engine, corpus_id, kind, CACHE_KEY)
     if payload is None:
         payload = compute()
-        store.store_cached_result(engine, corpus_id, kind, PROGRAM_VERSION, payload)
+        store.store_cached_result(engine, corpus_id, kind, CACHE_KEY, payload)
     return payload
 
 
@@ -171,6 +192,62 @@ class LoadedModels:
     spectrum: Spectrum
     predictors: dict[str, Predictor]
     failures: dict[str, str]
+
+
+def model_titles() -> dict[str, str]:
+    """Every model id the API knows, with its name in words."""
+    return (
+        {SAMPLE: "exact random-sample interpolation"}
+        | {name: model.title for name, model in MODELS.items()}
+        | {RECOMMENDED: "recommended model"}
+    )
+
+
+def model_catalogue() -> list[dict[str, Any]]:
+    """GET /api/models: every model id with its name in words, formula and parameters."""
+    out = [
+        {
+            "id": SAMPLE,
+            "name": "exact random-sample interpolation",
+            "formula": "E[V(n)] = sum_m V_m (1 - C(N - m, n) / C(N, n)) for n <= N (hypergeometric)",
+            "parameters": [],
+            "extrapolates": False,
+        }
+    ]
+    for name, model in MODELS.items():
+        out.append(
+            {
+                "id": name,
+                "name": model.title,
+                "formula": model.formula,
+                "parameters": [
+                    {"name": p, "meaning": model.parameter_meanings[p]} for p in model.parameter_names
+                ],
+                "finite_population": model.finite_population,
+                "extrapolates": True,
+            }
+        )
+    out.append(
+        {
+            "id": RECOMMENDED,
+            "name": "recommended model",
+            "formula": "sample up to N; beyond N a weighted mean of the fitted models, weights from backtests",
+            "parameters": [],
+            "extrapolates": True,
+        }
+    )
+    return out
+
+
+def misfits(loaded: LoadedModels, m_max: int = 15) -> dict[str, float]:
+    """Each fitted model's spectrum misfit at the corpus size (share of types in another frequency class
+    than observed, m = 1..m_max): an effect size to read beside the goodness-of-fit p-value."""
+    observed = loaded.spectrum.dense(m_max)
+    return {
+        name: spectrum_misfit(observed, predictor.spectrum(loaded.tokens, m_max), loaded.spectrum.types)
+        for name, predictor in loaded.predictors.items()
+        if name != RECOMMENDED
+    }
 
 
 def load_models(engine: Engine, corpus_id: int) -> LoadedModels:
@@ -316,8 +393,8 @@ def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = R
     """The corpus size at which ``model`` reaches ``target``, with the range given by every other fitted
     model and by the recommended model's backtest band (types targets)."""
     corpus = store.get_corpus(engine, corpus_id)
-    if model not in (*MODELS, RECOMMENDED):
-        raise PredictionError(f"unknown model {model!r}; known: {', '.join((*MODELS, RECOMMENDED))}")
+    if model not in PLAN_MODELS:
+        raise PredictionError(f"unknown model {model!r}; known: {', '.join(PLAN_MODELS)}")
     spectrum = load_spectrum(engine, corpus_id)
     fitted_models = predictors(engine, corpus_id)
     if model not in fitted_models:

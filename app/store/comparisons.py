@@ -75,6 +75,13 @@ def creator_of(engine: Engine, slug: str) -> int | None:
     return get_comparison(engine, slug).creator_id
 
 
+def list_comparisons(engine: Engine) -> list[SavedComparison]:
+    """Every saved comparison, newest first."""
+    with Session(engine) as session:
+        rows = session.execute(select(SavedComparison).order_by(SavedComparison.created_at.desc())).scalars()
+        return list(rows)
+
+
 def set_public(engine: Engine, slug: str, public: bool) -> None:
     with transaction(engine) as session:
         row = session.get(SavedComparison, slug)
@@ -84,6 +91,7 @@ def set_public(engine: Engine, slug: str, public: bool) -> None:
 
 
 def delete_comparison(engine: Engine, slug: str) -> None:
+    """Delete the comparison saved at ``slug`` (ComparisonNotFoundError when there is none)."""
     with transaction(engine) as session:
         if session.execute(delete(SavedComparison).where(SavedComparison.slug == slug)).rowcount != 1:
             raise ComparisonNotFoundError(slug)

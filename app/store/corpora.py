@@ -317,3 +317,18 @@ def store_cached_result(
                 payload_json=json.dumps(payload),
             )
         )
+
+
+def update_corpus(
+    engine: Engine, corpus_id: int, name: str | None = None, labels: dict[str, str] | None = None
+) -> None:
+    """Set a corpus's name and/or labels (None leaves a field as it is)."""
+    with transaction(engine) as session:
+        corpus = session.get(Corpus, corpus_id)
+        if corpus is None:
+            raise CorpusNotFoundError(corpus_id)
+        if name is not None:
+            corpus.name = name
+        if labels is not None:
+            corpus.labels_json = json.dumps(labels, ensure_ascii=False)
+        session.add(corpus)

@@ -19,6 +19,7 @@ from app.store import corpora as store
 from app.store import tasks as queue
 from app.web import downloads
 from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
+from app.web.forms import optional
 from app.web.jsonsafe import FiniteJSONResponse
 from app.web.uploads import parse_profile, plain_file, receive
 
@@ -112,7 +113,7 @@ def upload_corpus(
         task = queue.get(engine, task.id)
     if task.state == queue.FAILED:
         raise HTTPException(status_code=422, detail=task.message)
-    return store.summary(store.get_corpus(engine, task.corpus_id))
+    return with_warnings(store.summary(store.get_corpus(engine, task.corpus_id)))
 
 
 @router.get("/jobs")
@@ -133,12 +134,20 @@ def job_status(
     return job
 
 
+def with_warnings(summary: dict) -> dict:
+    """A corpus summary with ``warnings``: sentences to show before any extrapolation (tiny texts)."""
+    warning = modelling.small_corpus_warning(summary["tokens"])
+    return summary | {"warnings": [warning] if warning else []}
+
+
 @router.get("/corpora/{corpus_id}")
 def corpus_summary(
     corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]
 ) -> dict:
-    """The corpus's totals and labels, and whether its models are ready (``models.status``)."""
-    return store.summary(corpus_or_404(engine, corpus_id)) | {"models": jobs.models_status(corpus_id)}
+    """The corpus summary, whether its models are ready (``models.status``), and ``warnings`` to show
+    before any extrapolation (e.g. a text under 1,000 tokens)."""
+    summary = with_warnings(store.summary(corpus_or_404(engine, corpus_id)))
+    return summary | {"models": jobs.models_status(corpus_id)}
 
 
 @router.delete("/corpora/{corpus_id}", status_code=204)
@@ -248,6 +257,13 @@ def predict(
     return _modelling_call(modelling.predict, engine, corpus_id, tokens, model)
 
 
+@router.get("/models")
+def model_catalogue() -> list[dict]:
+    """Every model id the prediction and planning endpoints accept, with its name in words, its formula
+    and its parameters (names as in ``/corpora/{id}/models``, with their meaning)."""
+    return modelling.model_catalogue()
+
+
 @router.get("/corpora/{corpus_id}/models")
 def models(corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]):
     """Every fitted model: parameters, goodness of fit, backtest errors, and the recommended ensemble.
@@ -299,13 +315,15 @@ def random_sample(
 class TotalsEstimate(BaseModel):
     tokens: int = Field(ge=1, le=10**12, description="tokens N of the text")
     types: int = Field(ge=1, le=10**12, description="types V of the text")
-    hapaxes: int | None = Field(default=None, ge=1, le=10**12, description="hapax legomena V_1, if known")
-    sizes: list[int] = Field(default_factory=list, max_length=50, description="sizes to predict at")
-    plan_types: float | None = Field(
-        default=None, gt=0, le=1e13, description="planning: tokens until this many types"
+    hapaxes: optional(int, ge=1, le=10**12) = Field(
+        default=None, description="hapax legomena V_1, if known (null or empty: not known)"
     )
-    plan_new_type_rate: float | None = Field(
-        default=None, gt=0, lt=1, description="planning: until this new-type rate"
+    sizes: list[int] = Field(default_factory=list, max_length=50, description="sizes to predict at")
+    plan_types: optional(float, gt=0, le=1e13) = Field(
+        default=None, description="planning: tokens until this many types (optional)"
+    )
+    plan_new_type_rate: optional(float, gt=0, lt=1) = Field(
+        default=None, description="planning: until this new-type rate (optional)"
     )
 
     @field_validator("sizes")
@@ -368,19 +386,20 @@ def planning_target(
 def plan(
     corpus_id: CorpusId,
     engine: EngineDep,
-    types: Annotated[float | None, Query(gt=0, le=1e13, description="target number of types V*")] = None,
+    types: Annotated[optional(float, gt=0, le=1e13), Query(description="target number of types V*")] = None,
     new_type_rate: Annotated[
-        float | None, Query(gt=0, lt=1, description="target chance that the next token is new")
+        optional(float, gt=0, lt=1), Query(description="target chance that the next token is new")
     ] = None,
     coverage: Annotated[
-        float | None, Query(gt=0, lt=1, description="target coverage 1 - new-type rate")
+        optional(float, gt=0, lt=1), Query(description="target coverage 1 - new-type rate")
     ] = None,
     share: Annotated[
-        float | None, Query(gt=0, lt=1, description="target share of the whole population")
+        optional(float, gt=0, lt=1), Query(description="target share of the whole population")
     ] = None,
     model: ModelName = modelling.RECOMMENDED,
 ) -> dict:
-    """How many tokens until the corpus reaches a vocabulary target, with the range over models."""
+    """How many tokens until the corpus reaches a vocabulary target, with the range over models. Give one
+    target; the others may be left out or sent empty (``coverage=``), as a browser form sends them."""
     corpus_or_404(engine, corpus_id)
     target = planning_target(types, new_type_rate, coverage, share)
     return _modelling_call(modelling.plan, engine, corpus_id, target, model)

@@ -39,10 +39,9 @@ def plotly_text(text: str) -> str:
     return html.escape(text, quote=False)
 
 
-def legend_name(corpus: dict[str, Any], max_label: int = 40) -> str:
-    """Corpus name followed by its short label values, e.g. "Draft 3 (Varga, letters)"."""
-    values = [v for v in corpus["labels"].values() if v and len(v) <= max_label]
-    return plotly_text(corpus["name"] + (f" ({', '.join(values)})" if values else ""))
+def legend_name(corpus: dict[str, Any]) -> str:
+    """The corpus name alone: its labels are shown once, in the table of corpora, not in every legend."""
+    return plotly_text(corpus["name"])
 
 
 @dataclass(frozen=True)
@@ -128,25 +127,41 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
     styles = _styles(snapshot)
     sizes = {c["id"]: c["tokens"] for c in snapshot["corpora"]}
     horizon = snapshot["settings"]["horizon"]
+    bands: list[dict[str, Any]] = []  # every band first, so that no fill covers another corpus's lines
     data: list[dict[str, Any]] = []
+    unit = "× corpus size" if normalised else "tokens"
     for curves in snapshot["growth"]:
         cid = curves["corpus_id"]
         style = styles[cid]
         scale = sizes[cid] if normalised else 1
         rnd, model, text = curves["random_order"], curves["model"], curves["text_order"]
         x_rnd = [n / scale for n in rnd["tokens"]]
-        data += _band(x_rnd, rnd["low"], rnd["high"], style, 0.16)
+        bands += _band(x_rnd, rnd["low"], rnd["high"], style, 0.12)
         dotted = {"color": style.colour, "width": 1.5, "dash": "dot"}
+        name = f"{style.legend}: random order"
         data.append(
             _quiet(
-                line(x_rnd, rnd["types"], f"{style.legend}: random order", style.colour, line=dotted), style
+                line(x_rnd, rnd["types"], name, style.colour, line=dotted, hovertemplate=_hover(name, unit)),
+                style,
             )
         )
         if model:
             x_model = [n / scale for n in model["tokens"]]
-            data += _band(x_model, model["low"], model["high"], style, 0.07)
+            bands += _band(x_model, model["low"], model["high"], style, 0.06)
             name = f"{style.legend}: recommended model"
-            data.append(_quiet(line(x_model, model["types"], name, style.colour, dashed=True), style))
+            data.append(
+                _quiet(
+                    line(
+                        x_model,
+                        model["types"],
+                        name,
+                        style.colour,
+                        dashed=True,
+                        hovertemplate=_hover(name, unit),
+                    ),
+                    style,
+                )
+            )
         data.append(
             line(
                 [n / scale for n in text["tokens"]],
@@ -155,8 +170,10 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
                 style.colour,
                 legendgroup=style.group,
                 meta={"role": "observed", "corpus_id": cid},
+                hovertemplate=_hover(f"{style.legend}: text order", unit),
             )
         )
+    data = bands + data
     smallest, largest = min(sizes.values()), max(sizes.values())
     pieces = []
     if normalised:
@@ -187,6 +204,11 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
     )
 
 
+def _hover(name: str, x_unit: str) -> str:
+    """A hover label with the whole trace name and both values with their units."""
+    return f"<b>{name}</b><br>%{{x:,}} {x_unit}: %{{y:,.0f}} types<extra></extra>"
+
+
 def _drawable(shares: list[float | None]) -> list[float | None]:
     """Shares on a log axis: zero and negligible ones (below MIN_SHARE) left out as gaps."""
     return [v if v is not None and v >= MIN_SHARE else None for v in shares]
@@ -200,32 +222,34 @@ def legomena_figure(snapshot: dict[str, Any]) -> dict[str, Any]:
     data = []
     for profile in snapshot["legomena"]["rows"]:
         style = styles[profile["corpus_id"]]
-        share = "%{y:.2%} of the types<extra></extra>"
-        if profile["observed"]:
+        share = "%{y:.2%} of the types occur exactly %{x} times<extra></extra>"
+        if profile["predicted"]:
             data.append(
                 line(
                     ks,
-                    _drawable(profile["observed"]),
+                    _drawable(profile["predicted"]),
                     style.legend,
                     style.colour,
                     mode="lines+markers",
                     legendgroup=style.group,
-                    meta={"role": "observed", "corpus_id": profile["corpus_id"]},
-                    hovertemplate=f"{style.legend}, observed V_%{{x}}/V: {share}",
+                    meta={"role": "size-matched", "corpus_id": profile["corpus_id"]},
+                    hovertemplate=f"<b>{style.legend}</b>, at the common size:<br>{share}",
                 )
             )
-        if profile["predicted"]:
+        if profile["observed"]:
             trace = line(
                 ks,
-                _drawable(profile["predicted"]),
-                f"{style.legend}: at the common size",
+                _drawable(profile["observed"]),
+                f"{style.legend}: at its own size",
                 style.colour,
-                dashed=True,
-                mode="lines+markers",
-                marker={"symbol": "circle-open", "size": 8},
-                hovertemplate=f"{style.legend}, expected at the common size V_%{{x}}/V: {share}",
+                mode="markers",
+                marker={"symbol": "circle-open", "size": 7},
+                meta={"role": "observed", "corpus_id": profile["corpus_id"]},
+                hovertemplate=f"<b>{style.legend}</b>, at its own size:<br>{share}",
             )
-            data.append(_quiet(trace, style))
+            data.append(
+                _quiet(trace, style) if profile["predicted"] else trace | {"legendgroup": style.group}
+            )
     return figure(
         data,
         "k (occurrences per type)",
@@ -316,10 +340,11 @@ def comparison_figures(snapshot: dict[str, Any]) -> list[ComparisonFigure]:
     size = snapshot["size_matched"]["tokens"]
     horizon = snapshot["settings"]["horizon"]
     growth_caption = (
-        "Solid: types seen when reading each text from the start (text order){against}. Dotted, with a band: "
-        "expected types of random samples of that size and their 95% range (exact hypergeometric). Dashed, with "
-        f"a lighter band: the recommended model beyond each corpus's own size, up to the horizon of {horizon:,} "
-        "tokens, with its backtest error band. Shaded background: extrapolated range."
+        "Solid: types seen when reading each text from the start (text order){against}. Dotted, with a band in "
+        "the same colour: expected types of random samples of that size and their 95% range (exact "
+        "hypergeometric). Dashed, with a lighter band: the recommended model beyond each corpus's own size, up "
+        f"to the horizon of {horizon:,} tokens, with its backtest error band. Shaded background: extrapolated "
+        "range. One colour per corpus; click a name in the legend to hide or show all its curves."
     )
     return [
         ComparisonFigure(
@@ -340,10 +365,10 @@ def comparison_figures(snapshot: dict[str, Any]) -> list[ComparisonFigure]:
             "legomena-plot",
             legomena_figure(snapshot),
             _legomena_title(snapshot, names),
-            "Solid: observed shares V_k / V of the types occurring exactly k times, at each corpus's own size. "
-            f"Dashed, open circles: shares expected at the common size of {size:,} tokens (exact interpolation; "
-            "the recommended model where the common size exceeds a corpus). Log scale; shares below 0.01% are "
-            "not drawn.",
+            f"Lines with dots: shares V_k / V of the types occurring exactly k times, expected at the common size "
+            f"of {size:,} tokens, where the corpora can be compared (exact interpolation; the recommended model "
+            "where the common size exceeds a corpus). Open circles without a line: the same shares observed at "
+            "each corpus's own size. One colour per corpus; log scale; shares below 0.01% are not drawn.",
             "legomena-profiles",
         ),
         ComparisonFigure(

@@ -55,13 +55,53 @@ def parse_sizes(text: str | None, tokens: int) -> list[int]:
     return sorted(sizes)
 
 
-def _backtest_table(report: dict) -> dict[str, dict[str, float | None]]:
-    """model -> {"random 10%": median signed error of V, ..., "first 10%": ...}."""
+def backtest_column(kind: str, label: str) -> tuple[str, str]:
+    """A backtest's column heading in words and its tooltip: ("from a random 10%", "Fitted on ...")."""
+    if kind == "random":
+        share = f"{float(label):.0%}"
+        return (
+            f"from a random {share}",
+            f"Fitted on random samples of {share} of the tokens, then asked for the types of the whole "
+            "corpus: median signed error of that prediction (+ = too many types).",
+        )
+    share = label.removeprefix("first ").strip()
+    return (
+        f"from the first {share}",
+        f"Fitted on the first {share} of the text as written, then asked for the types of the whole "
+        "corpus: signed error of that prediction (+ = too many types).",
+    )
+
+
+def _backtest_table(report: dict) -> tuple[dict[str, dict[str, float | None]], dict[str, str]]:
+    """model -> {column heading: signed error of V in %}, and each heading's tooltip."""
     table: dict[str, dict[str, float | None]] = {}
+    tips: dict[str, str] = {}
     for row in report["summary"]:
-        label = f"random {float(row['label']):.0%}" if row["kind"] == "random" else row["label"]
-        table.setdefault(row["model"], {})[label] = row["types_error_percent"]
-    return table
+        heading, tip = backtest_column(row["kind"], row["label"])
+        tips[heading] = tip
+        table.setdefault(row["model"], {})[heading] = row["types_error_percent"]
+    return table, tips
+
+
+def fit_note(tokens: int, rows: list[dict[str, Any]]) -> str:
+    """A plain sentence on what the goodness-of-fit p-values mean at this corpus size."""
+    p_values = [r["gof"]["p_value"] for r in rows if r["gof"].get("p_value") is not None]
+    if p_values and max(p_values) < 0.01 and tokens >= 10_000:
+        return (
+            f"At {tokens:,} tokens the test sees differences far too small to matter, so every p-value is tiny, "
+            "the recommended model's included: no formula describes a real text exactly. Read the misfit (the "
+            "share of types the model puts in another frequency class) and the backtest errors instead; a "
+            "misfit of a few per cent is a good fit."
+        )
+    if p_values and max(p_values) < 0.01:
+        return (
+            "Every p-value is small: the observed spectrum differs from each model beyond sampling noise. "
+            "Read the misfit and the backtest errors to judge by how much."
+        )
+    return (
+        "A p-value above 0.05 says the spectrum is consistent with the model at this size; the misfit says by "
+        "how much the expected spectrum differs, whatever the size."
+    )
 
 
 def model_section(
@@ -76,8 +116,9 @@ def model_section(
         return {"models_error": None, "models_pending": "queued"}
     except (ValueError, ArithmeticError) as exc:
         return {"models_error": str(exc)}
-    backtests = _backtest_table(report)
+    backtests, backtest_tips = _backtest_table(report)
     weights = report["recommended"]["weights"]
+    misfit = modelling.misfits(loaded)
     rows = [
         {
             "name": name,
@@ -86,13 +127,14 @@ def model_section(
             "gof": data["goodness_of_fit"],
             "backtests": backtests.get(name, {}),
             "weight": weights.get(name, {}).get("types"),
+            "misfit": misfit.get(name),
         }
         for name, data in report["fitted"].items()
     ]
     columns = list(dict.fromkeys(label for row in rows for label in row["backtests"]))
     curve_x = np.unique(np.geomspace(max(1, tokens // 100), horizon, CURVE_POINTS).astype(np.int64))
     curves = {
-        ("recommended (extrapolation)" if name == "recommended" else name): (
+        name: (
             curve_x.tolist(),
             np.asarray(p.types(curve_x.astype(float)), dtype=float).tolist(),
         )
@@ -125,6 +167,9 @@ def model_section(
         "models_pending": None,
         "model_rows": rows,
         "backtest_columns": columns,
+        "backtest_tips": backtest_tips,
+        "fit_note": fit_note(tokens, rows),
+        "model_titles": modelling.model_titles(),
         "failures": report["failures"],
         "recommended_band": report["recommended"]["band"],
         "curves": curves,
@@ -217,6 +262,7 @@ def corpus_context(
             "words_page": page,
             "words_pages": max(1, -(-total_words // WORDS_PER_PAGE)),
             "json_url": f"/api/corpora/{corpus_id}",
+            "small_warning": modelling.small_corpus_warning(tokens),
             "plan_target": target,
             "plan_model": plan_model,
             "plan_labels": PLAN_LABELS,

@@ -22,7 +22,9 @@ def attachment(text: str | bytes, filename: str, media_type: str) -> Response:
 
 
 def spectrum_tsv_response(corpus: Corpus, pairs: Iterable[tuple[int, int]]) -> Response:
-    return attachment(spectrum_tsv(pairs), f"{file_stem(corpus)}-spectrum.tsv", "text/tab-separated-values")
+    return attachment(
+        spectrum_tsv(pairs, corpus), f"{file_stem(corpus)}-spectrum.tsv", "text/tab-separated-values"
+    )
 
 
 def word_counts_csv_response(corpus: Corpus, rows: Iterable[tuple[str, int]]) -> Response:

@@ -2,15 +2,62 @@
 
 from __future__ import annotations
 
+import math
+from dataclasses import dataclass
 from typing import Any
 
-# Okabe & Ito (2008) colour-blind-safe palette.
-PALETTE = ["#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#F0E442", "#000000"]
+from app.services import modelling
+
+# Okabe & Ito (2008) colour-blind-safe palette for lines. Its yellow #F0E442 is too faint for a line on white:
+# the eighth colour is that yellow darkened until it reads as a line (fills may use the pale one).
+PALETTE = ["#0072B2", "#E69F00", "#009E73", "#D55E00", "#CC79A7", "#56B4E9", "#000000", "#7A6A00"]
+PALE_YELLOW = "#F0E442"
 FONT = {"family": "system-ui, -apple-system, Segoe UI, Roboto, sans-serif", "size": 13, "color": "#1d2733"}
+OBSERVED = "#33414f"  # observed data: dark slate, solid
+RANDOM_ORDER = "#7d8796"  # the random-order expectation: grey, dotted, with a grey band
+RECOMMENDED = "#000000"  # the recommended model: black, thick dashes
+MODEL_DASHES = ("dash", "longdash", "dashdot", "longdashdot")
 
 
 def colour(index: int) -> str:
     return PALETTE[index % len(PALETTE)]
+
+
+@dataclass(frozen=True)
+class ModelStyle:
+    """How one model is drawn in every figure of every page: its colour, dash pattern and names."""
+
+    colour: str
+    dash: str
+    legend: str
+    title: str
+
+
+def model_style(name: str) -> ModelStyle:
+    """One colour per model, everywhere: the model's place in the registry picks an Okabe-Ito colour (black is
+    kept for the recommended model); past the palette the dash pattern changes instead."""
+    titles = modelling.model_titles()
+    if name == modelling.RECOMMENDED:
+        return ModelStyle(RECOMMENDED, "dash", "recommended", titles[name])
+    lines = [c for c in PALETTE if c != RECOMMENDED]
+    index = list(modelling.MODELS).index(name)
+    title = titles[name]
+    return ModelStyle(
+        lines[index % len(lines)],
+        MODEL_DASHES[(index // len(lines)) % len(MODEL_DASHES)],
+        short(title),
+        title,
+    )
+
+
+def short(title: str) -> str:
+    """'power law (Zipf-Mandelbrot)' -> 'power law': legends keep the words, hovers the whole title."""
+    return title.split(" (")[0]
+
+
+def hover(x_unit: str, y_unit: str, y_format: str = ",.0f") -> str:
+    """A hover label naming the trace and both values with their units."""
+    return f"<b>%{{fullData.name}}</b><br>%{{x:,}} {x_unit}: %{{y:{y_format}}} {y_unit}<extra></extra>"
 
 
 def translucent(hex_colour: str, alpha: float = 0.18) -> str:
@@ -19,11 +66,14 @@ def translucent(hex_colour: str, alpha: float = 0.18) -> str:
 
 
 def axis(title: str, log: bool = False, **extra: Any) -> dict[str, Any]:
+    """An axis titled with its unit; a log axis is labelled as such and ticked at powers of ten only (no
+    stray '2' and '5' labels between them)."""
     spec = {
         "title": {"text": f"{title} (log scale)" if log else title},
         "type": "log" if log else "linear",
         "separatethousands": True,
-        "tickformat": "" if log else ",~r",
+        "tickformat": ",~r",
+        **({"dtick": 1, "minor": {"ticks": "outside", "ticklen": 3, "showgrid": False}} if log else {}),
         "gridcolor": "#e6e9ef",
         "zeroline": False,
     }
@@ -39,44 +89,67 @@ def figure(
         "margin": {"l": 70, "r": 20, "t": 20, "b": 80},
         "paper_bgcolor": "white",
         "plot_bgcolor": "white",
-        "legend": {"orientation": "h", "y": -0.28, "x": 0},
+        "legend": {"orientation": "h", "yanchor": "top", "y": -0.3, "x": 0, "font": {"size": 12}},
         "hovermode": "closest",
+        "hoverlabel": {"namelength": -1},
         "xaxis": axis(x_title, log_x),
         "yaxis": axis(y_title, log_y),
     }
+    units = (_unit(x_title), _unit(y_title))
+    data = [
+        t if "hovertemplate" in t or t.get("hoverinfo") == "skip" else t | {"hovertemplate": hover(*units)}
+        for t in data
+    ]
     return {"data": data, "layout": base | layout}
+
+
+def _unit(title: str) -> str:
+    """The unit of an axis title: 'frequency (tokens)' -> 'tokens', 'types' -> 'types'."""
+    return title.rsplit("(", 1)[1].rstrip(")") if title.endswith(")") else title
+
+
+def finite(values) -> list:
+    """Values for a figure's JSON: infinite or undefined ones (an unbounded band edge) become gaps (None);
+    JSON has no Infinity, and the browser would refuse the whole figure."""
+    return [v if v is None or math.isfinite(v) else None for v in values]
 
 
 def line(x, y, name: str, colour_hex: str, dashed: bool = False, **extra: Any) -> dict[str, Any]:
     return {
         "type": "scatter",
         "mode": "lines",
-        "x": list(x),
-        "y": list(y),
+        "x": finite(x),
+        "y": finite(y),
         "name": name,
         "line": {"color": colour_hex, "width": 2, "dash": "dash" if dashed else "solid"},
     } | extra
 
 
-def band(x, low, high, name: str, colour_hex: str) -> list[dict[str, Any]]:
-    """A translucent band between ``low`` and ``high`` (two traces: lower edge, then filled upper edge)."""
+def band(
+    x, low, high, name: str, colour_hex: str, group: str | None = None, alpha: float = 0.18
+) -> list[dict]:
+    """A translucent band between ``low`` and ``high`` (two traces: lower edge, then filled upper edge). It
+    has no legend entry of its own: it belongs to the legend entry of ``group`` (its line), so that clicking
+    that entry hides both. Draw bands before lines, so that no fill covers a line."""
     x = list(x)
     edge = {
         "type": "scatter",
         "mode": "lines",
         "line": {"width": 0},
         "hoverinfo": "skip",
-        "legendgroup": name,
+        "legendgroup": group or name,
+        "showlegend": False,
+        "name": name,
     }
     return [
-        edge | {"x": x, "y": list(low), "showlegend": False, "name": name},
-        edge
-        | {"x": x, "y": list(high), "fill": "tonexty", "fillcolor": translucent(colour_hex), "name": name},
+        edge | {"x": x, "y": finite(low)},
+        edge | {"x": x, "y": finite(high), "fill": "tonexty", "fillcolor": translucent(colour_hex, alpha)},
     ]
 
 
-def extrapolation_shading(start: float, end: float) -> dict[str, Any]:
-    """Layout pieces that shade the x range [start, end] and label it "extrapolated"."""
+def extrapolation_shading(start: float, end: float, log_x: bool = False) -> dict[str, Any]:
+    """Layout pieces that shade the x range [start, end] and label it "extrapolated" at its start (plotly.js
+    places annotations on a log axis by log10 of the position, shapes by the position)."""
     return {
         "shapes": [
             {
@@ -94,9 +167,10 @@ def extrapolation_shading(start: float, end: float) -> dict[str, Any]:
         ],
         "annotations": [
             {
-                "x": 1,
-                "xref": "paper",
-                "xanchor": "right",
+                # in the middle of the shaded range: hidden with it while the plot shows the observed range only
+                "x": (math.log10(start) + math.log10(end)) / 2 if log_x else (start + end) / 2,
+                "xref": "x",
+                "xanchor": "center",
                 "y": 1,
                 "yref": "paper",
                 "yanchor": "top",
@@ -122,29 +196,76 @@ def vertical_line(x: float, colour_hex: str, width: float = 1) -> dict[str, Any]
     }
 
 
+def views_control(views: dict[str, dict[str, Any]], default: str) -> dict[str, Any]:
+    """Named layout changes a page's control applies with Plotly.relayout (kept in layout.meta)."""
+    return {"meta": {"views": views, "default_view": default}}
+
+
 def spectrum_bars(
     pairs: list[tuple[int, int]], models: dict[str, list[float]] | None = None, k_max: int = 20
-):
-    """Observed V_1..V_k_max as bars, with each model's expected values at the corpus size as dashed lines."""
+) -> dict[str, Any]:
+    """Observed V_1..V_k_max as bars, with each model's expected values at the corpus size as dashed lines.
+    The count axis opens on a log scale (on a linear one every V_m beyond the first few looks flat); the
+    page's switch turns it linear."""
     dense = dict(pairs)
     ks = list(range(1, k_max + 1))
     bars = {
         "type": "bar",
         "x": ks,
         "y": [dense.get(k, 0) for k in ks],
-        "name": "observed V_m",
-        "marker": {"color": "#9fb3c8"},
-        "hovertemplate": "observed V_%{x} = %{y:,}<extra></extra>",
+        "name": "observed",
+        "marker": {"color": "#b9c6d4", "line": {"color": OBSERVED, "width": 1}},
+        "hovertemplate": "<b>observed</b><br>%{y:,} types occur exactly %{x} times<extra></extra>",
     }
-    lines = [
-        line(ks, values[:k_max], name, colour(i), dashed=True, mode="lines+markers", marker={"size": 5})
-        for i, (name, values) in enumerate((models or {}).items())
-    ]
+    lines = []
+    for name, values in (models or {}).items():
+        style = model_style(name)
+        lines.append(
+            line(
+                ks,
+                values[:k_max],
+                style.legend,
+                style.colour,
+                mode="lines+markers",
+                marker={"size": 5},
+                line={
+                    "color": style.colour,
+                    "width": 2.5 if name == "recommended" else 2,
+                    "dash": style.dash,
+                },
+                hovertemplate=f"<b>{style.title}</b><br>expected %{{y:,.1f}} types occurring %{{x}} times"
+                "<extra></extra>",
+            )
+        )
+    title = "types (V_m)"
     return figure(
         [bars, *lines],
         "m (occurrences per type)",
-        "V_m (types)",
-        xaxis=axis("m (occurrences per type)", dtick=1),
+        title,
+        xaxis=axis(
+            "m (occurrences per type)", tickvals=[1, 2, 3, 4, 5, 10, 15, 20], range=[0.4, k_max + 0.6]
+        ),
+        yaxis=axis(title, log=True),
+        **views_control(
+            {
+                "log": {
+                    "yaxis.type": "log",
+                    "yaxis.autorange": True,
+                    "yaxis.dtick": 1,
+                    "yaxis.minor.ticks": "outside",
+                    "yaxis.title.text": f"{title} (log scale)",
+                },
+                # a linear axis ticked every 1 would draw thousands of ticks: back to automatic ticks
+                "linear": {
+                    "yaxis.type": "linear",
+                    "yaxis.autorange": True,
+                    "yaxis.dtick": None,
+                    "yaxis.minor.ticks": "",
+                    "yaxis.title.text": title,
+                },
+            },
+            "log",
+        ),
     )
 
 
@@ -158,7 +279,11 @@ def rank_frequency(pairs: list[tuple[int, int]]) -> dict[str, Any]:
         freqs += [m, m]
         covered += v
     trace = line(
-        ranks, freqs, "observed", colour(0), hovertemplate="rank %{x:,}: %{y:,} tokens<extra></extra>"
+        ranks,
+        freqs,
+        "observed",
+        OBSERVED,
+        hovertemplate="rank %{x:,}: %{y:,} occurrences (tokens)<extra></extra>",
     )
     return figure([trace], "rank", "frequency (tokens)", log_x=True, log_y=True, showlegend=False)
 
@@ -171,40 +296,66 @@ def growth_lines(
     corpus_tokens: int | None = None,
     marker: tuple[float, str] | None = None,
 ) -> dict[str, Any]:
-    """Text-order type growth (solid), the random-order expectation with its 95% band, and model curves
-    (dashed) reaching into a shaded extrapolated range beyond the corpus size."""
+    """Text-order type growth (solid), the random-order expectation (dotted) with its 95% band, and model
+    curves (dashed) reaching into a shaded extrapolated range beyond the corpus size.
+
+    The figure opens on the observed range (0 to N); the page's switch shows the extrapolation (layout.meta
+    holds both views)."""
     xs = [p["tokens"] for p in random_order]
     data = []
+    rec_group = "recommended"
     if recommended_band:
         bx, low, high = recommended_band
-        data += band(bx, low, high, "recommended: backtest error band", "#000000")
+        data += band(
+            bx, low, high, "recommended: backtest error band", RECOMMENDED, group=rec_group, alpha=0.12
+        )
     data += band(
-        xs,
-        [p["low"] for p in random_order],
-        [p["high"] for p in random_order],
-        "random order: 95% band",
-        colour(1),
+        xs, [p["low"] for p in random_order], [p["high"] for p in random_order], "random order", RANDOM_ORDER
     )
     data.append(
-        line(xs, [p["types"] for p in random_order], "random order: expected types", colour(1), dashed=True)
+        line(
+            xs,
+            [p["types"] for p in random_order],
+            "random order (95% band)",
+            RANDOM_ORDER,
+            legendgroup="random order",
+            line={"color": RANDOM_ORDER, "width": 2, "dash": "dot"},
+        )
     )
-    for i, (name, (mx, my)) in enumerate((models or {}).items(), start=2):
-        style = {"color": "#000000", "width": 2.5, "dash": "dash"} if name.startswith("recommended") else None
-        data.append(line(mx, my, name, colour(i), dashed=True, **({"line": style} if style else {})))
+    for name, (mx, my) in (models or {}).items():
+        style = model_style(name)
+        width = 3 if name == modelling.RECOMMENDED else 2
+        data.append(
+            line(
+                mx,
+                my,
+                style.legend,
+                style.colour,
+                legendgroup=name,
+                line={"color": style.colour, "width": width, "dash": style.dash},
+                hovertemplate=f"<b>{style.title}</b><br>%{{x:,}} tokens: %{{y:,.0f}} types expected<extra></extra>",
+            )
+        )
     data.append(
-        line([n for n, _ in text_order], [v for _, v in text_order], "text order (observed)", colour(0))
+        line(
+            [n for n, _ in text_order],
+            [v for _, v in text_order],
+            "text order (observed)",
+            OBSERVED,
+            line={"color": OBSERVED, "width": 2.5},
+        )
     )
     layout: dict[str, Any] = {}
-    if models and corpus_tokens:
-        horizon = max(max(mx) for mx, _ in models.values())
-        if horizon > corpus_tokens:
-            layout = extrapolation_shading(corpus_tokens, horizon)
+    horizon = max((max(mx) for mx, _ in (models or {}).values()), default=corpus_tokens or 1)
+    log_x = bool(corpus_tokens and models and horizon > 50 * corpus_tokens)
+    if models and corpus_tokens and horizon > corpus_tokens:
+        layout = extrapolation_shading(corpus_tokens, horizon, log_x)
     if marker:
         x, label = marker
         layout.setdefault("shapes", []).append(vertical_line(x, "#CC79A7", 2))
         layout.setdefault("annotations", []).append(
             {
-                "x": x,
+                "x": math.log10(x) if log_x else x,
                 "xref": "x",
                 "y": 0.92,
                 "yref": "paper",
@@ -215,5 +366,19 @@ def growth_lines(
                 "bgcolor": "rgba(255,255,255,0.8)",
             }
         )
-    log_x = bool(corpus_tokens and models and max(max(mx) for mx, _ in models.values()) > 50 * corpus_tokens)
+    if corpus_tokens:
+        observed_types = max([v for _, v in text_order] + [p["high"] for p in random_order] + [1])
+        first = max(1, min([n for n, _ in text_order] + xs + [corpus_tokens]))
+        observed_x = [math.log10(first), math.log10(corpus_tokens)] if log_x else [0, corpus_tokens]
+        views = {
+            "observed": {
+                "xaxis.range": observed_x,
+                "yaxis.range": [0, observed_types * 1.08],
+            },
+            "extrapolated": {"xaxis.autorange": True, "yaxis.autorange": True},
+        }
+        layout |= views_control(views, "observed")
+        x_axis = axis("tokens", log_x, range=observed_x, autorange=False)
+        y_axis = axis("types", False, range=[0, observed_types * 1.08], autorange=False)
+        return figure(data, "tokens", "types", xaxis=x_axis, yaxis=y_axis, **layout)
     return figure(data, "tokens", "types", log_x=log_x, **layout)

@@ -12,7 +12,10 @@ GLOSSARY: dict[str, str] = {
     "Zipf size": "The token count at which a corpus behaves as perfectly Zipfian (perfect-Zipf model).",
     "backtest": "Fit a model on part of a corpus, predict the rest, and record the error.",
     "recommended model": "The prediction Lexigrowth trusts most for this corpus, judged by backtests.",
-    "LNRE": "Large Number of Rare Events: models of populations with very many rare types (Baayen 2001).",
+    "population model": "A model of the probabilities of all the types a source could produce, seen and "
+    "unseen; fitted to the spectrum, it predicts the vocabulary of larger samples.",
+    "goodness of fit": "Whether the model's expected spectrum differs from the observed one by more than "
+    "sampling noise. With many tokens even small, harmless differences are detected.",
     "size-matched": "Every corpus interpolated (or extrapolated, marked) to one common token count.",
     "tokenization profile": "The named settings that turn text into tokens (case folding, numbers, ...).",
     "random order": "Expectation over random samples of the corpus's tokens (exact hypergeometric).",

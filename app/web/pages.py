@@ -4,23 +4,26 @@ from __future__ import annotations
 
 from typing import Annotated
 
-from fastapi import APIRouter, Depends, HTTPException, Query, Request
+from fastapi import APIRouter, Depends, Request
 from fastapi.responses import HTMLResponse
 from sqlalchemy.engine import Engine
 
 from app.config import TEMPLATES_DIR
+from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import estimator
+from app.services import estimator, library, modelling
 from app.services.jobs import Dispatcher
 from app.store import corpora as store
-from app.web import api, corpus_view, figures
+from app.web import api, assets, corpus_view, figures
 from app.web.deps import corpus_or_404, engine_of, jobs_of
+from app.web.forms import FormInput
 from app.web.glossary import GLOSSARY
 from app.web.templating import make_templates
 
 router = APIRouter(include_in_schema=False)
 templates = make_templates(TEMPLATES_DIR)
 templates.env.globals["glossary"] = GLOSSARY
+templates.env.globals["plotly_map_style_id"] = assets.plotly_assets()[2]
 EngineDep = Annotated[Engine, Depends(engine_of)]
 
 
@@ -29,24 +32,22 @@ def render(request: Request, name: str, status_code: int = 200, **context) -> HT
 
 
 @router.get("/", response_class=HTMLResponse)
-def library(
-    request: Request,
-    engine: EngineDep,
-    jobs: Annotated[Dispatcher, Depends(jobs_of)],
-    label: str | None = None,
-):
-    corpora = [store.summary(c) for c in store.list_corpora(engine)]
-    label_values = sorted({f"{k}={v}" for c in corpora for k, v in c["labels"].items()})
-    if label and "=" in label:
-        key, value = label.split("=", 1)
-        corpora = [c for c in corpora if c["labels"].get(key) == value]
+def library_page(request: Request, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]):
+    """The Library: filter by label values (several keys at once; values of one key are alternatives) and by
+    a search over names, labels and free-text notes."""
+    every = [store.summary(c) for c in store.list_corpora(engine)]
+    chosen = [v[:500] for v in request.query_params.getlist("label")]
+    search = (request.query_params.get("search") or "")[:200]
     return render(
         request,
         "library.html",
-        corpora=corpora,
+        corpora=library.filter_corpora(every, chosen, search),
+        total=len(every),
         arriving=jobs.uploads_under_way(),
-        label_values=label_values,
-        label=label,
+        filters=library.label_filter(every),
+        chosen=set(chosen),
+        search=search,
+        deleted=request.query_params.get("deleted"),
         json_url="/api/corpora",
     )
 
@@ -56,107 +57,176 @@ def upload(request: Request):
     return render(request, "upload.html", profiles=BUILTIN_PROFILES, json_url="/api/profiles")
 
 
+PLAN_FIELDS = ("types", "new_type_rate", "coverage", "share")
+
+
+def _planning_target(form: FormInput) -> planning.Target | None:
+    """The one planning target typed into the Planning form (empty fields are not given), or None."""
+    values = {
+        "types": form.number("types", "types", above=0, at_most=1e13),
+        "new_type_rate": form.number("new_type_rate", "new-type rate", above=0, below=1),
+        "coverage": form.number("coverage", "coverage", above=0, below=1),
+        "share": form.number("share", "share of all types", above=0, below=1),
+    }
+    given = {kind: value for kind, value in values.items() if value is not None}
+    if form.errors_of(*PLAN_FIELDS) or not given:
+        return None
+    if len(given) > 1:
+        form.fail("types", "Fill in one target only: types, new-type rate, coverage or share of all types.")
+        return None
+    ((kind, value),) = given.items()
+    try:
+        return planning.Target(kind, value)
+    except ValueError as exc:
+        form.fail(kind, str(exc))
+        return None
+
+
 @router.get("/corpora/{corpus_id}", response_class=HTMLResponse)
-def corpus_page(
+def corpus_page_route(
     request: Request,
     corpus_id: api.CorpusId,
     engine: EngineDep,
-    q: Annotated[str | None, Query(max_length=200)] = None,
-    page: Annotated[int, Query(ge=1, le=10**7)] = 1,
-    sizes: Annotated[str | None, Query(max_length=500)] = None,
-    horizon: Annotated[float, Query(ge=1, le=1000)] = 10.0,
-    common_size: Annotated[int | None, Query(ge=1, le=10**12)] = None,
-    types: Annotated[float | None, Query(gt=0, le=1e13)] = None,
-    new_type_rate: Annotated[float | None, Query(gt=0, lt=1)] = None,
-    coverage: Annotated[float | None, Query(gt=0, lt=1)] = None,
-    share: Annotated[float | None, Query(gt=0, lt=1)] = None,
-    plan_model: Annotated[str, Query(max_length=60)] = "recommended",
-    jobs: Annotated[Dispatcher, Depends(jobs_of)] = None,
+    jobs: Annotated[Dispatcher, Depends(jobs_of)],
 ):
-    corpus_or_404(engine, corpus_id)
-    asked = [v for v in (types, new_type_rate, coverage, share) if v is not None]
-    target = api.planning_target(types, new_type_rate, coverage, share) if asked else None
+    """The corpus page. Its forms send every field, empty ones included; problems are shown beside the
+    form they belong to, with the text kept as typed."""
+    return corpus_page(request, corpus_id, engine, jobs)
+
+
+def corpus_page(
+    request: Request, corpus_id: int, engine: Engine, jobs: Dispatcher, edit: dict | None = None
+) -> HTMLResponse:
+    """The corpus page; ``edit``: the "Name and labels" form as typed, with its error, to show again."""
+    corpus = corpus_or_404(engine, corpus_id)
+    form = FormInput(dict(request.query_params))
+    page = form.number("page", "page", whole=True, at_least=1, at_most=10**7) or 1
+    horizon = form.number("horizon", "extrapolate to", at_least=1, at_most=1000) or 10.0
+    common_size = form.number(
+        "common_size", "common size", whole=True, at_least=1, at_most=max(corpus.tokens, 1)
+    )
+    sizes_text = form.text("sizes")[:500] or None
     try:
-        context = corpus_view.corpus_context(
-            engine, corpus_id, q, page, sizes, horizon, common_size, target, plan_model
-        )
+        corpus_view.parse_sizes(sizes_text, corpus.tokens)
     except ValueError as exc:
-        raise HTTPException(status_code=422, detail=str(exc)) from exc
+        form.fail("sizes", str(exc))
+        sizes_text = None
+    plan_model = form.text("plan_model") or modelling.RECOMMENDED
+    if plan_model not in modelling.PLAN_MODELS:
+        form.fail("plan_model", f"unknown model {plan_model[:60]!r}")
+        plan_model = modelling.RECOMMENDED
+    target = _planning_target(form)
+    context = corpus_view.corpus_context(
+        engine,
+        corpus_id,
+        form.text("q")[:200] or None,
+        page,
+        sizes_text,
+        horizon,
+        common_size,
+        target,
+        plan_model,
+    )
     if context.get("models_pending"):
         task = jobs.models_state(corpus_id)
         if task.state == "failed":
             context.update(models_pending=None, models_error=task.message)
         else:
             context["models_pending"] = "fitting now" if task.state == "running" else "waiting for a worker"
-    return render(request, "corpus.html", **context)
+    status = 422 if form.errors or edit else 200  # the page itself, with each problem beside its form
+    viewer = request.state.viewer
+    return render(
+        request,
+        "corpus.html",
+        status_code=status,
+        form=form,
+        may_edit=viewer.may_delete(corpus.owner_id),
+        labels_text=library.labels_as_text(context["corpus"]["labels"]),
+        edit_form=edit,
+        edit_error=edit["error"] if edit else None,
+        edit_saved=form.text("saved") == "1" and not edit,
+        **context,
+    )
 
 
 @router.get("/estimate", response_class=HTMLResponse)
-def estimate_page(
-    request: Request,
-    tokens: Annotated[int | None, Query(ge=1, le=10**12)] = None,
-    types: Annotated[int | None, Query(ge=1, le=10**12)] = None,
-    hapaxes: Annotated[int | None, Query(ge=1, le=10**12)] = None,
-    sizes: Annotated[str | None, Query(max_length=500)] = None,
-    plan_types: Annotated[float | None, Query(gt=0, le=1e13)] = None,
-    plan_new_type_rate: Annotated[float | None, Query(gt=0, lt=1)] = None,
-    uniform_types: Annotated[int | None, Query(ge=1, le=10**9)] = None,
-    repeats: Annotated[int | None, Query(ge=1, le=10**9)] = None,
-    draws: Annotated[str | None, Query(max_length=500)] = None,
-):
-    result = uniform = error = None
-    try:
-        if tokens and types:
-            asked = plan_types is not None or plan_new_type_rate is not None
-            target = api.planning_target(plan_types, plan_new_type_rate, None, None) if asked else None
-            result = estimator.estimate_from_totals(
-                tokens, types, hapaxes, corpus_view.parse_sizes(sizes, tokens), target
-            )
-        if uniform_types and repeats:
-            total = uniform_types * repeats
+def estimate_page(request: Request):
+    """The Estimator: from totals, or a uniform design. Empty optional fields are not given; problems are
+    shown above the form they belong to, with the text kept as typed."""
+    form = FormInput(dict(request.query_params))
+    result = uniform = None
+    tokens = form.number("tokens", "tokens", whole=True, at_least=1, at_most=10**12)
+    types = form.number("types", "types", whole=True, at_least=1, at_most=10**12)
+    hapaxes = form.number("hapaxes", "hapax legomena", whole=True, at_least=1, at_most=10**12)
+    plan_types = form.number("plan_types", "planning: types", above=0, at_most=1e13)
+    plan_rate = form.number("plan_new_type_rate", "planning: new-type rate", above=0, below=1)
+    totals_fields = ("tokens", "types", "hapaxes", "sizes", "plan_types", "plan_new_type_rate")
+    if plan_types is not None and plan_rate is not None:
+        form.fail("plan_types", "Planning: fill in a number of types or a new-type rate, not both.")
+    if tokens and types and not form.errors_of(*totals_fields):
+        try:
+            target = None
+            if plan_types is not None:
+                target = planning.Target("types", plan_types)
+            elif plan_rate is not None:
+                target = planning.Target("new_type_rate", plan_rate)
+            sizes = corpus_view.parse_sizes(form.text("sizes")[:500] or None, tokens)
+            result = estimator.estimate_from_totals(tokens, types, hapaxes, sizes, target)
+        except (ValueError, ArithmeticError) as exc:
+            form.fail("tokens", str(exc))
+    elif form.given("tokens") != form.given("types") and not form.errors_of("tokens", "types"):
+        form.fail("tokens", "Give both the tokens and the types of the text.")
+    uniform_types = form.number("uniform_types", "types (k)", whole=True, at_least=1, at_most=10**9)
+    repeats = form.number("repeats", "occurrences of each type (r)", whole=True, at_least=1, at_most=10**9)
+    if uniform_types and repeats and not form.errors_of("uniform_types", "repeats"):
+        total = uniform_types * repeats
+        try:
+            draws = form.text("draws")[:500]
             drawn = (
-                corpus_view.parse_sizes(draws, total) if draws else sorted({1, total // 4, total // 2, total})
+                corpus_view.parse_sizes(draws, total)
+                if draws.strip()
+                else sorted({1, total // 4, total // 2, total})
             )
             uniform = estimator.uniform_design(uniform_types, repeats, drawn)
-    except ValueError as exc:
-        error = str(exc)
+        except (ValueError, ArithmeticError) as exc:
+            form.fail("draws", str(exc).replace("sizes:", "draws:"))
+    elif form.given("uniform_types") != form.given("repeats") and not form.errors_of(
+        "uniform_types", "repeats"
+    ):
+        form.fail("uniform_types", "Give both the number of types (k) and the occurrences of each (r).")
     return render(
         request,
         "estimate.html",
+        status_code=422 if form.errors else 200,
         result=result,
         uniform=uniform,
-        error=error,
-        form={
-            "tokens": tokens,
-            "types": types,
-            "hapaxes": hapaxes,
-            "sizes": sizes or "",
-            "plan_types": plan_types,
-            "plan_new_type_rate": plan_new_type_rate,
-            "uniform_types": uniform_types,
-            "repeats": repeats,
-            "draws": draws or "",
-        },
+        form=form,
+        totals_errors=form.errors_of(*totals_fields),
+        uniform_errors=form.errors_of("uniform_types", "repeats", "draws"),
         growth_figure=estimate_figure(result) if result else None,
         json_url="/docs#/api/estimate_api_estimate_post",
     )
 
 
 def estimate_figure(result: dict) -> dict:
+    """The perfect-Zipf growth curve solved from the totals, in that model's colour, with the table's sizes."""
     rows = result["predictions"]
+    style = figures.model_style(
+        "perfect_zipf_totals" if result["input"]["hapaxes"] is None else "perfect_zipf"
+    )
     curve = figures.line(
         result["curve"]["tokens"],
         result["curve"]["types"],
         "perfect-Zipf prediction",
-        figures.colour(0),
-        dashed=True,
+        style.colour,
+        line={"color": style.colour, "width": 2, "dash": style.dash},
     )
     points = figures.line(
         [r["tokens"] for r in rows],
         [r["types"] for r in rows],
         "sizes of the table",
-        figures.colour(3),
+        figures.OBSERVED,
         mode="markers",
-        marker={"size": 8},
+        marker={"size": 8, "symbol": "circle-open", "line": {"width": 2}},
     )
     return figures.figure([curve, points], "tokens", "types", log_x=True)

@@ -25,7 +25,7 @@ from app.core.backtest import (
 from app.core.interpolation import expected_types_binomial
 from app.core.models import MODELS
 from app.core.spectrum import Spectrum
-from tests.core.lnre_samples import poisson_sample, power_law_density, stratified_population
+from tests.core.population_samples import poisson_sample, power_law_density, stratified_population
 
 
 @pytest.fixture(scope="module")

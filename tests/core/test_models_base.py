@@ -11,7 +11,7 @@ from scipy import stats
 
 from app.core.models import MODELS, ErrorBand
 from app.core.spectrum import Spectrum
-from tests.core.lnre_samples import gigp_density, poisson_sample, stratified_population
+from tests.core.population_samples import gigp_density, poisson_sample, stratified_population
 
 
 @pytest.fixture(scope="module")

@@ -31,8 +31,8 @@ def test_fit_is_least_squares_on_the_upper_decade_of_the_exact_curve():
     sizes = np.unique(np.geomspace(N / 10, N, 12).round().astype(int))
     reference = stats.linregress(np.log(sizes), np.log([expected_types(spectrum, int(n)) for n in sizes]))
     fitted = HEAPS.fit(spectrum)
-    assert fitted.params["beta"] == pytest.approx(reference.slope, rel=1e-10)
-    assert fitted.params["K"] == pytest.approx(np.exp(reference.intercept), rel=1e-10)
+    assert fitted.params["exponent"] == pytest.approx(reference.slope, rel=1e-10)
+    assert fitted.params["scale"] == pytest.approx(np.exp(reference.intercept), rel=1e-10)
 
 
 @pytest.mark.parametrize("beta", [0.3, 0.55, 0.8])
@@ -41,7 +41,7 @@ def test_legomena_follow_the_growth_identity(beta):
     # generalised binomial coefficient from scipy.special.binom. The first K shares sum to
     # 1 - (-1)^K C(beta - 1, K) (alternating partial sums of binomial coefficients; Graham, Knuth & Patashnik,
     # Concrete Mathematics, eq. 5.16, from memory), which tends to 1.
-    params = {"K": 12.0, "beta": beta}
+    params = {"scale": 12.0, "exponent": beta}
     k = np.arange(1, 21)
     n = 5e4
     expected = 12.0 * n**beta * (-1.0) ** (k + 1) * binom(beta, k)

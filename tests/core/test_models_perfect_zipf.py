@@ -117,14 +117,16 @@ def test_fitted_model_reproduces_the_corpus_types_and_hapaxes():
     assert fitted.types(spectrum.tokens) == pytest.approx(spectrum.types, rel=1e-10)
     assert fitted.spectrum(spectrum.tokens, 1)[0] == pytest.approx(spectrum.hapaxes, rel=1e-9)
     # Z = N / x and W = V (x - 1) / (x ln x) by definition.
-    x = spectrum.tokens / fitted.params["Z"]
-    assert fitted.params["W"] == pytest.approx(spectrum.types * (x - 1) / (x * math.log(x)), rel=1e-12)
+    x = spectrum.tokens / fitted.params["zipf_size"]
+    assert fitted.params["zipf_types"] == pytest.approx(
+        spectrum.types * (x - 1) / (x * math.log(x)), rel=1e-12
+    )
 
 
 def test_fewer_than_half_hapaxes_means_a_smaller_zipf_size():
     # V_1 / V < 1/2 <=> x > 1 <=> Z < N (h falls through 1/2 at x = 1).
     spectrum = Spectrum.from_pairs([(1, 400), (2, 300), (3, 200), (10, 150)])
-    assert MODELS["perfect_zipf"].fit(spectrum).params["Z"] < spectrum.tokens
+    assert MODELS["perfect_zipf"].fit(spectrum).params["zipf_size"] < spectrum.tokens
 
 
 def test_predictions_far_beyond_the_corpus_are_finite_and_ordered():

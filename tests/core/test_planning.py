@@ -13,7 +13,7 @@ from app.core.backtest import backtest
 from app.core.models import MODELS
 from app.core.spectrum import Spectrum
 from tests.conftest import stdlib_docstrings
-from tests.core.lnre_samples import power_law_density, stratified_population
+from tests.core.population_samples import power_law_density, stratified_population
 
 
 @pytest.fixture(scope="module")
@@ -51,7 +51,7 @@ def test_new_type_rate_at_corpus_size_is_good_turing(fitted, docstring_spectrum)
     """At N the models' E[V_1(N)] / N is the Good-Turing rate V_1 / N (Good 1953) within their fit error."""
     N, observed = docstring_spectrum.tokens, docstring_spectrum.hapaxes / docstring_spectrum.tokens
     for name in ("perfect_zipf", "bounded_power_law", "sichel", "recommended"):
-        # perfect Zipf reproduces V_1 exactly; the LNRE fits within a few per cent (their chi-square residuals)
+        # perfect Zipf reproduces V_1 exactly; the population models within a few per cent (their chi-square residuals)
         assert planning.new_type_rate(fitted[name], N) == pytest.approx(observed, rel=0.05), name
 
 

@@ -44,7 +44,7 @@ def test_interpolation_is_finite_bounded_and_monotone(case):
         assert 0 <= expected_types_binomial(spectrum, n) <= spectrum.types + 1e-9
 
 
-# Every model gives finite, non-negative E[V(n)] that never falls as n grows, and E[V_k(n)] >= 0. The LNRE
+# Every model gives finite, non-negative E[V(n)] that never falls as n grows, and E[V_k(n)] >= 0. The population
 # models are mixtures of Poisson samples, so moreover E[V(n)] <= n (Baayen 2001, ch. 2: E[V(n)] = sum over
 # types of 1 - e^(-n pi)); Heaps' law and the perfect-Zipf formulas are fitted curves without that bound at
 # tiny n. A fit either keeps all this from 1 token to 100 N or refuses with a reason.

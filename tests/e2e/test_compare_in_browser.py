@@ -3,20 +3,13 @@ permalink and open it in a fresh browser context. The app runs under uvicorn in 
 loopback port with a temporary data folder; Chromium (Debian's package) is driven through Playwright.
 
 The numbers on the page are compared with the JSON API, and the API with scipy.stats.hypergeom (Baayen
-2001, Word Frequency Distributions, ch. 2) on the uploaded words. Screenshots of the Library, Corpus and Comparison pages are saved under
-test-output/screenshots/ for a person to look at.
+2001, Word Frequency Distributions, ch. 2) on the uploaded words. Screenshots of the Library, Corpus and Comparison pages are saved in the
+screenshot folder (tests/e2e/conftest.py) for a person to look at.
 """
 
 from __future__ import annotations
 
-import json
-import os
 import re
-import socket
-import subprocess
-import sys
-import time
-import urllib.request
 from pathlib import Path
 
 import numpy as np
@@ -24,83 +17,10 @@ import pytest
 from scipy.stats import hypergeom
 
 from tests.conftest import stdlib_docstrings
+from tests.e2e.conftest import TIMEOUT_MS, get_json, needs_chromium
 from tests.web.test_api import expected_counts
 
-CHROMIUM = Path("/usr/bin/chromium")
-CHROMIUM_ARGS = [
-    "--no-sandbox",
-    "--disable-gpu",
-    "--disable-quic",
-    "--no-first-run",
-    "--disable-background-networking",
-    "--disable-component-update",
-    "--disable-sync",
-]
-REPO = Path(__file__).resolve().parents[2]
-SCREENSHOTS = REPO / "test-output" / "screenshots"
-TIMEOUT_MS = 30_000
-
-pytestmark = [
-    pytest.mark.slow,
-    pytest.mark.skipif(
-        not CHROMIUM.exists(),
-        reason="needs Debian's Chromium at /usr/bin/chromium (CI installs it: apt-get install chromium)",
-    ),
-]
-
-
-def free_port() -> int:
-    with socket.socket() as s:
-        s.bind(("127.0.0.1", 0))
-        return s.getsockname()[1]
-
-
-def get_json(url: str) -> dict:
-    with urllib.request.urlopen(url, timeout=30) as response:
-        return json.loads(response.read())
-
-
-@pytest.fixture(scope="module")
-def server(tmp_path_factory):
-    """The real app under uvicorn on a free loopback port, with an empty temporary store."""
-    port = free_port()
-    env = os.environ | {
-        "LEXIGROWTH_DATA_DIR": str(tmp_path_factory.mktemp("e2e") / "data"),
-        "LEXIGROWTH_LOAD_DEMO": "false",
-    }
-    command = [sys.executable, "-m", "uvicorn", "app.main:create_app", "--factory"]
-    process = subprocess.Popen(
-        [*command, "--host", "127.0.0.1", "--port", str(port), "--log-level", "warning"],
-        cwd=REPO,
-        env=env,
-    )
-    base = f"http://127.0.0.1:{port}"
-    deadline = time.monotonic() + 60
-    while True:
-        try:
-            if get_json(f"{base}/api/health") == {"status": "ok"}:
-                break
-        except OSError:
-            if process.poll() is not None or time.monotonic() > deadline:
-                process.kill()
-                pytest.fail("the app did not start under uvicorn")
-            time.sleep(0.2)
-    yield base
-    process.terminate()
-    try:
-        process.wait(timeout=10)
-    except subprocess.TimeoutExpired:
-        process.kill()
-
-
-@pytest.fixture(scope="module")
-def browser():
-    from playwright.sync_api import sync_playwright
-
-    with sync_playwright() as playwright:
-        chromium = playwright.chromium.launch(executable_path=str(CHROMIUM), args=CHROMIUM_ARGS)
-        yield chromium
-        chromium.close()
+pytestmark = [pytest.mark.slow, needs_chromium]
 
 
 @pytest.fixture(scope="module")
@@ -121,8 +41,7 @@ def table_numbers(page) -> list[tuple[float, str]]:
     return [(float(c.get_attribute("data-value")), c.inner_text()) for c in cells.all()]
 
 
-def test_upload_compare_save_and_reopen_in_a_browser(server, browser, texts):
-    SCREENSHOTS.mkdir(parents=True, exist_ok=True)
+def test_upload_compare_save_and_reopen_in_a_browser(server, browser, texts, screenshots):
     context = browser.new_context(viewport={"width": 1280, "height": 900}, accept_downloads=True)
     requests: list[str] = []
     errors: list[str] = []
@@ -142,7 +61,7 @@ def test_upload_compare_save_and_reopen_in_a_browser(server, browser, texts):
         assert page.locator("h1").inner_text() == name
         if name == "Alpha":
             page.wait_for_selector("#growth-plot .main-svg")
-            page.screenshot(path=SCREENSHOTS / "corpus.png", full_page=True)
+            page.screenshot(path=screenshots / "corpus.png", full_page=True)
 
     # the Library: the button is enabled only for 2 to 8 ticked corpora
     page.goto(f"{server}/")
@@ -154,7 +73,7 @@ def test_upload_compare_save_and_reopen_in_a_browser(server, browser, texts):
     assert button.is_disabled()
     boxes.nth(1).check()
     assert button.is_enabled()
-    page.screenshot(path=SCREENSHOTS / "library.png", full_page=True)
+    page.screenshot(path=screenshots / "library.png", full_page=True)
     button.click()
     page.wait_for_url(re.compile(r".*/compare\?corpus=\d+&corpus=\d+$"))
     page.wait_for_selector("#growth-plot .main-svg")
@@ -193,7 +112,7 @@ def test_upload_compare_save_and_reopen_in_a_browser(server, browser, texts):
     page.wait_for_selector("#growth-share-plot .main-svg", state="visible")
     assert "scale=share" in page.url
     page.check("input[name=growth-scale][value=tokens]")
-    page.screenshot(path=SCREENSHOTS / "comparison.png", full_page=True)
+    page.screenshot(path=screenshots / "comparison.png", full_page=True)
 
     # save the permalink and open it in a fresh browser context
     page.click("#save-permalink")

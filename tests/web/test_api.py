@@ -54,8 +54,12 @@ def test_upload_summary_spectrum_growth_round_trip(client):
     last = growth["random_order"]["points"][-1]
     assert last["tokens"] == len(tokens) and abs(last["types"] - len(counts)) < 1e-9
 
-    tsv = client.get(f"/api/corpora/{cid}/spectrum.tsv").text.splitlines()
-    assert tsv[0] == "m\tV_m" and len(tsv) == len(spectrum["spectrum"]) + 1
+    lines = client.get(f"/api/corpora/{cid}/spectrum.tsv").text.splitlines()
+    comments = [line for line in lines if line.startswith("#")]
+    assert f"# tokens: {spectrum['tokens']}" in comments and f"# types: {spectrum['types']}" in comments
+    tsv = [line for line in lines if not line.startswith("#")]
+    assert tsv[0] == "occurrences\ttypes" and len(tsv) == len(spectrum["spectrum"]) + 1
+    assert [list(map(int, row.split("\t"))) for row in tsv[1:]] == spectrum["spectrum"]
     words = client.get(f"/api/corpora/{cid}/words.csv").text.splitlines()
     assert words[0] == "word,count" and len(words) == len(counts) + 1
     assert client.get(f"/api/corpora/{cid}/words", params={"search": "nation"}).json()["words"] == [

@@ -270,6 +270,9 @@ class VocabularyModel(ABC):
     name: ClassVar[str]
     title: ClassVar[str]
     parameter_names: ClassVar[tuple[str, ...]]
+    parameter_meanings: ClassVar[dict[str, str]] = {}
+    formula: ClassVar[str] = ""
+    finite_population: ClassVar[bool] = False
     bounds: ClassVar[dict[str, tuple[float, float]]] = {}
     min_tokens: ClassVar[int] = 0
     """Fewest tokens the model is fitted to (its parameters are not identified on fewer)."""

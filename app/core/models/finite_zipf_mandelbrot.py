@@ -1,4 +1,4 @@
-"""Finite Zipf-Mandelbrot LNRE model (Evert 2004).
+"""Finite Zipf-Mandelbrot model of a population of word probabilities (Evert 2004).
 
 Type density g(pi) = C pi^(-a-1) on A <= pi <= B, 0 < a < 1, C = (1 - a) / (B^(1-a) - A^(1-a)); the
 population holds S = C (A^(-a) - B^(-a)) / a types. Under Poisson sampling of n tokens
@@ -31,32 +31,51 @@ from app.core.spectrum import Spectrum
 
 
 class FiniteZipfMandelbrot(VocabularyModel):
-    """Finite Zipf-Mandelbrot LNRE model: g(pi) = C pi^(-a-1) on [A, B] (module docstring, Evert 2004)."""
+    """Finite Zipf-Mandelbrot: g(pi) = C pi^(-a-1) on [A, B] (module docstring, Evert 2004); a is ``exponent``,
+    A ``min_probability`` and B ``max_probability``."""
 
     name = "bounded_power_law"
     title = "bounded power law (finite Zipf-Mandelbrot)"
-    parameter_names = ("a", "A", "B")
+    formula = (
+        "g(pi) = C pi^(-exponent-1) for min_probability <= pi <= max_probability; "
+        "population S = C (A^-a - B^-a) / a types"
+    )
+    parameter_names = ("exponent", "min_probability", "max_probability")
     min_tokens = POPULATION_FIT_MIN_TOKENS
+    parameter_meanings = {
+        "exponent": "a, 0 < a < 1: how fast the number of types grows as probabilities fall",
+        "min_probability": "A: the probability of the rarest type; it makes the population finite",
+        "max_probability": "B: the probability of the most frequent type",
+    }
+    finite_population = True
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
-        return power_law_types(n, params["a"], params["A"], params["B"])
+        a, A, B = self._abc(params)
+        return power_law_types(n, a, A, B)
+
+    @staticmethod
+    def _abc(params: Mapping[str, float]) -> tuple[float, float, float]:
+        return params["exponent"], params["min_probability"], params["max_probability"]
 
     def population_size(self, params: Mapping[str, float]) -> float | None:
         """S = C (A^(-a) - B^(-a)) / a (module docstring)."""
-        a, A, B = params["a"], params["A"], params["B"]
+        a, A, B = self._abc(params)
         return float(power_law_constant(a, A, B) * (A**-a - B**-a) / a)
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
-        return power_law_spectrum(n, m, params["a"], params["A"], params["B"])
+        return power_law_spectrum(n, m, *self._abc(params))
 
     def to_unconstrained(self, params: Mapping[str, float]) -> np.ndarray:
-        return np.array(
-            [float(logit(params["a"])), math.log(params["B"]), float(logit(params["A"] / params["B"]))]
-        )
+        a, A, B = self._abc(params)
+        return np.array([float(logit(a)), math.log(B), float(logit(A / B))])
 
     def from_unconstrained(self, theta: np.ndarray) -> Params:
         B = math.exp(theta[1])
-        return {"a": float(expit(theta[0])), "A": B * float(expit(theta[2])), "B": B}
+        return {
+            "exponent": float(expit(theta[0])),
+            "min_probability": B * float(expit(theta[2])),
+            "max_probability": B,
+        }
 
     def initial_guesses(self, spectrum: Spectrum) -> list[Params]:
         """a and B as for Zipf-Mandelbrot; A from a population of 2, 5 or 20 times the observed types,
@@ -67,5 +86,5 @@ class FiniteZipfMandelbrot(VocabularyModel):
         guesses = []
         for multiple in (2.0, 5.0, 20.0):
             A = (a * multiple * spectrum.types / C) ** (-1 / a)
-            guesses.append({"a": a, "A": min(A, 0.5 * B), "B": B})
+            guesses.append({"exponent": a, "min_probability": min(A, 0.5 * B), "max_probability": B})
         return guesses

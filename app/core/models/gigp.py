@@ -1,4 +1,5 @@
-"""Sichel's generalised inverse Gauss-Poisson (GIGP) LNRE model (Sichel 1975; Baayen 2001).
+"""Sichel's generalised inverse Gauss-Poisson (GIGP) model of a population of word probabilities
+(Sichel 1975; Baayen 2001).
 
 Type density, normalised so that integral pi g(pi) dpi = 1 (the integral
 integral_0^inf x^(nu-1) e^(-beta/x - gamma x) dx = 2 (beta/gamma)^(nu/2) K_nu(2 sqrt(beta gamma)) gives
@@ -24,16 +25,28 @@ from app.core.spectrum import Spectrum
 
 
 class GIGP(VocabularyModel):
-    """Generalised inverse Gauss-Poisson LNRE model (module docstring, Sichel 1975)."""
+    """Generalised inverse Gauss-Poisson (module docstring, Sichel 1975); b is ``rare_cutoff``, c
+    ``frequent_scale`` and g ``shape``."""
 
     name = "sichel"
     title = "Sichel mixture (generalised inverse Gauss-Poisson)"
-    parameter_names = ("b", "c", "g")
+    formula = (
+        "g(pi) proportional to pi^(shape-1) exp(-pi / c - b^2 c / (4 pi)) with b = rare_cutoff, "
+        "c = frequent_scale; population S = (2 / (b c)) K_g(b) / K_(g+1)(b) types"
+    )
+    parameter_names = ("rare_cutoff", "frequent_scale", "shape")
     min_tokens = POPULATION_FIT_MIN_TOKENS
-    bounds = {"b": (0.0, np.inf), "c": (0.0, np.inf), "g": (-1.0, 0.0)}
+    parameter_meanings = {
+        "rare_cutoff": "b > 0: sets the probability b^2 c / 4 below which types become rare; it makes the "
+        "population finite",
+        "frequent_scale": "c > 0: the probability scale of the frequent types",
+        "shape": "g, -1 < g < 0: the power of the density between the two scales",
+    }
+    finite_population = True
+    bounds = {"rare_cutoff": (0.0, np.inf), "frequent_scale": (0.0, np.inf), "shape": (-1.0, 0.0)}
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
-        b, c, g = params["b"], params["c"], params["g"]
+        b, c, g = params["rare_cutoff"], params["frequent_scale"], params["shape"]
         nc = np.asarray(n, dtype=float) * c
         root = np.sqrt(1 + nc)
         # log of (1 + n c)^(-g/2) K_g(b root) / K_g(b), with K_g(z) = kve(g, z) e^(-z) and b root - b
@@ -44,11 +57,11 @@ class GIGP(VocabularyModel):
 
     def population_size(self, params: Mapping[str, float]) -> float | None:
         """S = (2 / (b c)) K_g(b) / K_{g+1}(b), the limit of E[V(n)] as n grows (module docstring)."""
-        b, c, g = params["b"], params["c"], params["g"]
+        b, c, g = params["rare_cutoff"], params["frequent_scale"], params["shape"]
         return float(2 / (b * c) * kve(g, b) / kve(g + 1, b))
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
-        b, c, g = params["b"], params["c"], params["g"]
+        b, c, g = params["rare_cutoff"], params["frequent_scale"], params["shape"]
         n = np.asarray(n, dtype=float)
         m = np.asarray(m, dtype=float)
         z = b * np.sqrt(1 + n * c)
@@ -72,4 +85,7 @@ class GIGP(VocabularyModel):
         v1, v2 = max(spectrum.hapaxes, 1), max(spectrum.count(2), 1)
         g = float(np.clip(2 * v2 / v1 - 1, -0.95, -0.05))
         c = (v1 * N**g) ** (-1 / (1 + g))
-        return [{"b": 2 * np.sqrt(q / (N * c)), "c": c, "g": g} for q in (0.01, 0.1, 1.0)]
+        return [
+            {"rare_cutoff": 2 * np.sqrt(q / (N * c)), "frequent_scale": c, "shape": g}
+            for q in (0.01, 0.1, 1.0)
+        ]

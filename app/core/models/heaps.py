@@ -41,13 +41,18 @@ class Heaps(VocabularyModel):
 
     name = "heaps"
     title = "Heaps' law"
-    parameter_names = ("K", "beta")
+    formula = "E[V(n)] = scale n^exponent; E[V_k(n)] = scale n^b b Gamma(k - b) / (Gamma(1 - b) k!)"
+    parameter_names = ("scale", "exponent")
+    parameter_meanings = {
+        "scale": "K: the number of types at n = 1 on the fitted line",
+        "exponent": "beta, 0 < beta < 1: the slope of log types against log tokens (also the hapax share)",
+    }
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
-        return as_output(params["K"] * np.asarray(n, dtype=float) ** params["beta"], n)
+        return as_output(params["scale"] * np.asarray(n, dtype=float) ** params["exponent"], n)
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
-        beta = params["beta"]
+        beta = params["exponent"]
         m = np.asarray(m, dtype=float)
         shares = beta * np.exp(gammaln(m - beta) - gammaln(1 - beta) - gammaln(m + 1))
         return np.asarray(self.expected_types(n, params)) * shares
@@ -60,7 +65,7 @@ class Heaps(VocabularyModel):
         sizes = np.unique(np.geomspace(max(N / 10, 1), N, FIT_POINTS).round().astype(np.int64))
         growth = np.array([expected_types(spectrum, int(n)) for n in sizes])
         K, beta = fit_power_law(sizes, growth)
-        return FittedModel(self, {"K": K, "beta": beta}, N, spectrum, m_max)
+        return FittedModel(self, {"scale": K, "exponent": beta}, N, spectrum, m_max)
 
     def goodness_of_fit(
         self, spectrum: Spectrum, params: Mapping[str, float], m_max: int = 15

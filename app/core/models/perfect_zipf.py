@@ -114,7 +114,7 @@ def perfect_zipf_params(tokens: int, types: int, hapaxes: int | None = None) -> 
     if tokens <= 0 or types <= 0:
         raise ValueError("the perfect-Zipf model needs tokens and types")
     x = 1.0 if hapaxes is None else solve_zipf_fraction(hapaxes / types)
-    return {"Z": tokens / x, "W": types / float(growth_factor(x))}
+    return {"zipf_size": tokens / x, "zipf_types": types / float(growth_factor(x))}
 
 
 class PerfectZipf(VocabularyModel):
@@ -125,18 +125,25 @@ class PerfectZipf(VocabularyModel):
 
     name = "perfect_zipf"
     title = "perfect Zipf"
-    parameter_names = ("Z", "W")
-    bounds = {"Z": (0.0, np.inf), "W": (0.0, np.inf)}  # used by the minimum chi-square
+    formula = "E[V(n)] = W x ln x / (x - 1), x = n / Z, with Z = zipf_size and W = zipf_types"
+    parameter_names = ("zipf_size", "zipf_types")
+    parameter_meanings = {
+        "zipf_size": "Z: the token count at which the corpus is perfectly Zipfian (V_m = W / (m (m + 1)))",
+        "zipf_types": "W: the number of types at that size",
+    }
+    bounds = {"zipf_size": (0.0, np.inf), "zipf_types": (0.0, np.inf)}  # used by the minimum chi-square
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
-        return as_output(params["W"] * growth_factor(np.asarray(n, dtype=float) / params["Z"]), n)
+        return as_output(
+            params["zipf_types"] * growth_factor(np.asarray(n, dtype=float) / params["zipf_size"]), n
+        )
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
         n_arr, m_arr = np.broadcast_arrays(np.asarray(n, dtype=float), np.asarray(m, dtype=float))
         out = np.empty(n_arr.shape)
         for size in np.unique(n_arr):
             here = n_arr == size
-            out[here] = params["W"] * legomena_shares(size / params["Z"], m_arr[here])
+            out[here] = params["zipf_types"] * legomena_shares(size / params["zipf_size"], m_arr[here])
         return out
 
     def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:

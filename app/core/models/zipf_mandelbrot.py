@@ -1,4 +1,4 @@
-"""Zipf-Mandelbrot LNRE model (Evert 2004).
+"""Zipf-Mandelbrot model of a population of word probabilities (Evert 2004).
 
 Type density g(pi) = C pi^(-a-1) on 0 < pi <= B, 0 < a < 1, normalised so that integral pi g(pi) dpi = 1:
 C = (1 - a) / B^(1-a). Under Poisson sampling of n tokens
@@ -79,20 +79,30 @@ def power_law_scale(spectrum: Spectrum, a: float) -> float:
 
 
 class ZipfMandelbrot(VocabularyModel):
-    """Zipf-Mandelbrot LNRE model: g(pi) = C pi^(-a-1) on (0, B] (module docstring, Evert 2004)."""
+    """Zipf-Mandelbrot: g(pi) = C pi^(-a-1) on (0, B] (module docstring, Evert 2004); a is ``exponent`` and
+    B ``max_probability``."""
 
     name = "power_law"
     title = "power law (Zipf-Mandelbrot)"
-    parameter_names = ("a", "B")
+    formula = (
+        "g(pi) = C pi^(-exponent-1) for 0 < pi <= max_probability; E[V_m(n)] = C n^a gamma(m - a, n B) / m!"
+    )
+    parameter_names = ("exponent", "max_probability")
     min_tokens = POPULATION_FIT_MIN_TOKENS
-    bounds = {"a": (0.0, 1.0), "B": (0.0, np.inf)}
+    parameter_meanings = {
+        "exponent": "a, 0 < a < 1: how fast the number of types grows as probabilities fall (larger = more rare types)",
+        "max_probability": "B: the probability of the most frequent type, where the power law ends",
+    }
+    bounds = {"exponent": (0.0, 1.0), "max_probability": (0.0, np.inf)}
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
-        return power_law_types(n, params["a"], 0.0, params["B"])
+        return power_law_types(n, params["exponent"], 0.0, params["max_probability"])
 
     def expected_spectrum(self, n: ArrayLike, m: ArrayLike, params: Mapping[str, float]) -> np.ndarray:
-        return power_law_spectrum(n, m, params["a"], 0.0, params["B"])
+        return power_law_spectrum(n, m, params["exponent"], 0.0, params["max_probability"])
 
     def initial_guesses(self, spectrum: Spectrum) -> list[Params]:
         a = hapax_exponent(spectrum)
-        return [{"a": x, "B": power_law_scale(spectrum, x)} for x in (a, 0.5 * (a + 0.5))]
+        return [
+            {"exponent": x, "max_probability": power_law_scale(spectrum, x)} for x in (a, 0.5 * (a + 0.5))
+        ]

@@ -1,4 +1,4 @@
-"""LNRE models (Zipf-Mandelbrot, finite Zipf-Mandelbrot, GIGP): closed forms, fitting, covariances."""
+"""Population models (Zipf-Mandelbrot, finite Zipf-Mandelbrot, GIGP): closed forms, fitting, covariances."""
 
 from __future__ import annotations
 
@@ -8,7 +8,7 @@ from scipy import stats
 
 from app.core.models import MODELS
 from app.core.models.goodness import poisson_covariance
-from tests.core.lnre_samples import (
+from tests.core.population_samples import (
     expected_count_by_quad,
     expected_types_by_quad,
     gigp_density,
@@ -20,21 +20,31 @@ from tests.core.lnre_samples import (
 
 # (model name, parameters, density written from its definition, integration range)
 CASES = [
-    ("power_law", {"a": 0.6, "B": 0.02}, power_law_density(0.6, 0.0, 0.02), (1e-35, 0.02)),
+    (
+        "power_law",
+        {"exponent": 0.6, "max_probability": 0.02},
+        power_law_density(0.6, 0.0, 0.02),
+        (1e-35, 0.02),
+    ),
     (
         "bounded_power_law",
-        {"a": 0.7, "A": 1e-6, "B": 0.02},
+        {"exponent": 0.7, "min_probability": 1e-6, "max_probability": 0.02},
         power_law_density(0.7, 1e-6, 0.02),
         (1e-6, 0.02),
     ),
-    ("sichel", {"b": 0.02, "c": 0.01, "g": -0.6}, gigp_density(0.02, 0.01, -0.6), (1e-26, 2.0)),
+    (
+        "sichel",
+        {"rare_cutoff": 0.02, "frequent_scale": 0.01, "shape": -0.6},
+        gigp_density(0.02, 0.01, -0.6),
+        (1e-26, 2.0),
+    ),
 ]
 SIZES = [10.0, 1e3, 1e5, 1e7, 1e9]
 
 
 @pytest.mark.parametrize(("name", "params", "density", "support"), CASES, ids=[c[0] for c in CASES])
 def test_density_is_normalised(name, params, density, support):
-    # Definition of an LNRE type density (Baayen 2001, ch. 2): integral pi g(pi) dpi = 1; checked by
+    # Definition of a type density (Baayen 2001, ch. 2): integral pi g(pi) dpi = 1; checked by
     # scipy.integrate.quad, independently of the model's formulas.
     assert integrate_log(lambda p: p * density(p), *support, 1.0) == pytest.approx(1.0, rel=1e-8)
 
@@ -42,7 +52,7 @@ def test_density_is_normalised(name, params, density, support):
 @pytest.mark.parametrize(("name", "params", "density", "support"), CASES, ids=[c[0] for c in CASES])
 @pytest.mark.parametrize("n", SIZES)
 def test_expected_types_equals_quadrature(name, params, density, support, n):
-    # LNRE definition (Baayen 2001, ch. 2) E[V(N)] = int (1 - e^{-N pi}) g(pi) dpi by scipy.integrate.quad.
+    # Definition (Baayen 2001, ch. 2) E[V(N)] = int (1 - e^{-N pi}) g(pi) dpi by scipy.integrate.quad.
     reference = expected_types_by_quad(density, *support, n)
     assert MODELS[name].expected_types(n, params) == pytest.approx(reference, rel=1e-9)
 
@@ -50,7 +60,7 @@ def test_expected_types_equals_quadrature(name, params, density, support, n):
 @pytest.mark.parametrize(("name", "params", "density", "support"), CASES, ids=[c[0] for c in CASES])
 @pytest.mark.parametrize("n", SIZES)
 def test_expected_spectrum_equals_quadrature(name, params, density, support, n):
-    # LNRE definition (Baayen 2001, ch. 2) E[V_m(N)] = int e^{-N pi} (N pi)^m / m! g(pi) dpi by scipy.integrate.quad.
+    # Definition (Baayen 2001, ch. 2) E[V_m(N)] = int e^{-N pi} (N pi)^m / m! g(pi) dpi by scipy.integrate.quad.
     m = np.array([1, 2, 3, 7, 15, 30])
     reference = np.array([expected_count_by_quad(density, *support, n, int(k)) for k in m])
     model = MODELS[name].expected_spectrum(n, m, params)
@@ -62,7 +72,7 @@ def test_gigp_population_matches_scipy_geninvgauss():
     # distribution: scipy.stats.geninvgauss(p=g, b=b, scale=b c / 2) (substitute pi = (b c / 2) x in the
     # density). S is the limit of E[V(n)] as n grows.
     b, c, g = 0.02, 0.01, -0.6
-    population = MODELS["sichel"].expected_types(1e15, {"b": b, "c": c, "g": g})
+    population = MODELS["sichel"].expected_types(1e15, {"rare_cutoff": b, "frequent_scale": c, "shape": g})
     pi = np.geomspace(1e-8, 0.05, 9)
     np.testing.assert_allclose(
         gigp_density(b, c, g)(pi) / population, stats.geninvgauss(g, b, scale=b * c / 2).pdf(pi), rtol=1e-8
@@ -74,10 +84,12 @@ def test_zipf_mandelbrot_grows_without_bound_and_finite_model_saturates():
     zm, fzm = MODELS["power_law"], MODELS["bounded_power_law"]
     a, A, B = 0.7, 1e-6, 0.02
     C = (1 - a) / (B ** (1 - a) - A ** (1 - a))
-    assert fzm.expected_types(1e12, {"a": a, "A": A, "B": B}) == pytest.approx(
-        C * (A**-a - B**-a) / a, rel=1e-12
+    assert fzm.expected_types(
+        1e12, {"exponent": a, "min_probability": A, "max_probability": B}
+    ) == pytest.approx(C * (A**-a - B**-a) / a, rel=1e-12)
+    ratio = zm.expected_types(1e12, {"exponent": a, "max_probability": B}) / zm.expected_types(
+        1e11, {"exponent": a, "max_probability": B}
     )
-    ratio = zm.expected_types(1e12, {"a": a, "B": B}) / zm.expected_types(1e11, {"a": a, "B": B})
     assert ratio == pytest.approx(10**a, rel=1e-3)
 
 
@@ -88,22 +100,22 @@ def test_zipf_mandelbrot_grows_without_bound_and_finite_model_saturates():
 # that would receive N (1e-14 / B)^(1-a) ~ 0.004 tokens at N = 4e6.
 POPULATIONS = {
     "power_law": (
-        {"a": 0.3, "B": 0.05},
+        {"exponent": 0.3, "max_probability": 0.05},
         power_law_density(0.3, 0.0, 0.05),
         (1e-14, 0.05),
-        {"a": 0.1, "B": 0.3, "prediction": 0.08},
+        {"exponent": 0.1, "max_probability": 0.3, "prediction": 0.08},
     ),
     "bounded_power_law": (
-        {"a": 0.7, "A": 2e-7, "B": 0.02},
+        {"exponent": 0.7, "min_probability": 2e-7, "max_probability": 0.02},
         power_law_density(0.7, 2e-7, 0.02),
         (2e-7, 0.02),
-        {"a": 0.04, "A": 0.05, "B": 0.6, "prediction": 0.012},
+        {"exponent": 0.04, "min_probability": 0.05, "max_probability": 0.6, "prediction": 0.012},
     ),
     "sichel": (
-        {"b": 0.02, "c": 0.01, "g": -0.6},
+        {"rare_cutoff": 0.02, "frequent_scale": 0.01, "shape": -0.6},
         gigp_density(0.02, 0.01, -0.6),
         (1e-12, 1.0),
-        {"b": 0.16, "c": 0.4, "g": 0.06, "prediction": 0.005},
+        {"rare_cutoff": 0.16, "frequent_scale": 0.4, "shape": 0.06, "prediction": 0.005},
     ),
 }
 FIT_SIZE = 4e6
@@ -144,7 +156,7 @@ def test_chi_square_rejects_the_wrong_model():
 
 COVARIANCE_CASES = {
     "bounded_power_law": (
-        {"a": 0.7, "A": 2e-6, "B": 0.02},
+        {"exponent": 0.7, "min_probability": 2e-6, "max_probability": 0.02},
         power_law_density(0.7, 2e-6, 0.02),
         (2e-6, 0.02),
     ),

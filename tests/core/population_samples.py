@@ -1,4 +1,4 @@
-"""Test helpers: LNRE type densities written out from their definitions, and Poisson samples drawn from them.
+"""Test helpers: type densities written out from their definitions, and Poisson samples drawn from them.
 
 The densities are typed here independently of app.core.models (from Evert 2004 for the Zipf-Mandelbrot
 family and Sichel 1975 / Baayen 2001 for GIGP), so that the closed forms can be checked against direct
