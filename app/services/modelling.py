@@ -134,7 +134,7 @@ def compute_model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
         payload = backtest(spectrum, _prefix_spectra(engine, corpus_id)).as_dict()
     except (ValueError, ArithmeticError, np.linalg.LinAlgError) as exc:
         payload = {"error": str(exc) or exc.__class__.__name__}
-    store.store_cached_result(engine, corpus_id, MODELS_KIND, PROGRAM_VERSION, payload)
+    store.store_cached_result(engine, corpus_id, MODELS_KIND, CACHE_KEY, payload)
     return payload
 
 
@@ -147,7 +147,7 @@ def warm_up() -> None:
 def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
     """The cached model report. Raises ModelsPendingError until its task has computed it (the caller says
     so, and makes sure the task is queued), PredictionError with the reason when no model could be fitted."""
-    payload = store.cached_result(engine, corpus_id, MODELS_KIND, PROGRAM_VERSION)
+    payload = store.cached_result(engine, corpus_id, MODELS_KIND, CACHE_KEY)
     if payload is None:
         raise ModelsPendingError(corpus_id)
     if "error" in payload:

@@ -22,7 +22,7 @@ from typing import Any
 
 from sqlalchemy.engine import Engine
 
-from app.config import DEMO_DIR, PROGRAM_VERSION
+from app.config import DEMO_DIR
 from app.ingest.profiles import BUILTIN_PROFILES, TokenizationProfile
 from app.ingest.readers import TextSource
 from app.services import exchange, ingestion, modelling
@@ -41,7 +41,7 @@ log = logging.getLogger("lexigrowth.tasks")
 
 
 def models_key(corpus_id: int) -> str:
-    return f"{MODELS}:{corpus_id}:{PROGRAM_VERSION}"
+    return f"{MODELS}:{corpus_id}:{modelling.CACHE_KEY}"
 
 
 def ingest_params(
