@@ -200,3 +200,18 @@ def test_unlock_forgets_failed_sign_ins(data):
     assert signins.wait_seconds(engine, "cleo", "192.0.2.3", by_pair) > 0
     everything = runner.invoke(app, ["user", "unlock", *data])
     assert everything.exit_code == 0 and signins.wait_seconds(engine, "cleo", "192.0.2.3", by_pair) == 0
+
+
+def test_failures_older_than_a_day_are_removed_from_the_store(data):
+    from datetime import UTC, datetime, timedelta
+
+    from app.store import signins
+
+    engine = engine_of(data)
+    long_ago = datetime.now(UTC) - timedelta(days=2)
+    for address in ("192.0.2.10", "192.0.2.11"):
+        signins.failed(engine, "ben", address, long_ago)
+    signins.failed(engine, "cleo", "192.0.2.12")
+    with engine.connect() as connection:
+        keys = set(connection.execute(text("SELECT key FROM signinfailures")).scalars())
+    assert keys == {"pair cleo 192.0.2.12", "address 192.0.2.12"}

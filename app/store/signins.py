@@ -69,6 +69,8 @@ def wait_seconds(
 def failed(engine: Engine, name: str, address: str, now: datetime | None = None) -> None:
     """Count one failed sign-in of ``name`` from ``address``."""
     now = now or datetime.now(UTC)
+    with transaction(engine) as session:  # forgotten keys go, so the table holds at most a day of failures
+        session.execute(delete(SignInFailures).where(SignInFailures.last_failure_at <= now - FORGET_AFTER))
     for key in _keys(name, address).values():
         for attempt in range(2):  # another process may insert the same key at the same moment
             try:
