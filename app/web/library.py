@@ -7,7 +7,7 @@ from __future__ import annotations
 from typing import Annotated, Any
 
 from fastapi import APIRouter, Depends, Form, HTTPException, Request
-from fastapi.responses import HTMLResponse, RedirectResponse, Response
+from fastapi.responses import HTMLResponse, RedirectResponse
 from pydantic import BaseModel, ConfigDict, Field
 from sqlalchemy.engine import Engine
 
@@ -135,10 +135,3 @@ def change_corpus(corpus_id: CorpusId, body: CorpusChange, engine: EngineDep, vi
 def list_comparisons(engine: EngineDep, viewer: ViewerDep) -> list[dict]:
     """Every saved comparison, newest first, with ``may_delete`` for the one asking."""
     return _comparison_rows(engine, viewer)
-
-
-@router.delete("/api/comparisons/{slug}", status_code=204, tags=["comparisons"])
-def delete_comparison(slug: str, engine: EngineDep, viewer: ViewerDep) -> Response:
-    """Delete a saved comparison (in lab mode the member who saved it or an admin: 403 otherwise)."""
-    _delete_comparison(engine, slug, viewer)
-    return Response(status_code=204)

@@ -139,6 +139,16 @@ class PopulationSpectrum(VocabularyModel):
     name = "population_spectrum"
     title = "recovered population spectrum (linear programming)"
     parameter_names = ("lower_types", "upper_types", "discrepancy")
+    formula = (
+        "population histogram h_j at relative frequencies x_j (linear programming); "
+        "E[V(n)] = sum_j h_j (1 - exp(-n x_j)), E[V_m(n)] = sum_j h_j exp(-n x_j) (n x_j)^m / m!"
+    )
+    parameter_meanings = {
+        "lower_types": "types of the population in the solution with the fewest types consistent with the spectrum",
+        "upper_types": "types of the population in the solution with the most types consistent with the spectrum",
+        "discrepancy": "the weighted distance between the observed and the recovered spectrum (the fit's minimum)",
+    }
+    finite_population = True
 
     def estimate(self, spectrum: Spectrum, m_max: int = 15) -> Params:
         """Three linear programs (``recover``) instead of the shared least squares."""
