@@ -54,7 +54,11 @@ class Dispatcher:
     def models_state(self, corpus_id: int) -> queue.TaskView:
         """The model task of a corpus whose report is missing, queued if there is none (a store made by an
         earlier version, a task lost with its process)."""
-        return self.submit(tasks.queue_models(self.engine, corpus_id))
+        task = tasks.queue_models(self.engine, corpus_id)
+        if task.state == queue.DONE and not modelling.has_model_report(self.engine, corpus_id):
+            queue.requeue(self.engine, task.id, task.params)  # its report was replaced or removed since
+            task = queue.get(self.engine, task.id) or task
+        return self.submit(task)
 
     def models_status(self, corpus_id: int) -> dict[str, Any]:
         """{"status": "ready" | "queued" | "running" | "failed", "error": the reason of a failure}."""

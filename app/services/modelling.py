@@ -144,6 +144,11 @@ def warm_up() -> None:
     backtest(Spectrum.from_frequencies(np.maximum(1, (60 / np.arange(1, 200)).astype(np.int64))))
 
 
+def has_model_report(engine: Engine, corpus_id: int) -> bool:
+    """Whether the model report of this program version and result schema is stored."""
+    return store.cached_result(engine, corpus_id, MODELS_KIND, CACHE_KEY) is not None
+
+
 def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
     """The cached model report. Raises ModelsPendingError until its task has computed it (the caller says
     so, and makes sure the task is queued), PredictionError with the reason when no model could be fitted."""
