@@ -197,7 +197,7 @@ def _ingest_texts(engine, settings, files, name: str, labels: dict, profile, cou
 
 def _report_and_fit(engine, settings, corpus_id: int, fit: bool) -> None:
     """Print the new corpus's totals and fit its models now (or leave them queued)."""
-    from app.services.modelling import model_report
+    from app.services.modelling import PredictionError, model_report
     from app.services.tasks import queue_models, run_now
     from app.store.corpora import get_corpus, summary
 
@@ -215,7 +215,11 @@ def _report_and_fit(engine, settings, corpus_id: int, fit: bool) -> None:
     if ended.state == "failed":
         typer.echo(f"models: {ended.message}")
         return
-    report = model_report(engine, corpus_id)
+    try:
+        report = model_report(engine, corpus_id)
+    except PredictionError as exc:  # the reason no model could be fitted, stored with the corpus
+        typer.echo(f"models: {exc}")
+        return
     typer.echo(f"models fitted: {', '.join(report['fitted'])}; recommended model ready")
 
 

@@ -365,6 +365,12 @@ def backtest(
     backtests; the usable models are the ensemble's members, weighted by the rule of ``Ensemble`` (weight 0
     for those the rule leaves out).
     """
+    if spectrum.tokens and not spectrum.hapaxes:
+        raise ValueError(
+            "the corpus has no hapax legomena (every word occurs at least twice, as in a text pasted more than "
+            "once): the models extrapolate from the rarest words, so none can be fitted; the exact statistics "
+            "and the random-sample interpolation still hold"
+        )
     fitted: dict[str, FittedModel] = {}
     failures: dict[str, str] = {}
     for name, model in models.items():

@@ -202,3 +202,22 @@ def test_estimator_plans_from_totals(client):
     )  # round trip with the forward model
     both = {"tokens": 50_000, "types": 8_000, "plan_types": 9_000, "plan_new_type_rate": 0.01}
     assert client.post("/api/estimate", json=both).status_code == 422
+
+
+def test_a_corpus_without_hapax_legomena_fails_its_models_once_with_a_reason(client):
+    # A paragraph pasted many times: every word occurs at least twice (V_1 = 0). The model report is computed
+    # once, by its task, and stored as a failure with its reason; pages and the API answer from it at once.
+    paragraph = "the tide came in over the flats and the boats lay still in the mud of the harbour "
+    created = client.post("/api/corpora?wait=1", data={"name": "pasted twice", "text": paragraph * 300})
+    assert created.status_code == 201, created.text
+    cid = created.json()["id"]
+    assert created.json()["hapaxes"] == 0
+    summary = client.get(f"/api/corpora/{cid}").json()
+    assert summary["models"]["status"] == "failed" and "no hapax legomena" in summary["models"]["error"]
+    for _ in range(3):  # answered from the stored failure, every time
+        answer = client.get(f"/api/corpora/{cid}/models")
+        assert answer.status_code == 422 and "no hapax legomena" in answer.json()["detail"]
+    page = client.get(f"/corpora/{cid}")
+    assert page.status_code == 200 and "no hapax legomena" in page.text
+    exact = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 100, "model": "sample"})
+    assert exact.status_code == 200
