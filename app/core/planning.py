@@ -23,8 +23,6 @@ import math
 from collections.abc import Callable
 from dataclasses import dataclass
 
-from scipy.optimize import brentq
-
 from app.core.models.base import Predictor
 
 SMALLEST = 1.0
@@ -68,6 +66,8 @@ def _solve(f: Callable[[float], float], what: str, lowest: str, highest: str) ->
         raise UnreachableTargetError(lowest)
     if f_hi < 0:
         raise UnreachableTargetError(highest)
+    from scipy.optimize import brentq  # imported on first use: a server starts without it
+
     return math.exp(brentq(lambda x: f(math.exp(x)), lo, hi, xtol=1e-12, rtol=1e-12))
 
 

@@ -34,9 +34,7 @@ from functools import cached_property
 from typing import Any, ClassVar, Protocol
 
 import numpy as np
-from scipy.optimize import least_squares
-from scipy.special import expit, logit
-from scipy.stats import norm
+from scipy.special import expit, logit, ndtri
 
 from app.core.models.goodness import (
     GoodnessOfFit,
@@ -65,6 +63,8 @@ GROWTH_CHECK_FACTOR = 100
 def _minimise(residuals: Callable[[np.ndarray], np.ndarray], starts: list[np.ndarray]) -> np.ndarray | None:
     """argmin of |residuals(theta)|^2 by scipy.optimize.least_squares (trust region) from each start;
     starts where the formulas break down are skipped; None when no start gives a finite result."""
+    from scipy.optimize import least_squares  # imported on first use: a server starts without it
+
     best = None
     with np.errstate(all="ignore"):
         for theta0 in starts:
@@ -83,7 +83,7 @@ def as_output(values: np.ndarray, like: ArrayLike) -> ArrayLike:
 
 RANGE_LEVEL = 0.9
 """Nominal coverage of every prediction range."""
-Z90 = float(norm.ppf(0.5 + RANGE_LEVEL / 2))  # 1.645, the standard normal 95% quantile
+Z90 = float(ndtri(0.5 + RANGE_LEVEL / 2))  # 1.645, the standard normal 95% quantile
 RANGE_METHOD = (
     "nominal 90% range: +-1.645 x sqrt(s^2 + b^2) relative to the prediction, where s is the relative "
     "standard deviation of the recommended prediction over parametric bootstrap replicates (samples of N "

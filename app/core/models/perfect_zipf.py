@@ -29,8 +29,6 @@ from collections.abc import Mapping
 from functools import lru_cache
 
 import numpy as np
-from scipy.integrate import quad_vec
-from scipy.optimize import brentq
 
 from app.core.models.base import ArrayLike, FittedModel, Params, VocabularyModel, as_output
 from app.core.spectrum import Spectrum
@@ -85,6 +83,8 @@ def _legomena_shares(x: float, frequencies: tuple[float, ...]) -> np.ndarray:
     def integrand(w: float) -> np.ndarray:
         return x * w * (1 - w) ** (k - 1) / (x * w + 1 - w)
 
+    from scipy.integrate import quad_vec  # imported on first use: a server starts without it
+
     value, _ = quad_vec(integrand, 0.0, 1.0, points=(1 / (1 + x),), epsabs=0.0, epsrel=1e-10, norm="max")
     shares = np.array(value, dtype=float)
     shares.flags.writeable = False  # shared by every caller of the cache
@@ -106,6 +106,8 @@ def solve_zipf_fraction(hapax_ratio: float) -> float:
 
     if gap(lo) < 0 or gap(hi) > 0:
         raise ValueError(f"a hapax share of {hapax_ratio} is beyond the perfect-Zipf model's range")
+    from scipy.optimize import brentq  # imported on first use
+
     return math.exp(brentq(gap, lo, hi, xtol=1e-14))
 
 

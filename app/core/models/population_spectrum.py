@@ -40,7 +40,6 @@ from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
-from scipy.optimize import linprog
 from scipy.special import gammaln
 
 from app.core.models.base import ArrayLike, Params, VocabularyModel, as_output
@@ -92,6 +91,8 @@ def _poisson_matrix(lam: np.ndarray, m: np.ndarray) -> np.ndarray:
 
 def recover(spectrum: Spectrum, m_max: int) -> RecoveredPopulation:
     """The lower and upper histograms of the module docstring (three linear programs)."""
+    from scipy.optimize import linprog  # imported on first use: a server starts without it
+
     N = spectrum.tokens
     frequent = spectrum.m > m_max
     observed = spectrum.dense(m_max).astype(float)
