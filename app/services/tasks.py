@@ -32,6 +32,9 @@ from app.store.corpora import count_corpora
 
 INGEST = "ingest"
 MODELS = "models"
+UPLOAD_PRIORITY = 1
+"""A member's upload is counted before queued model reports of other corpora and before the demo corpora."""
+DEMO_PRIORITY = -1
 MODEL_ATTEMPTS = 2
 """Times a model report is started before a crash of its process counts as its failure."""
 PROGRESS_EVERY = 0.25
@@ -204,6 +207,7 @@ def queue_demo_corpora(engine: Engine, demo_dir: Path = DEMO_DIR) -> list[queue.
             ),
             dedupe_key=f"demo:{entry['file']}",
             size_hint=(demo_dir / entry["file"]).stat().st_size,
+            priority=DEMO_PRIORITY,
         )
         for entry in json.loads(manifest.read_text(encoding="utf-8"))["corpora"]
     ]

@@ -149,6 +149,7 @@ class BackgroundTask(SQLModel, table=True):
     done: int = Field(default=0, sa_type=BigInteger)
     total: int = Field(default=0, sa_type=BigInteger)
     size_hint: int = Field(default=0, sa_type=BigInteger)
+    priority: int = Field(default=0)
     corpus_id: int | None = Field(default=None, index=True)
     message: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
     params_json: str = Field(default="{}", sa_column=Column(Text, nullable=False, default="{}"))

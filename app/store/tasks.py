@@ -78,14 +78,17 @@ def enqueue(
     dedupe_key: str | None = None,
     corpus_id: int | None = None,
     size_hint: int = 0,
+    priority: int = 0,
 ) -> TaskView:
-    """A new queued task, or the existing task with the same ``dedupe_key`` (whatever its state)."""
+    """A new queued task, or the existing task with the same ``dedupe_key`` (whatever its state). Tasks of
+    higher ``priority`` are claimed first, then the oldest."""
     row = BackgroundTask(
         id=secrets.token_urlsafe(12),
         kind=kind,
         dedupe_key=dedupe_key,
         corpus_id=corpus_id,
         size_hint=size_hint,
+        priority=priority,
         params_json=json.dumps(params or {}),
     )
     try:
@@ -137,13 +140,16 @@ def claim(engine: Engine, task_id: str, owner: str) -> TaskView | None:
 
 
 def claim_next(engine: Engine, owner: str, max_size: int | None = None) -> TaskView | None:
-    """Take the oldest queued task (of at most ``max_size`` by its size hint) for ``owner``; None if none."""
+    """Take the queued task of highest priority, then the oldest (of at most ``max_size`` by its size hint),
+    for ``owner``; None if none."""
     for _ in range(5):  # another process may take the candidate between the look and the claim
         with Session(engine) as session:
             query = select(BackgroundTask.id).where(BackgroundTask.state == QUEUED)
             if max_size is not None:
                 query = query.where(BackgroundTask.size_hint <= max_size)
-            candidate = session.exec(query.order_by(BackgroundTask.created_at).limit(1)).scalar()
+            candidate = session.exec(
+                query.order_by(BackgroundTask.priority.desc(), BackgroundTask.created_at).limit(1)
+            ).scalar()
         if candidate is None:
             return None
         claimed = claim(engine, candidate, owner)

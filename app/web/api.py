@@ -101,6 +101,7 @@ def upload_corpus(
                 source_kind=source_kind,
             ),
             size_hint=upload.total_bytes,
+            priority=tasks.UPLOAD_PRIORITY,
         )
     except BaseException:
         upload.cleanup()

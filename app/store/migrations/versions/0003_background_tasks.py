@@ -31,6 +31,7 @@ def upgrade() -> None:
         sa.Column("done", sa.BigInteger(), nullable=False),
         sa.Column("total", sa.BigInteger(), nullable=False),
         sa.Column("size_hint", sa.BigInteger(), nullable=False),
+        sa.Column("priority", sa.Integer(), nullable=False),
         sa.Column("corpus_id", sa.Integer(), nullable=True),
         sa.Column("message", sa.Text(), nullable=True),
         sa.Column("params_json", sa.Text(), nullable=False),
