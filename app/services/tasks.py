@@ -71,10 +71,15 @@ def ingest_params(
     }
 
 
-def queue_models(engine: Engine, corpus_id: int) -> queue.TaskView:
+def queue_models(engine: Engine, corpus_id: int, priority: int = 0) -> queue.TaskView:
     """The model-report task of a corpus (queued now unless one exists for this program version)."""
     return queue.enqueue(
-        engine, MODELS, {"corpus_id": corpus_id}, dedupe_key=models_key(corpus_id), corpus_id=corpus_id
+        engine,
+        MODELS,
+        {"corpus_id": corpus_id},
+        dedupe_key=models_key(corpus_id),
+        corpus_id=corpus_id,
+        priority=priority,
     )
 
 
@@ -144,7 +149,7 @@ def run(
         if task.kind == INGEST:
             corpus_id = _run_ingest(engine, task, work_dir, progress)
             queue.finish(engine, task.id, corpus_id)
-            after(queue_models(engine, corpus_id))
+            after(queue_models(engine, corpus_id, min(task.priority, 0)))  # a demo's report waits its turn
         elif task.kind == MODELS:
             progress.stage("fitting models")
             modelling.compute_model_report(engine, int(task.params["corpus_id"]))

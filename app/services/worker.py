@@ -53,7 +53,12 @@ def _lane(
                 tasks.run(engine, task, work_dir, follow_ups.append)
             finally:
                 running.pop(lane, None)
-            task = queue.claim(engine, follow_ups.pop(0).id, owner) if follow_ups else None
+            # A member's new corpus is fitted at once; the demo corpora's reports wait behind uploads.
+            task = (
+                queue.claim(engine, follow_ups.pop(0).id, owner)
+                if follow_ups and task.priority >= 0
+                else None
+            )
 
 
 def worker_main(database_url: str, work_dir: str) -> None:

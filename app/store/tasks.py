@@ -46,6 +46,7 @@ class TaskView:
     corpus_id: int | None
     message: str | None
     params: dict[str, Any]
+    priority: int = 0
 
     @classmethod
     def of(cls, row: BackgroundTask) -> TaskView:
@@ -59,6 +60,7 @@ class TaskView:
             row.corpus_id,
             row.message,
             json.loads(row.params_json),
+            row.priority,
         )
 
     @property
