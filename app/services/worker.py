@@ -7,7 +7,8 @@ counted and fitted while a large corpus is being ingested.
 
 The worker dies with its server: on Linux it asks the kernel for SIGTERM when its parent ends (even by
 ``kill -9``), and so do the counting processes it starts (``app.ingest.engines``). On SIGTERM it marks its
-running tasks failed, removes their scratch and exits at once. Tasks of processes that died anyway are
+running uploads failed (removing their scratch), puts running model reports back in the queue, and exits at
+once. Tasks of processes that died anyway are
 failed by ``tasks.recover`` when a server starts.
 """
 
@@ -72,6 +73,9 @@ def worker_main(database_url: str, work_dir: str) -> None:
 
     def on_sigterm(_signum, _frame) -> None:
         for task in list(running.values()):
+            if task.kind == tasks.MODELS:  # the corpus is stored: its report is computed after the restart
+                queue.requeue(engine, task.id, task.params)
+                continue
             queue.fail(engine, task.id, "stopped: the server was shut down while this ran; try again")
             tasks.remove_scratch(task)
         os._exit(0)
