@@ -35,6 +35,21 @@ def _running(pid: int) -> bool:
     return True
 
 
+def remove_own(work_dir: Path) -> None:
+    """Delete the scratch entries of this process (a process that exits at once, on SIGTERM)."""
+    for entry in work_dir.iterdir():
+        match = _ENTRY.match(entry.name)
+        if match is not None and int(match.group(1)) == os.getpid():
+            _remove_entry(entry)
+
+
+def _remove_entry(entry: Path) -> None:
+    if entry.is_dir():
+        shutil.rmtree(entry, ignore_errors=True)
+    else:
+        entry.unlink(missing_ok=True)
+
+
 def remove_orphans(work_dir: Path) -> list[str]:
     """Delete the scratch entries in ``work_dir`` whose process has ended; return their names."""
     removed = []
@@ -42,9 +57,6 @@ def remove_orphans(work_dir: Path) -> list[str]:
         match = _ENTRY.match(entry.name)
         if match is None or _running(int(match.group(1))):
             continue
-        if entry.is_dir():
-            shutil.rmtree(entry, ignore_errors=True)
-        else:
-            entry.unlink(missing_ok=True)
+        _remove_entry(entry)
         removed.append(entry.name)
     return removed

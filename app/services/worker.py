@@ -21,6 +21,7 @@ import signal
 import threading
 from pathlib import Path
 
+from app.ingest import scratch
 from app.ingest.lifetime import die_with_parent
 from app.services import modelling, tasks
 from app.store import tasks as queue
@@ -78,6 +79,7 @@ def worker_main(database_url: str, work_dir: str) -> None:
                 continue
             queue.fail(engine, task.id, "stopped: the server was shut down while this ran; try again")
             tasks.remove_scratch(task)
+        scratch.remove_own(Path(work_dir))  # the type-id file of a count under way
         os._exit(0)
 
     signal.signal(signal.SIGTERM, on_sigterm)
