@@ -73,13 +73,13 @@ def worker_main(database_url: str, work_dir: str) -> None:
     running: dict[str, queue.TaskView] = {}
 
     def on_sigterm(_signum, _frame) -> None:
+        scratch.remove_own(Path(work_dir))  # first: the type-id file of a count under way
         for task in list(running.values()):
             if task.kind == tasks.MODELS:  # the corpus is stored: its report is computed after the restart
                 queue.requeue(engine, task.id, task.params)
                 continue
             queue.fail(engine, task.id, "stopped: the server was shut down while this ran; try again")
             tasks.remove_scratch(task)
-        scratch.remove_own(Path(work_dir))  # the type-id file of a count under way
         os._exit(0)
 
     signal.signal(signal.SIGTERM, on_sigterm)
