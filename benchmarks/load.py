@@ -103,7 +103,9 @@ def upload_text(user: int, round_: int) -> str:
     return " ".join(f"w{int(rng.paretovariate(1.1)) % 50_000}" for _ in range(UPLOAD_WORDS))
 
 
-def run_user(base_url: str, urls: list[tuple[str, str]], deadline: float, timeout: float) -> list[Sample]:
+def run_user(
+    base_url: str, urls: list[tuple[str, str]], deadline: float, timeout: float, user: int = 0
+) -> list[Sample]:
     """Request ``urls`` in a loop until ``deadline`` (time.monotonic) and return every request's sample."""
     samples: list[Sample] = []
     rounds = 0
@@ -116,9 +118,7 @@ def run_user(base_url: str, urls: list[tuple[str, str]], deadline: float, timeou
                 started = time.perf_counter()
                 try:
                     if page == "upload":
-                        text = upload_text(
-                            int(threading.current_thread().name.rpartition("-")[2] or 0), rounds
-                        )
+                        text = upload_text(user, rounds)
                         response = client.post(url, data={"name": f"load {rounds}", "text": text})
                         expected = 202
                     else:
@@ -137,7 +137,7 @@ def run_load(
     results: list[list[Sample]] = [[] for _ in range(users)]
 
     def user(index: int) -> None:
-        results[index] = run_user(base_url, user_urls(ids, index, uploads), deadline, timeout)
+        results[index] = run_user(base_url, user_urls(ids, index, uploads), deadline, timeout, index)
 
     threads = [threading.Thread(target=user, args=(i,), name=f"user-{i}") for i in range(users)]
     for thread in threads:

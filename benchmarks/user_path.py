@@ -114,16 +114,14 @@ def run_naive(path: Path, workdir: Path) -> Timing:
 
 def check_page_ready(data_dir: Path) -> None:
     """Render corpus 1's page and JSON twin from the store, computing nothing: the models must be there."""
-    os.environ.update(_environment(data_dir) | {"LEXIGROWTH_TASK_WORKER": "0"})
     from fastapi.testclient import TestClient
 
     from app.config import Settings
     from app.main import create_app
 
-    with TestClient(create_app(Settings())) as client:
+    settings = Settings(data_dir=data_dir, load_demo=False, task_worker=False)
+    with TestClient(create_app(settings)) as client:
         page, twin = client.get("/corpora/1"), client.get("/api/corpora/1")
-    for key in [k for k in os.environ if k.startswith("LEXIGROWTH_")]:
-        del os.environ[key]
     assert page.status_code == 200 and "models-pending" not in page.text, "the corpus page is not ready"
     assert twin.json()["models"]["status"] in ("ready", "failed"), twin.json()["models"]
 

@@ -24,7 +24,7 @@ def as_job(task: queue.TaskView, models: queue.TaskView | None = None) -> dict[s
         "kind": task.kind,
         "status": task.state,
         "stage": task.stage,
-        "done_bytes": task.done if task.stage == "counting" or task.finished else 0,
+        "done_bytes": task.done,
         "total_bytes": task.total,
         "progress": round(min(share, 1.0), 4),
         "corpus_id": task.corpus_id,

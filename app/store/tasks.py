@@ -84,6 +84,8 @@ def enqueue(
 ) -> TaskView:
     """A new queued task, or the existing task with the same ``dedupe_key`` (whatever its state). Tasks of
     higher ``priority`` are claimed first, then the oldest."""
+    if dedupe_key is not None and (existing := find(engine, dedupe_key)) is not None:
+        return existing  # a read only: pages that ask for a pending report again write nothing
     row = BackgroundTask(
         id=secrets.token_urlsafe(12),
         kind=kind,
@@ -98,7 +100,7 @@ def enqueue(
             session.add(row)
             session.flush()
             return TaskView.of(row)
-    except IntegrityError:
+    except IntegrityError:  # another process inserted the same key between the look and the insert
         if dedupe_key is None:
             raise
     existing = find(engine, dedupe_key)
