@@ -21,7 +21,7 @@ from app.services.jobs import Dispatcher
 from app.services.worker import TaskWorker
 from app.store.db import make_engine
 from app.web import api, assets, compare, library, pages, security
-from app.web.caching import EntityTagMiddleware
+from app.web.caching import GZIP_LEVEL, EntityTagMiddleware
 from app.web.jsonsafe import FiniteJSONResponse
 from app.web.limits import BodyLimitMiddleware, HeadMiddleware
 
@@ -77,7 +77,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.add_middleware(HeadMiddleware)
 
     # Responses of 1 kB or more are gzip-compressed when the browser accepts it (plotly.js is compressed once).
-    app.add_middleware(GZipMiddleware, minimum_size=1000)
+    app.add_middleware(GZipMiddleware, minimum_size=1000, compresslevel=GZIP_LEVEL)
 
     app.mount(security.SWAGGER_ASSETS, StaticFiles(directory=swagger_ui_path), name="swagger-ui")
 

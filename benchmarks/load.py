@@ -1,7 +1,7 @@
 """Load test of a running server: simulated users browsing the Library, Corpus and Comparison pages.
 
 Usage: ``python benchmarks/load.py [--url http://127.0.0.1:8000 | --serve 1,4 [--database-url URL]]
-[--users 20] [--duration 60] [--timeout 30] [--uploads]``
+[--users 20] [--duration 60] [--timeout 30] [--uploads] [--think SECONDS]``
 
 The server must hold at least two corpora (``lexigrowth serve`` loads the demo corpora into an empty store).
 With ``--serve``, the script starts ``lexigrowth serve --workers N`` itself for each N given, on a new store
@@ -11,15 +11,15 @@ throughput relative to the first.
 With ``--uploads``, every user also pastes a 2,000-word text once per loop (``POST /api/corpora``, timed
 until the 202 that acknowledges it; the counting and fitting go on in the background meanwhile).
 Each user is a thread with its own HTTP connection (kept alive, as a browser does) and requests, in a loop
-and without pause, the Library (``/``), a Corpus page (``/corpora/{id}``, the corpora in turn) and a
+and without pause (with ``--think``, after a pause of that mean, as a person reading), the Library (``/``), a Corpus page (``/corpora/{id}``, the corpora in turn) and a
 Comparison page (``/compare?corpus=..``, the live view of two or three corpora, in turn); users start at
 different corpora. A user sends its next request when the previous one is answered (a closed loop), so
-the load adapts to the server: the numbers to read are the latencies and the absence of errors at that
+without pauses the load adapts to the server: the numbers to read are the latencies and the absence of errors at that
 concurrency. No new request starts after ``--duration`` seconds; those under way are waited for.
 
 An error is any answer other than 200 or a transport failure (refused connection, timeout). The output is
-a Markdown table: per page and overall, requests, errors and the 50th, 95th and 99th percentile latency
-in milliseconds (linear interpolation between order statistics, numpy.percentile's default), with the
+a Markdown table: per page and overall, requests, errors, the 50th, 95th and 99th percentile and the largest
+latency in milliseconds (linear interpolation between order statistics, numpy.percentile's default), with the
 throughput. Client and server share the machine when run on loopback: the latencies include the client's
 own share of the CPU. Exit code: 0 without errors, 1 with any error, 2 if the server cannot be used.
 """
@@ -59,7 +59,7 @@ class Sample:
 
 @dataclass(frozen=True)
 class Row:
-    """Summary of one page (or of all pages): requests, errors and latency percentiles in milliseconds."""
+    """Summary of one page (or of all pages): requests, errors, latency percentiles and maximum in ms."""
 
     page: str
     requests: int
@@ -104,11 +104,19 @@ def upload_text(user: int, round_: int) -> str:
 
 
 def run_user(
-    base_url: str, urls: list[tuple[str, str]], deadline: float, timeout: float, user: int = 0
+    base_url: str,
+    urls: list[tuple[str, str]],
+    deadline: float,
+    timeout: float,
+    user: int = 0,
+    think: float = 0.0,
 ) -> list[Sample]:
-    """Request ``urls`` in a loop until ``deadline`` (time.monotonic) and return every request's sample."""
+    """Request ``urls`` in a loop until ``deadline`` (time.monotonic) and return every request's sample;
+    with ``think`` > 0, pause after each answer for a time drawn from the exponential distribution of that
+    mean (seeded by the user's index), as a person reads a page before the next click."""
     samples: list[Sample] = []
     rounds = 0
+    reading = random.Random(user)
     with httpx.Client(base_url=base_url, timeout=timeout) as client:
         while True:
             rounds += 1
@@ -127,17 +135,26 @@ def run_user(
                 except httpx.HTTPError as exc:
                     error = f"{type(exc).__name__} {url}"
                 samples.append(Sample(page, time.perf_counter() - started, error))
+                if think > 0:
+                    time.sleep(min(reading.expovariate(1 / think), max(0.0, deadline - time.monotonic())))
 
 
 def run_load(
-    base_url: str, ids: Sequence[int], users: int, duration: float, timeout: float, uploads: bool = False
+    base_url: str,
+    ids: Sequence[int],
+    users: int,
+    duration: float,
+    timeout: float,
+    uploads: bool = False,
+    think: float = 0.0,
 ) -> list[Sample]:
     """``users`` threads running ``run_user`` together for ``duration`` seconds; all their samples."""
     deadline = time.monotonic() + duration
     results: list[list[Sample]] = [[] for _ in range(users)]
 
     def user(index: int) -> None:
-        results[index] = run_user(base_url, user_urls(ids, index, uploads), deadline, timeout, index)
+        urls = user_urls(ids, index, uploads)
+        results[index] = run_user(base_url, urls, deadline, timeout, index, think)
 
     threads = [threading.Thread(target=user, args=(i,), name=f"user-{i}") for i in range(users)]
     for thread in threads:
@@ -155,14 +172,15 @@ def summarize(samples: Sequence[Sample]) -> list[Row]:
             page,
             len(group),
             sum(s.error is not None for s in group),
-            tuple(percentile([1000 * s.seconds for s in group], q) for q in PERCENTILES),
+            tuple(percentile([1000 * s.seconds for s in group], q) for q in PERCENTILES)
+            + (max((1000 * s.seconds for s in group), default=math.nan),),
         )
         for page, group in groups
     ]
 
 
 def format_table(rows: Sequence[Row]) -> str:
-    header = ["page", "requests", "errors", *(f"p{q} ms" for q in PERCENTILES)]
+    header = ["page", "requests", "errors", *(f"p{q} ms" for q in PERCENTILES), "max ms"]
     lines = ["| " + " | ".join(header) + " |", "|" + "---|" * len(header)]
     for row in rows:
         cells = [row.page, f"{row.requests:,}", f"{row.errors:,}", *(f"{v:,.0f}" for v in row.percentiles_ms)]
@@ -241,7 +259,7 @@ def measure(base_url: str, args: argparse.Namespace) -> tuple[list[Sample], floa
     if len(ids) < 2:
         raise SystemExit(f"error: {base_url} holds {len(ids)} corpora; a comparison needs at least 2")
     started = time.monotonic()
-    samples = run_load(base_url, ids, args.users, args.duration, args.timeout, args.uploads)
+    samples = run_load(base_url, ids, args.users, args.duration, args.timeout, args.uploads, args.think)
     return samples, time.monotonic() - started, len(ids)
 
 
@@ -251,6 +269,9 @@ def main(argv: Sequence[str] | None = None) -> int:
     parser.add_argument("--serve", help="start the server with these numbers of processes in turn (e.g. 1,4)")
     parser.add_argument("--database-url", help="with --serve: a PostgreSQL URL (emptied first)")
     parser.add_argument("--uploads", action="store_true", help="every user also uploads a text per loop")
+    parser.add_argument(
+        "--think", type=float, default=0.0, help="mean seconds a user reads each page (default: no pause)"
+    )
     parser.add_argument("--users", type=int, default=20, help="simulated users (default: %(default)s)")
     parser.add_argument("--duration", type=float, default=60, help="seconds of load (default: %(default)s)")
     parser.add_argument(

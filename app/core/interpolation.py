@@ -189,34 +189,21 @@ def expected_spectrum_binomial(spectrum: Spectrum, n: float, k_max: int = 20) ->
     return np.exp(np.where(m >= k, log_p, -np.inf)) @ spectrum.vm.astype(float)
 
 
-def _pair_frequency_counts(spectrum: Spectrum) -> tuple[np.ndarray, np.ndarray]:
-    """Self-convolution of the spectrum: c_s = sum_{m + m' = s} V_m V_m' over ordered pairs.
-
-    Computed by FFT on the dense spectrum and rounded back to the exact integers.
-    """
-    dense = np.zeros(int(spectrum.m[-1]) + 1 if spectrum.m.size else 1)
-    dense[spectrum.m] = spectrum.vm
-    size = 1 << int(2 * dense.size - 1).bit_length()
-    conv = np.fft.irfft(np.fft.rfft(dense, size) ** 2, size)[: 2 * dense.size - 1]
-    c = np.rint(conv)
-    s = np.flatnonzero(c > 0)
-    return s, c[s]
-
-
-def variance_types(spectrum: Spectrum, n: int, _pairs: tuple[np.ndarray, np.ndarray] | None = None) -> float:
+def variance_types(spectrum: Spectrum, n: int) -> float:
     """Exact Var[V(n)] under sampling without replacement.
 
     With q_m = C(N-m, n)/C(N, n) (type of frequency m missed) and, for two distinct types, the chance that
     both are missed q_{m+m'} = C(N-m-m', n)/C(N, n):
         Var V(n) = sum_i q_i (1 - q_i) + sum_{i != j} (q_{f_i+f_j} - q_i q_j)
                  = U - U^2 + sum_s c_s q_s - sum_m V_m q_{2m},    U = sum_m V_m q_m,
-    where c_s counts ordered pairs of types (including i = j) whose frequencies sum to s.
+    where c_s counts ordered pairs of types (including i = j) whose frequencies sum to s
+    (``Spectrum.pair_frequency_counts``).
     """
     N = _check_size(spectrum, n)
     n = int(n)
     if n in (0, N) or spectrum.types == 0:
         return 0.0
-    s, c = _pair_frequency_counts(spectrum) if _pairs is None else _pairs
+    s, c = spectrum.pair_frequency_counts
     _, u, pair_sum, same_type = _miss_sums(spectrum, N, n, s, c)
     return max(u - u * u + pair_sum - same_type, 0.0)
 
@@ -274,7 +261,7 @@ def types_band(spectrum: Spectrum, n: int) -> TypesBand:
 def growth_band(spectrum: Spectrum, sizes: np.ndarray) -> list[TypesBand]:
     """Random-order expected type growth with its 95% band at each size."""
     N = spectrum.tokens
-    s, c = _pair_frequency_counts(spectrum)
+    s, c = spectrum.pair_frequency_counts
     bands = []
     for n in (int(x) for x in sizes):
         _check_size(spectrum, n)

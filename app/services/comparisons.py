@@ -14,8 +14,6 @@ from __future__ import annotations
 
 import json
 import math
-import threading
-from collections import OrderedDict
 from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
 from typing import Any
@@ -33,6 +31,7 @@ from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
 from app.services import modelling
 from app.services.export import table_text
+from app.services.memo import RecentResults
 from app.store import comparisons as saved
 from app.store import corpora as store
 from app.store.corpora import CorpusNotFoundError
@@ -419,19 +418,34 @@ def _legomena(members: list[_Member], rows: list[dict[str, Any]]) -> dict[str, A
     return {"k": list(range(1, LEGOMENA_K + 1)), "rows": profiles}
 
 
+DISTINCTIVE_MAX_TYPES = 400_000
+"""The most types (both corpora together) whose distinctive words a page computes. Reading both word lists
+and testing every word runs at about 150,000 types a second on one core (two generated corpora of 460,000
+and 296,000 types: 4.9 s, measured on the development machine), so the section stays under about 3 s;
+beyond, the page says so instead of keeping its request (and a server thread) busy for longer."""
+
+
+def _distinctive_refusal(corpora: list[Corpus]) -> str | None:
+    """Why the distinctive words of this pair are not computed in a page, or None when they are."""
+    without = [c.name for c in corpora if not store.source(c)["word_list"]]
+    if without:
+        return f"no distinctive words: {', '.join(without)} has no word list (made from a frequency spectrum)"
+    types = [c.types for c in corpora]
+    if sum(types) > DISTINCTIVE_MAX_TYPES:
+        return (
+            f"distinctive words are not computed in a page for corpora this large: {types[0]:,} + {types[1]:,} "
+            f"types, more than the {DISTINCTIVE_MAX_TYPES:,} (about 3 s of computation) a page may take; "
+            "compare the two word lists offline (each corpus page offers its words as CSV)"
+        )
+    return None
+
+
 def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: int) -> dict[str, Any]:
-    without = [
-        c.name for c in store.get_corpora(engine, list(pair)).values() if not store.source(c)["word_list"]
-    ]
-    counts = [{}, {}] if without else [store.frequencies(engine, cid) for cid in pair]
+    found = store.get_corpora(engine, list(pair))
+    refusal = _distinctive_refusal([found[cid] for cid in pair])
+    counts = [{}, {}] if refusal else [store.frequencies(engine, cid) for cid in pair]
     words = distinctive_words(counts[0], counts[1], min_freq) if all(counts) else []
-    note = (
-        {
-            "note": f"no distinctive words: {', '.join(without)} has no word list (made from a frequency spectrum)"
-        }
-        if without
-        else {}
-    )
+    note = {"note": refusal} if refusal else {}
     return note | {
         "first": pair[0],
         "second": pair[1],
@@ -586,31 +600,26 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
     }
 
 
-_cache: OrderedDict[tuple, dict[str, Any]] = OrderedDict()
-_cache_lock = threading.Lock()
+_snapshots: RecentResults[dict[str, Any]] = RecentResults(CACHE_SIZE)
 
 
 def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, Any]:
-    """The snapshot for these settings on the current library (cached in memory per corpus versions);
-    raises CorpusNotFoundError for an unknown id and ComparisonInputError for unusable settings."""
+    """The snapshot for these settings on the current library (cached in memory per corpus versions and
+    model-report stamps); raises CorpusNotFoundError for an unknown id and ComparisonInputError for unusable
+    settings."""
     corpora = _corpora(engine, settings.corpora)
     resolved = _resolve(settings, corpora)
+    stamps = modelling.report_stamps(engine, [c.id for c in corpora])
     key = (
         str(engine.url),
-        PROGRAM_VERSION,
+        modelling.CACHE_KEY,
         resolved,
-        tuple((c.id, c.content_hash, c.created_at.isoformat()) for c in corpora),
+        tuple(
+            (c.id, c.content_hash, c.created_at.isoformat(), c.name, c.labels_json, stamps.get(c.id))
+            for c in corpora
+        ),
     )
-    with _cache_lock:
-        if key in _cache:
-            _cache.move_to_end(key)
-            return _cache[key]
-    snapshot = build_snapshot(engine, resolved, corpora)
-    with _cache_lock:
-        _cache[key] = snapshot
-        while len(_cache) > CACHE_SIZE:
-            _cache.popitem(last=False)
-    return snapshot
+    return _snapshots.get(key, lambda: build_snapshot(engine, resolved, corpora))
 
 
 class NotAllowedError(PermissionError):

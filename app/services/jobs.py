@@ -62,14 +62,16 @@ class Dispatcher:
 
     def models_status(self, corpus_id: int) -> dict[str, Any]:
         """{"status": "ready" | "queued" | "running" | "failed", "error": the reason of a failure}."""
-        try:
-            modelling.model_report(self.engine, corpus_id)
-        except modelling.ModelsPendingError:
+        stamp = modelling.report_stamps(self.engine, [corpus_id]).get(corpus_id)
+        if stamp is None:
             task = self.models_state(corpus_id)
             if task.state != queue.DONE:
                 return {"status": task.state, "error": task.message}
-        except modelling.PredictionError as exc:
-            return {"status": queue.FAILED, "error": str(exc)}
+        elif stamp[1]:  # a stored failure: only now is the report read, for its reason
+            try:
+                modelling.model_report(self.engine, corpus_id)
+            except modelling.PredictionError as exc:
+                return {"status": queue.FAILED, "error": str(exc)}
         return {"status": "ready", "error": None}
 
     def uploads_under_way(self) -> list[dict[str, Any]]:

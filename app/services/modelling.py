@@ -7,6 +7,7 @@ are rebuilt from the cached parameters, so pages render without fitting anything
 from __future__ import annotations
 
 import json
+from collections.abc import Iterable
 from dataclasses import asdict, dataclass
 from typing import Any
 
@@ -144,9 +145,15 @@ def warm_up() -> None:
     backtest(Spectrum.from_frequencies(np.maximum(1, (60 / np.arange(1, 200)).astype(np.int64))))
 
 
+def report_stamps(engine: Engine, corpus_ids: Iterable[int]) -> dict[int, tuple[str, bool]]:
+    """For each corpus whose model report of this program version and result schema is stored: when it
+    was stored and whether it records a failure (read without parsing the report). Absent: pending."""
+    return store.cached_result_stamps(engine, corpus_ids, MODELS_KIND, CACHE_KEY)
+
+
 def has_model_report(engine: Engine, corpus_id: int) -> bool:
     """Whether the model report of this program version and result schema is stored."""
-    return store.cached_result(engine, corpus_id, MODELS_KIND, CACHE_KEY) is not None
+    return corpus_id in report_stamps(engine, [corpus_id])
 
 
 def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:

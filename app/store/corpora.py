@@ -302,6 +302,33 @@ def cached_result(engine: Engine, corpus_id: int, kind: str, program_version: st
         return json.loads(row.payload_json)
 
 
+FAILURE_PREFIX = '{"error"'
+"""How a cached payload that records a failure begins (``json.dumps({"error": ...})``)."""
+
+
+def cached_result_stamps(
+    engine: Engine, corpus_ids: Iterable[int], kind: str, program_version: str
+) -> dict[int, tuple[str, bool]]:
+    """For each corpus whose result of ``kind`` is cached for this version: when it was stored and whether
+    it records a failure, read without the payload itself (a page's cache key, a task's state)."""
+    ids = list(corpus_ids)
+    if not ids:
+        return {}
+    with Session(engine) as session:
+        rows = session.execute(
+            select(
+                CachedResult.corpus_id,
+                CachedResult.created_at,
+                func.substr(CachedResult.payload_json, 1, len(FAILURE_PREFIX)) == FAILURE_PREFIX,
+            ).where(
+                CachedResult.corpus_id.in_(ids),
+                CachedResult.kind == kind,
+                CachedResult.program_version == program_version,
+            )
+        )
+        return {int(cid): (created.isoformat(), bool(failed)) for cid, created, failed in rows}
+
+
 def store_cached_result(
     engine: Engine, corpus_id: int, kind: str, program_version: str, payload: dict
 ) -> None:

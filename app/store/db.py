@@ -29,6 +29,7 @@ MIGRATIONS_DIR = Path(__file__).resolve().parent / "migrations"
 # Key of the PostgreSQL advisory lock that lets one process at a time migrate (any fixed 64-bit number).
 _MIGRATION_LOCK = 0x4C657869_67726F77
 _WAL_SWITCH_TRIES = 100  # 50 ms apart
+SQLITE_POOL_SIZE = 16
 # Alembic keeps the running migration in module globals: one migration at a time in a process.
 _ALEMBIC_IN_USE = Lock()
 
@@ -64,7 +65,14 @@ def create_store_engine(url: str) -> Engine:
     database = make_url(url).database
     if is_sqlite and database and database != ":memory:":
         _private_file(Path(database))
-    engine = create_engine(url, connect_args={"check_same_thread": False, "timeout": 30} if is_sqlite else {})
+    if is_sqlite:
+        # One connection per request thread kept open (a new SQLite connection costs its pragmas each time);
+        # a PostgreSQL server counts its connections, so there SQLAlchemy's default pool stays.
+        engine = create_engine(
+            url, connect_args={"check_same_thread": False, "timeout": 30}, pool_size=SQLITE_POOL_SIZE
+        )
+    else:
+        engine = create_engine(url)
     if is_sqlite:
 
         @event.listens_for(engine, "connect")

@@ -27,7 +27,7 @@ from app.web.deps import engine_of
 from app.web.downloads import attachment
 from app.web.figures import PALETTE
 from app.web.jsonsafe import FiniteJSONResponse
-from app.web.pages import render
+from app.web.pages import render_kept
 from app.web.security import Viewer, viewer_of
 
 router = APIRouter()
@@ -208,22 +208,34 @@ def _page(request: Request, snapshot: dict[str, Any], saved: bool, scale: str | 
     )
     base = f"/api/comparisons/{snapshot['slug']}" if saved else "/api/compare"
     suffix = "" if saved else f"?{query}"
-    return render(
+    # A live snapshot is a new object (with a new time of computation) whenever a corpus, its name or its
+    # model report changes; a saved one changes only in visibility and in which corpora are still there.
+    version = (
+        snapshot["computed_at"],
+        snapshot.get("saved_at"),
+        snapshot.get("public"),
+        tuple(c.get("available") for c in snapshot["corpora"]),
+        manage,
+    )
+    return render_kept(
         request,
         "compare.html",
-        snapshot=snapshot,
-        saved=saved,
-        corpora={c["id"]: c for c in snapshot["corpora"]},
-        figures=comparison_figures(snapshot),
-        palette=PALETTE,
-        may_manage=manage,
-        scale="share" if scale == "share" else "tokens",
-        live_query=query,
-        json_url=f"{base}{suffix}",
-        downloads={
-            "table": f"{base}/table.csv{suffix}",
-            "distinctive": f"{base}/distinctive.csv{suffix}",
-            "json": f"{base}{suffix}{'&' if suffix else '?'}download=1",
+        version,
+        lambda: {
+            "snapshot": snapshot,
+            "saved": saved,
+            "corpora": {c["id"]: c for c in snapshot["corpora"]},
+            "figures": comparison_figures(snapshot),
+            "palette": PALETTE,
+            "may_manage": manage,
+            "scale": "share" if scale == "share" else "tokens",
+            "live_query": query,
+            "json_url": f"{base}{suffix}",
+            "downloads": {
+                "table": f"{base}/table.csv{suffix}",
+                "distinctive": f"{base}/distinctive.csv{suffix}",
+                "json": f"{base}{suffix}{'&' if suffix else '?'}download=1",
+            },
         },
     )
 

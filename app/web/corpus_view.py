@@ -10,7 +10,9 @@ from sqlalchemy.engine import Engine
 
 from app.core import planning
 from app.services import modelling
+from app.services.memo import RecentResults
 from app.store import corpora as store
+from app.store.tables import Corpus
 from app.web import figures
 
 WORDS_PER_PAGE = 50
@@ -203,9 +205,22 @@ def plan_section(
         return {"plan": None, "plan_error": str(exc)}
 
 
+PAGE_VIEWS: RecentResults[dict[str, Any]] = RecentResults(32)
+"""The Corpus page's derived part (tables, figures, predictions) by corpus, model-report stamp and the
+page's settings: a page asked for again is assembled, not recomputed."""
+
+
+def view_version(engine: Engine, corpus: Corpus) -> tuple:
+    """What the Corpus page's figures and tables depend on besides its settings: the store, the program,
+    the corpus's counts and, last, its model report's stamp (None while the report is being computed)."""
+    stamp = modelling.report_stamps(engine, [corpus.id]).get(corpus.id)
+    return (str(engine.url), modelling.CACHE_KEY, corpus.id, corpus.content_hash, corpus.created_at, stamp)
+
+
 def corpus_context(
     engine: Engine,
-    corpus_id: int,
+    corpus: Corpus,
+    version: tuple,
     q: str | None,
     page: int,
     sizes_text: str | None,
@@ -214,8 +229,25 @@ def corpus_context(
     target: planning.Target | None = None,
     plan_model: str = "recommended",
 ) -> dict[str, Any]:
-    corpus = store.get_corpus(engine, corpus_id)
-    summary = store.summary(corpus)
+    """Everything the Corpus page shows. The name and labels are read each time (they can be edited); the
+    rest depends only on ``version`` (``view_version``) and the settings, and is kept in PAGE_VIEWS."""
+    settings = (q, page, sizes_text, horizon_factor, common_size, target, plan_model)
+    derived = PAGE_VIEWS.get((version, settings), lambda: _derived_context(engine, corpus, *settings))
+    return {"corpus": store.summary(corpus)} | derived
+
+
+def _derived_context(
+    engine: Engine,
+    corpus: Corpus,
+    q: str | None,
+    page: int,
+    sizes_text: str | None,
+    horizon_factor: float,
+    common_size: int | None,
+    target: planning.Target | None,
+    plan_model: str,
+) -> dict[str, Any]:
+    corpus_id = corpus.id
     tokens = corpus.tokens
     pairs = store.spectrum_pairs(engine, corpus_id)
     dense = dict(pairs)
@@ -237,7 +269,6 @@ def corpus_context(
     )
     return (
         {
-            "corpus": summary,
             "text_order_stats": json.loads(corpus.text_order_json),
             "spectrum_rows": [(m, dense.get(m, 0)) for m in range(1, 21)],
             "spectrum_figure": figures.spectrum_bars(pairs, models.get("expected_at_corpus_size")),

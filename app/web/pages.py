@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
-from typing import Annotated
+import gzip
+from collections.abc import Callable, Hashable
+from dataclasses import dataclass
+from typing import Annotated, Any
 
 from fastapi import APIRouter, Depends, Request
-from fastapi.responses import HTMLResponse
+from fastapi.responses import HTMLResponse, Response
 from sqlalchemy.engine import Engine
 
 from app.config import TEMPLATES_DIR
@@ -13,8 +16,10 @@ from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.services import estimator, library, modelling
 from app.services.jobs import Dispatcher
+from app.services.memo import RecentResults
 from app.store import corpora as store
 from app.web import api, assets, corpus_view, figures
+from app.web.caching import GZIP_LEVEL
 from app.web.deps import corpus_or_404, engine_of, jobs_of
 from app.web.forms import FormInput
 from app.web.glossary import GLOSSARY
@@ -29,6 +34,38 @@ EngineDep = Annotated[Engine, Depends(engine_of)]
 
 def render(request: Request, name: str, status_code: int = 200, **context) -> HTMLResponse:
     return templates.TemplateResponse(request, name, context, status_code=status_code)
+
+
+@dataclass(frozen=True)
+class KeptPage:
+    """A rendered page as sent: its HTML in UTF-8 and the same compressed with gzip."""
+
+    html: bytes
+    gzipped: bytes
+
+
+RENDERED_PAGES: RecentResults[KeptPage] = RecentResults(64)
+"""Rendered pages by address, viewer and the version of what they show (see ``render_kept``)."""
+
+
+def render_kept(
+    request: Request, name: str, version: Hashable, build_context: Callable[[], dict[str, Any]]
+) -> Response:
+    """A page rendered (and compressed) once per address, viewer (``Viewer.page_key``) and ``version``:
+    the caller's key of everything else the page depends on (corpus counts, model-report stamps, names
+    and labels...). The page's context is built only when the page is rendered."""
+    key = (name, str(request.url), request.state.viewer.page_key(), version)
+
+    def rendered() -> KeptPage:
+        html = templates.get_template(name).render({"request": request, **build_context()}).encode()
+        return KeptPage(html, gzip.compress(html, GZIP_LEVEL, mtime=0))
+
+    page = RENDERED_PAGES.get(key, rendered)
+    if "gzip" in request.headers.get("accept-encoding", ""):
+        # already compressed: the gzip middleware passes an answer with a content-encoding through
+        headers = {"content-encoding": "gzip", "vary": "Accept-Encoding"}
+        return Response(page.gzipped, media_type="text/html; charset=utf-8", headers=headers)
+    return HTMLResponse(page.html)
 
 
 @router.get("/", response_class=HTMLResponse)
@@ -116,36 +153,34 @@ def corpus_page(
         form.fail("plan_model", f"unknown model {plan_model[:60]!r}")
         plan_model = modelling.RECOMMENDED
     target = _planning_target(form)
-    context = corpus_view.corpus_context(
-        engine,
-        corpus_id,
-        form.text("q")[:200] or None,
-        page,
-        sizes_text,
-        horizon,
-        common_size,
-        target,
-        plan_model,
-    )
-    if context.get("models_pending"):
-        task = jobs.models_state(corpus_id)
-        if task.state == "failed":
-            context.update(models_pending=None, models_error=task.message)
-        else:
-            context["models_pending"] = "fitting now" if task.state == "running" else "waiting for a worker"
-    status = 422 if form.errors or edit else 200  # the page itself, with each problem beside its form
-    viewer = request.state.viewer
-    return render(
-        request,
-        "corpus.html",
-        status_code=status,
-        form=form,
-        may_edit=viewer.may_delete(corpus.owner_id),
-        labels_text=library.labels_as_text(context["corpus"]["labels"]),
-        edit_form=edit,
-        edit_error=edit["error"] if edit else None,
-        edit_saved=form.text("saved") == "1" and not edit,
-        **context,
+    version = corpus_view.view_version(engine, corpus)
+    settings = (form.text("q")[:200] or None, page, sizes_text, horizon, common_size, target, plan_model)
+
+    def build_context() -> dict[str, Any]:
+        context = corpus_view.corpus_context(engine, corpus, version, *settings)
+        if context.get("models_pending"):
+            task = jobs.models_state(corpus_id)
+            if task.state == "failed":
+                context.update(models_pending=None, models_error=task.message)
+            else:
+                context["models_pending"] = (
+                    "fitting now" if task.state == "running" else "waiting for a worker"
+                )
+        return context | {
+            "form": form,
+            "may_edit": request.state.viewer.may_delete(corpus.owner_id),
+            "labels_text": library.labels_as_text(context["corpus"]["labels"]),
+            "edit_form": edit,
+            "edit_error": edit["error"] if edit else None,
+            "edit_saved": form.text("saved") == "1" and not edit,
+        }
+
+    if form.errors or edit or version[-1] is None:
+        # problems shown beside their forms (422), or models still being computed: rendered as they are
+        status = 422 if form.errors or edit else 200
+        return render(request, "corpus.html", status_code=status, **build_context())
+    return render_kept(
+        request, "corpus.html", (version, corpus.name, corpus.labels_json, corpus.owner_id), build_context
     )
 
 

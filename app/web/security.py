@@ -113,6 +113,12 @@ class Viewer:
             self.session_changed = True
         return self.session["csrf"]
 
+    def page_key(self) -> tuple:
+        """Everything of the viewer that a page shows: the mode, the member (id, name, role) and the CSRF
+        token its forms carry. Two requests with the same key see the same page."""
+        member = self.member and (self.member.id, self.member.name, self.member.is_admin)
+        return (self.lab, member, self.csrf_token())
+
     def csrf_matches(self, sent: str | None) -> bool:
         return _same(self.session.get("csrf"), sent)
 

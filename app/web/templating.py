@@ -25,6 +25,8 @@ def percent(value: float | None, decimals: int = 1) -> str:
 
 def make_templates(directory: Path) -> Jinja2Templates:
     templates = Jinja2Templates(directory=str(directory))
+    # Templates are part of the installed program: not checked for changes on disk at every page.
+    templates.env.auto_reload = False
     templates.env.filters["thousands"] = thousands
     templates.env.filters["percent"] = percent
     # Figures and data embedded with |tojson: NaN and infinities become null (see app.web.jsonsafe).

@@ -203,6 +203,27 @@ def test_distinctive_words_match_scipy_log_likelihood_and_hardies_log_ratio(libr
     assert csv_lines[0] == ",".join(service.DISTINCTIVE_COLUMNS) and len(csv_lines) == 41
 
 
+def test_distinctive_words_of_a_pair_over_the_page_budget_are_refused_with_the_reason(
+    library, tokens, monkeypatch
+):
+    engine, ids = library
+    pair = (ids["short"], ids["middle"])
+    types = [len(set(tokens["short"])), len(set(tokens["middle"]))]
+    # the budget set just below this pair's types (the real one is sized for corpora of 400,000 types)
+    monkeypatch.setattr(service, "DISTINCTIVE_MAX_TYPES", sum(types) - 1)
+    settings = service.check_settings(list(ids.values()), pair=pair, min_freq=3, limit=10)
+    snapshot = service.live_comparison(engine, settings)
+    result = snapshot["distinctive"]
+    assert result["words"] == [] and result["tested"] == 0
+    assert f"{types[0]:,} + {types[1]:,} types" in result["note"]
+    assert "not computed in a page" in result["note"]
+    assert snapshot["size_matched"]["rows"]  # the rest of the comparison is there
+
+    monkeypatch.setattr(service, "DISTINCTIVE_MAX_TYPES", sum(types))  # at the budget: computed
+    other = service.check_settings(list(ids.values()), pair=pair, min_freq=4, limit=10)
+    assert len(service.live_comparison(engine, other)["distinctive"]["words"]) == 10
+
+
 def test_rank_frequency_points_equal_sorted_counts(library, tokens):
     engine, ids = library
     snapshot = service.live_comparison(engine, service.check_settings(list(ids.values())))

@@ -511,6 +511,24 @@ def test_api_token_works_without_csrf_and_a_bad_one_is_refused(lab):
 # ------------------------------------------------------------------------------------------ ownership
 
 
+def test_each_member_gets_a_page_of_their_own_from_the_kept_pages(lab):
+    """Pages are kept rendered per viewer: a member never receives a page made for another (their name,
+    their edit rights, the CSRF token of their forms)."""
+    pages = {}
+    for name in ("ben", "cleo", "ben"):
+        browser, csrf = lab.signed_in(name)
+        for _ in range(2):  # the second view is the kept page
+            page = browser.get(f"/corpora/{lab.corpora[0]}").text
+            assert f'<span class="member-name" title="member">{name}</span>' in page
+            assert hidden_csrf(page) == csrf
+        pages.setdefault(name, []).append(page)
+    # ben owns the corpus: only his page offers to rename it
+    assert all('action="/corpora/' in p and "/edit" in p for p in pages["ben"])
+    assert "/edit" not in pages["cleo"][0]
+    # ben's second session has a new CSRF token, so a page of its own
+    assert hidden_csrf(pages["ben"][0]) != hidden_csrf(pages["ben"][1])
+
+
 def test_only_the_owner_or_an_admin_deletes_a_corpus(lab):
     engine = lab.app.state.engine
     ben = bearer(lab.tokens["ben"])

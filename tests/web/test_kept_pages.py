@@ -1,0 +1,53 @@
+"""Pages kept rendered in memory show every change: a new name or labels, a model report that is replaced,
+a corpus removed from a comparison's library."""
+
+from __future__ import annotations
+
+from app.services import modelling
+from app.store import corpora as store
+from tests.web.test_lab_mode import post_text, words_of
+
+
+def two_corpora(client) -> list[int]:
+    ids = []
+    for name, (a, b) in (("First draft", (0, 1500)), ("Second draft", (1500, 3500))):
+        answer = post_text(client, name, words_of(a, b))
+        assert answer.status_code == 201, answer.text
+        ids.append(answer.json()["id"])
+    return ids
+
+
+def test_corpus_and_comparison_pages_show_a_rename_at_once(client):
+    first, second = two_corpora(client)
+    compare = f"/compare?corpus={first}&corpus={second}"
+    assert "First draft" in client.get(f"/corpora/{first}").text
+    assert "First draft" in client.get(compare).text
+    assert client.get(f"/corpora/{first}").text == client.get(f"/corpora/{first}").text  # kept as it was
+
+    changed = client.patch(
+        f"/api/corpora/{first}", json={"name": "Revised draft", "labels": {"stage": "final"}}
+    )
+    assert changed.status_code == 200
+    page = client.get(f"/corpora/{first}").text
+    assert "Revised draft" in page and "First draft" not in page and "stage: final" in page
+    comparison = client.get(compare).text
+    assert "Revised draft" in comparison and "First draft" not in comparison
+
+
+def test_corpus_page_follows_its_model_report(client):
+    first, _ = two_corpora(client)
+    engine = client.app.state.engine
+    assert "types expected at" in client.get(f"/corpora/{first}").text
+
+    # the report replaced by a stored failure (as a program version whose fit failed would leave it)
+    store.store_cached_result(
+        engine, first, modelling.MODELS_KIND, modelling.CACHE_KEY, {"error": "an invented reason"}
+    )
+    failed = client.get(f"/corpora/{first}").text
+    assert "No vocabulary model could be fitted to this corpus: an invented reason." in failed
+    assert "types expected at" not in failed
+
+    modelling.compute_model_report(engine, first)
+    page = client.get(f"/corpora/{first}").text
+    assert "an invented reason" not in page and "No vocabulary model could be fitted" not in page
+    assert "types expected at" in page  # the recommended model's prediction card is back
