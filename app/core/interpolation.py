@@ -203,30 +203,28 @@ def variance_types(spectrum: Spectrum, n: int) -> float:
     n = int(n)
     if n in (0, N) or spectrum.types == 0:
         return 0.0
-    s, c = spectrum.pair_frequency_counts
-    _, u, pair_sum, same_type = _miss_sums(spectrum, N, n, s, c)
+    _, u, pair_sum, same_type = _miss_sums(spectrum, N, n)
     return max(u - u * u + pair_sum - same_type, 0.0)
 
 
-def _miss_sums(
-    spectrum: Spectrum, N: int, n: int, s: np.ndarray, c: np.ndarray
-) -> tuple[float, float, float, float]:
+def _miss_sums(spectrum: Spectrum, N: int, n: int) -> tuple[float, float, float, float]:
     """E[V(n)], U = sum_m V_m q_m, sum_s c_s q_s and sum_m V_m q_2m from one ``_log_miss`` call over all the
     frequencies involved (one cumulative sum instead of four).
 
     q_x is exactly 0 in double precision for x > N - n and for x >= J = ceil(LOG_FLOOR / log(1 - n / N)),
-    where the log sum has passed ``LOG_FLOOR``; the sorted pair sums beyond min(N - n + 1, J) are skipped.
+    where the log sum has passed ``LOG_FLOOR``; pair sums from min(N - n + 1, J) on are neither convolved nor
+    summed.
     """
     m = spectrum.m
     vm = spectrum.vm.astype(float)
     limit = N - n + 1
     if 0 < n < N:
         limit = min(limit, int(np.ceil(LOG_FLOOR / np.log1p(-n / N))))
-    kept = int(np.searchsorted(s, limit))
-    log_q = _log_miss(N, n, np.concatenate([m, s[:kept], 2 * m]), LOG_FLOOR)
-    q_m, q_s, q_2m = np.split(np.exp(log_q), [m.size, m.size + kept])
+    s, c = spectrum.pair_frequency_counts(limit)
+    log_q = _log_miss(N, n, np.concatenate([m, s, 2 * m]), LOG_FLOOR)
+    q_m, q_s, q_2m = np.split(np.exp(log_q), [m.size, m.size + s.size])
     types = float(np.dot(vm, -np.expm1(log_q[: m.size])))
-    return types, float(np.dot(vm, q_m)), float(np.dot(c[:kept], q_s)), float(np.dot(vm, q_2m))
+    return types, float(np.dot(vm, q_m)), float(np.dot(c, q_s)), float(np.dot(vm, q_2m))
 
 
 def variance_types_binomial(spectrum: Spectrum, n: float) -> float:
@@ -261,13 +259,12 @@ def types_band(spectrum: Spectrum, n: int) -> TypesBand:
 def growth_band(spectrum: Spectrum, sizes: np.ndarray) -> list[TypesBand]:
     """Random-order expected type growth with its 95% band at each size."""
     N = spectrum.tokens
-    s, c = spectrum.pair_frequency_counts
     bands = []
     for n in (int(x) for x in sizes):
         _check_size(spectrum, n)
         if n in (0, N) or spectrum.types == 0:
             bands.append(TypesBand(n, expected_types(spectrum, n), 0.0))
             continue
-        types, u, pair_sum, same_type = _miss_sums(spectrum, N, n, s, c)
+        types, u, pair_sum, same_type = _miss_sums(spectrum, N, n)
         bands.append(TypesBand(n, types, float(np.sqrt(max(u - u * u + pair_sum - same_type, 0.0)))))
     return bands

@@ -7,7 +7,6 @@ from __future__ import annotations
 
 from collections.abc import Iterable
 from dataclasses import dataclass
-from functools import cached_property
 
 import numpy as np
 
@@ -49,22 +48,30 @@ class Spectrum:
             np.array([r[0] for r in rows], dtype=np.int64), np.array([r[1] for r in rows], dtype=np.int64)
         )
 
-    @cached_property
-    def pair_frequency_counts(self) -> tuple[np.ndarray, np.ndarray]:
-        """Self-convolution of the spectrum: (s, c_s) with c_s = sum_{m + m' = s} V_m V_m' over ordered pairs
-        of types (a type with itself included), for the s with c_s > 0.
+    def pair_frequency_counts(self, below: int) -> tuple[np.ndarray, np.ndarray]:
+        """Self-convolution of the spectrum up to ``below``: (s, c_s) for the s < ``below`` with c_s > 0,
+        where c_s = sum_{m + m' = s} V_m V_m' over ordered pairs of types (a type with itself included).
 
-        Computed once per spectrum by FFT on the dense spectrum and rounded back to the exact integers; it
-        does not depend on the sample size, and one FFT of a large corpus's spectrum takes a tenth of a
-        second (the exact variance of V(n) needs it at every size n).
+        Exact: c_s for s < L involves only frequencies below L, so the dense spectrum is cut at L before its
+        FFT and the result rounded back to integers. The variance of V(n) needs c_s only up to where the
+        chance of missing a pair underflows (a few thousand at n >= N/100, whatever the corpus size), so
+        the cost is that of a short FFT, not one over the largest frequency of the corpus. The longest
+        convolution made so far is kept on the spectrum and cut for later, shorter requests.
         """
-        dense = np.zeros(int(self.m[-1]) + 1 if self.m.size else 1)
-        dense[self.m] = self.vm
-        size = 1 << int(2 * dense.size - 1).bit_length()
-        conv = np.fft.irfft(np.fft.rfft(dense, size) ** 2, size)[: 2 * dense.size - 1]
-        c = np.rint(conv)
-        s = np.flatnonzero(c > 0)
-        return s, c[s]
+        top = min(int(below), 2 * int(self.m[-1]) + 1 if self.m.size else 1)
+        kept = self.__dict__.get("_pair_counts")
+        if kept is None or kept[0] < top:
+            inside = self.m < top
+            dense = np.zeros(max(top, 1))
+            dense[self.m[inside]] = self.vm[inside]
+            size = 1 << int(2 * dense.size - 1).bit_length()
+            conv = np.rint(np.fft.irfft(np.fft.rfft(dense, size) ** 2, size)[: dense.size])
+            s = np.flatnonzero(conv > 0)
+            kept = (top, s, conv[s])
+            self.__dict__["_pair_counts"] = kept  # a cache of derived numbers: the spectrum stays as it was
+        _, s, c = kept
+        end = int(np.searchsorted(s, below))
+        return s[:end], c[:end]
 
     @property
     def tokens(self) -> int:
