@@ -5,7 +5,8 @@ queued tasks safely (``app.store.tasks``). A worker has two lanes (threads): one
 only small ones (model reports and uploads up to ``SMALL_TASK_BYTES``), so that a colleague's draft is
 counted and fitted while a large corpus is being ingested.
 
-The worker dies with its server: on Linux it asks the kernel for SIGTERM when its parent ends (even by
+The worker runs at a lower CPU priority than its server (``TASK_NICENESS``), so that background work never
+slows the pages down. It dies with its server: on Linux it asks the kernel for SIGTERM when its parent ends (even by
 ``kill -9``), and so do the counting processes it starts (``app.ingest.engines``). On SIGTERM it marks its
 running uploads failed (removing their scratch), puts running model reports back in the queue, and exits at
 once. Tasks of processes that died anyway are
@@ -28,6 +29,10 @@ from app.store import tasks as queue
 from app.store.db import create_store_engine
 
 SMALL_TASK_BYTES = 4 * 1024 * 1024
+TASK_NICENESS = 10
+"""How much lower than the server's the worker's CPU priority is (``nice``; its counting processes inherit
+it): when pages and background tasks want the same cores, the pages are answered first, and the tasks use
+whatever the pages leave (on an idle machine they run at full speed)."""
 POLL_SECONDS = 0.1
 STOP_SECONDS = 5.0
 
@@ -66,6 +71,7 @@ def _lane(
 def worker_main(database_url: str, work_dir: str) -> None:
     """Entry point of the worker process."""
     die_with_parent()
+    os.nice(TASK_NICENESS)
     logging.basicConfig(level=logging.INFO, format="%(levelname)s %(name)s: %(message)s")
     engine = create_store_engine(database_url)
     owner = queue.process_name()
