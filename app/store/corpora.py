@@ -189,6 +189,23 @@ def list_corpora(engine: Engine) -> list[Corpus]:
         return list(session.exec(select(Corpus).order_by(Corpus.id)).scalars())
 
 
+def library_version(engine: Engine) -> tuple:
+    """What the Library shows of each corpus that can change, or tells one stored corpus from another: id,
+    name, labels, owner, content hash and time of counting; read without the corpora's larger columns."""
+    with Session(engine) as session:
+        rows = session.execute(
+            select(
+                Corpus.id,
+                Corpus.name,
+                Corpus.labels_json,
+                Corpus.owner_id,
+                Corpus.content_hash,
+                Corpus.created_at,
+            ).order_by(Corpus.id)
+        )
+        return tuple(tuple(row) for row in rows)
+
+
 def count_corpora(engine: Engine) -> int:
     with Session(engine) as session:
         return int(session.execute(select(func.count()).select_from(Corpus)).scalar_one())

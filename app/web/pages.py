@@ -72,21 +72,26 @@ def render_kept(
 def library_page(request: Request, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]):
     """The Library: filter by label values (several keys at once; values of one key are alternatives) and by
     a search over names, labels and free-text notes."""
-    every = [store.summary(c) for c in store.list_corpora(engine)]
-    chosen = [v[:500] for v in request.query_params.getlist("label")]
-    search = (request.query_params.get("search") or "")[:200]
-    return render(
-        request,
-        "library.html",
-        corpora=library.filter_corpora(every, chosen, search),
-        total=len(every),
-        arriving=jobs.uploads_under_way(),
-        filters=library.label_filter(every),
-        chosen=set(chosen),
-        search=search,
-        deleted=request.query_params.get("deleted"),
-        json_url="/api/corpora",
-    )
+    arriving = jobs.uploads_under_way()
+
+    def build_context() -> dict[str, Any]:
+        every = [store.summary(c) for c in store.list_corpora(engine)]
+        chosen = [v[:500] for v in request.query_params.getlist("label")]
+        search = (request.query_params.get("search") or "")[:200]
+        return {
+            "corpora": library.filter_corpora(every, chosen, search),
+            "total": len(every),
+            "arriving": arriving,
+            "filters": library.label_filter(every),
+            "chosen": set(chosen),
+            "search": search,
+            "deleted": request.query_params.get("deleted"),
+            "json_url": "/api/corpora",
+        }
+
+    if arriving:  # their progress changes from one view to the next (the page reloads itself meanwhile)
+        return render(request, "library.html", **build_context())
+    return render_kept(request, "library.html", store.library_version(engine), build_context)
 
 
 @router.get("/upload", response_class=HTMLResponse)

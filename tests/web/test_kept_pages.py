@@ -51,3 +51,21 @@ def test_corpus_page_follows_its_model_report(client):
     page = client.get(f"/corpora/{first}").text
     assert "an invented reason" not in page and "No vocabulary model could be fitted" not in page
     assert "types expected at" in page  # the recommended model's prediction card is back
+
+
+def test_library_shows_new_renamed_and_deleted_corpora_at_once(client):
+    first, second = two_corpora(client)
+    assert client.get("/").text == client.get("/").text  # kept as it was
+    assert "First draft" in client.get("/").text
+
+    client.patch(f"/api/corpora/{first}", json={"name": "Revised draft"})
+    assert "Revised draft" in client.get("/").text and "First draft" not in client.get("/").text
+
+    third = post_text(client, "Third draft", words_of(3500, 5000)).json()["id"]
+    assert f'href="/corpora/{third}"' in client.get("/").text
+
+    assert client.delete(f"/api/corpora/{second}").status_code == 204
+    library = client.get("/").text
+    assert f'href="/corpora/{second}"' not in library and "Second draft" not in library
+    assert "Revised draft" in client.get("/?search=revised").text
+    assert "Third draft" not in client.get("/?search=revised").text
