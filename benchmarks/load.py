@@ -10,12 +10,13 @@ corpora and their models are ready, runs the load, stops the server, and prints 
 throughput relative to the first.
 With ``--uploads``, every user also pastes a 2,000-word text once per loop (``POST /api/corpora``, timed
 until the 202 that acknowledges it; the counting and fitting go on in the background meanwhile).
-Each user is a thread with its own HTTP connection (kept alive, as a browser does) and requests, in a loop
-and without pause (with ``--think``, after a pause of that mean, as a person reading), the Library (``/``), a Corpus page (``/corpora/{id}``, the corpora in turn) and a
-Comparison page (``/compare?corpus=..``, the live view of two or three corpora, in turn); users start at
-different corpora. A user sends its next request when the previous one is answered (a closed loop), so
-without pauses the load adapts to the server: the numbers to read are the latencies and the absence of errors at that
-concurrency. No new request starts after ``--duration`` seconds; those under way are waited for.
+Each user is a thread with its own HTTP connection (kept alive, as a browser does) and requests, in a loop,
+the Library (``/``), a Corpus page (``/corpora/{id}``, the corpora in turn) and a Comparison page
+(``/compare?corpus=..``, the live view of two or three corpora, in turn); users start at different corpora.
+Without ``--think`` a user sends its next request as soon as the previous one is answered (a closed loop),
+so the load adapts to the server: the numbers to read are the latencies and the absence of errors at that
+concurrency; with ``--think S`` it first pauses for an exponentially distributed time of mean S seconds, as
+a person reading the page. No new request starts after ``--duration`` seconds; those under way are waited for.
 
 An error is any answer other than 200 or a transport failure (refused connection, timeout). The output is
 a Markdown table: per page and overall, requests, errors, the 50th, 95th and 99th percentile and the largest

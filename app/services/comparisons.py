@@ -16,7 +16,7 @@ import json
 import math
 from dataclasses import asdict, dataclass
 from datetime import UTC, datetime
-from typing import Any
+from typing import Any, NamedTuple
 
 import numpy as np
 from sqlalchemy.engine import Engine
@@ -603,10 +603,19 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
 _snapshots: RecentResults[dict[str, Any]] = RecentResults(CACHE_SIZE)
 
 
-def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, Any]:
-    """The snapshot for these settings on the current library (cached in memory per corpus versions and
-    model-report stamps); raises CorpusNotFoundError for an unknown id and ComparisonInputError for unusable
-    settings."""
+class LiveComparison(NamedTuple):
+    """A live comparison before its snapshot is computed: the key of everything the snapshot depends on
+    (store, program, settings with their defaults resolved, each corpus's identity, name, labels and
+    model-report stamp), the resolved settings and the corpora."""
+
+    key: tuple
+    settings: ComparisonSettings
+    corpora: list[Corpus]
+
+
+def live_version(engine: Engine, settings: ComparisonSettings) -> LiveComparison:
+    """The comparison of these settings on the current library, read from the store without computing it;
+    raises CorpusNotFoundError for an unknown id and ComparisonInputError for unusable settings."""
     corpora = _corpora(engine, settings.corpora)
     resolved = _resolve(settings, corpora)
     stamps = modelling.report_stamps(engine, [c.id for c in corpora])
@@ -619,7 +628,17 @@ def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, A
             for c in corpora
         ),
     )
-    return _snapshots.get(key, lambda: build_snapshot(engine, resolved, corpora))
+    return LiveComparison(key, resolved, corpora)
+
+
+def live_snapshot(engine: Engine, live: LiveComparison) -> dict[str, Any]:
+    """The snapshot of ``live`` (kept in memory by its key)."""
+    return _snapshots.get(live.key, lambda: build_snapshot(engine, live.settings, live.corpora))
+
+
+def live_comparison(engine: Engine, settings: ComparisonSettings) -> dict[str, Any]:
+    """The snapshot for these settings on the current library (``live_version``, then ``live_snapshot``)."""
+    return live_snapshot(engine, live_version(engine, settings))
 
 
 class NotAllowedError(PermissionError):

@@ -123,6 +123,14 @@ class ModelsPendingError(PredictionError):
         self.corpus_id = corpus_id
 
 
+class ModelsFailedError(PredictionError):
+    """No model could be fitted to the corpus (its stored report records why): ``reason`` is that record."""
+
+    def __init__(self, reason: str) -> None:
+        super().__init__(f"no vocabulary model could be fitted to this corpus: {reason}")
+        self.reason = reason
+
+
 MODELS_KIND = "models"
 
 
@@ -163,7 +171,7 @@ def model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
     if payload is None:
         raise ModelsPendingError(corpus_id)
     if "error" in payload:
-        raise PredictionError(f"no vocabulary model could be fitted to this corpus: {payload['error']}")
+        raise ModelsFailedError(payload["error"])
     return payload
 
 

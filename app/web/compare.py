@@ -10,6 +10,7 @@ JSON:   POST /api/comparisons, GET /api/comparisons/{slug}[?download=1], GET /ap
 from __future__ import annotations
 
 import re
+from collections.abc import Callable, Hashable
 from typing import Annotated, Any
 from urllib.parse import urlencode
 
@@ -161,8 +162,12 @@ QuerySettings = Annotated[service.ComparisonSettings, Depends(_query_settings)]
 
 
 def _live(engine: Engine, settings: service.ComparisonSettings) -> dict[str, Any]:
+    return service.live_snapshot(engine, _live_version(engine, settings))
+
+
+def _live_version(engine: Engine, settings: service.ComparisonSettings) -> service.LiveComparison:
     try:
-        return service.live_comparison(engine, settings)
+        return service.live_version(engine, settings)
     except CorpusNotFoundError as exc:
         raise HTTPException(status_code=404, detail=f"{exc}: it cannot be compared") from exc
     except service.ComparisonInputError as exc:
@@ -184,9 +189,8 @@ def _saved(engine: Engine, slug: str, viewer: Viewer) -> dict[str, Any]:
     return service.without_word_lists(snapshot)
 
 
-def live_query(snapshot: dict[str, Any]) -> str:
-    """The URL query of the live view that recomputes this snapshot's settings."""
-    s = snapshot["settings"]
+def live_query(s: dict[str, Any]) -> str:
+    """The URL query of the live view of these settings (``ComparisonSettings.as_dict``)."""
     fields = [("corpus", cid) for cid in s["corpora"]] + [
         ("common_size", s["common_size"]),
         ("horizon", s["horizon"]),
@@ -198,34 +202,28 @@ def live_query(snapshot: dict[str, Any]) -> str:
     return urlencode(fields)
 
 
-def _page(request: Request, snapshot: dict[str, Any], saved: bool, scale: str | None) -> HTMLResponse:
-    query = live_query(snapshot)
-    viewer = viewer_of(request)
-    manage = (
-        saved
-        and not viewer.anonymous
-        and service.may_manage(engine_of(request), snapshot["slug"], publisher(viewer))
-    )
-    base = f"/api/comparisons/{snapshot['slug']}" if saved else "/api/compare"
-    suffix = "" if saved else f"?{query}"
-    # A live snapshot is a new object (with a new time of computation) whenever a corpus, its name or its
-    # model report changes; a saved one changes only in visibility and in which corpora are still there.
-    version = (
-        snapshot["computed_at"],
-        snapshot.get("saved_at"),
-        snapshot.get("public"),
-        tuple(c.get("available") for c in snapshot["corpora"]),
-        manage,
-    )
-    return render_kept(
-        request,
-        "compare.html",
-        version,
-        lambda: {
-            "snapshot": snapshot,
-            "saved": saved,
-            "corpora": {c["id"]: c for c in snapshot["corpora"]},
-            "figures": comparison_figures(snapshot),
+def _page(
+    request: Request,
+    snapshot: Callable[[], dict[str, Any]],
+    settings: dict[str, Any],
+    version: Hashable,
+    slug: str | None = None,
+    manage: bool = False,
+    scale: str | None = None,
+) -> Response:
+    """The Comparison page of a snapshot computed only when the page is not kept (``render_kept``):
+    ``settings`` as the snapshot records them, ``slug`` for a saved one."""
+    query = live_query(settings)
+    base = f"/api/comparisons/{slug}" if slug else "/api/compare"
+    suffix = "" if slug else f"?{query}"
+
+    def build_context() -> dict[str, Any]:
+        shown = snapshot()
+        return {
+            "snapshot": shown,
+            "saved": slug is not None,
+            "corpora": {c["id"]: c for c in shown["corpora"]},
+            "figures": comparison_figures(shown),
             "palette": PALETTE,
             "may_manage": manage,
             "scale": "share" if scale == "share" else "tokens",
@@ -236,8 +234,9 @@ def _page(request: Request, snapshot: dict[str, Any], saved: bool, scale: str | 
                 "distinctive": f"{base}/distinctive.csv{suffix}",
                 "json": f"{base}{suffix}{'&' if suffix else '?'}download=1",
             },
-        },
-    )
+        }
+
+    return render_kept(request, "compare.html", version, build_context)
 
 
 def _stem(snapshot: dict[str, Any]) -> str:
@@ -273,7 +272,10 @@ def compare_page(
     settings: QuerySettings,
     scale: Annotated[str | None, Query(max_length=10)] = None,
 ):
-    return _page(request, _live(engine, settings), saved=False, scale=scale)
+    live = _live_version(engine, settings)  # a kept page is sent without its snapshot
+    return _page(
+        request, lambda: service.live_snapshot(engine, live), live.settings.as_dict(), live.key, scale=scale
+    )
 
 
 @router.post("/compare", include_in_schema=False)
@@ -309,7 +311,16 @@ def saved_page(
     viewer: ViewerDep,
     scale: Annotated[str | None, Query(max_length=10)] = None,
 ):
-    return _page(request, _saved(engine, slug, viewer), saved=True, scale=scale)
+    snapshot = _saved(engine, slug, viewer)
+    manage = not viewer.anonymous and service.may_manage(engine, slug, publisher(viewer))
+    # a saved snapshot changes only in visibility and in which of its corpora are still in the library
+    version = (
+        snapshot["saved_at"],
+        snapshot["public"],
+        tuple(c["available"] for c in snapshot["corpora"]),
+        manage,
+    )
+    return _page(request, lambda: snapshot, snapshot["settings"], version, slug, manage, scale)
 
 
 # ------------------------------------------------------------------------------------------------- JSON

@@ -3,7 +3,8 @@
 from __future__ import annotations
 
 import json
-from typing import Any
+from datetime import datetime
+from typing import Any, NamedTuple
 
 import numpy as np
 from sqlalchemy.engine import Engine
@@ -116,6 +117,8 @@ def model_section(
         predictors = loaded.predictors
     except modelling.ModelsPendingError:
         return {"models_error": None, "models_pending": "queued"}
+    except modelling.ModelsFailedError as exc:  # the page says "No vocabulary model could be fitted" itself
+        return {"models_error": exc.reason}
     except (ValueError, ArithmeticError) as exc:
         return {"models_error": str(exc)}
     backtests, backtest_tips = _backtest_table(report)
@@ -210,17 +213,28 @@ PAGE_VIEWS: RecentResults[dict[str, Any]] = RecentResults(32)
 page's settings: a page asked for again is assembled, not recomputed."""
 
 
-def view_version(engine: Engine, corpus: Corpus) -> tuple:
-    """What the Corpus page's figures and tables depend on besides its settings: the store, the program,
-    the corpus's counts and, last, its model report's stamp (None while the report is being computed)."""
+class ViewVersion(NamedTuple):
+    """What the Corpus page's figures and tables depend on besides its settings."""
+
+    store: str
+    program: str
+    corpus_id: int
+    content_hash: str
+    counted_at: datetime
+    report_stamp: tuple[str, bool] | None  # None while the model report is being computed
+
+
+def view_version(engine: Engine, corpus: Corpus) -> ViewVersion:
     stamp = modelling.report_stamps(engine, [corpus.id]).get(corpus.id)
-    return (str(engine.url), modelling.CACHE_KEY, corpus.id, corpus.content_hash, corpus.created_at, stamp)
+    return ViewVersion(
+        str(engine.url), modelling.CACHE_KEY, corpus.id, corpus.content_hash, corpus.created_at, stamp
+    )
 
 
 def corpus_context(
     engine: Engine,
     corpus: Corpus,
-    version: tuple,
+    version: ViewVersion,
     q: str | None,
     page: int,
     sizes_text: str | None,

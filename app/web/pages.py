@@ -4,7 +4,6 @@ from __future__ import annotations
 
 import gzip
 from collections.abc import Callable, Hashable
-from dataclasses import dataclass
 from typing import Annotated, Any
 
 from fastapi import APIRouter, Depends, Request
@@ -36,16 +35,9 @@ def render(request: Request, name: str, status_code: int = 200, **context) -> HT
     return templates.TemplateResponse(request, name, context, status_code=status_code)
 
 
-@dataclass(frozen=True)
-class KeptPage:
-    """A rendered page as sent: its HTML in UTF-8 and the same compressed with gzip."""
-
-    html: bytes
-    gzipped: bytes
-
-
-RENDERED_PAGES: RecentResults[KeptPage] = RecentResults(64)
-"""Rendered pages by address, viewer and the version of what they show (see ``render_kept``)."""
+RENDERED_PAGES: RecentResults[bytes] = RecentResults(256)
+"""Rendered pages, gzip-compressed (a corpus page: about 25 kB), by address, viewer and the version of what
+they show (see ``render_kept``)."""
 
 
 def render_kept(
@@ -56,16 +48,16 @@ def render_kept(
     and labels...). The page's context is built only when the page is rendered."""
     key = (name, str(request.url), request.state.viewer.page_key(), version)
 
-    def rendered() -> KeptPage:
-        html = templates.get_template(name).render({"request": request, **build_context()}).encode()
-        return KeptPage(html, gzip.compress(html, GZIP_LEVEL, mtime=0))
+    def rendered() -> bytes:
+        html = templates.get_template(name).render({"request": request, **build_context()})
+        return gzip.compress(html.encode(), GZIP_LEVEL, mtime=0)
 
     page = RENDERED_PAGES.get(key, rendered)
     if "gzip" in request.headers.get("accept-encoding", ""):
         # already compressed: the gzip middleware passes an answer with a content-encoding through
         headers = {"content-encoding": "gzip", "vary": "Accept-Encoding"}
-        return Response(page.gzipped, media_type="text/html; charset=utf-8", headers=headers)
-    return HTMLResponse(page.html)
+        return Response(page, media_type="text/html; charset=utf-8", headers=headers)
+    return HTMLResponse(gzip.decompress(page))  # a client without gzip (rare): inflated again
 
 
 @router.get("/", response_class=HTMLResponse)
@@ -180,7 +172,7 @@ def corpus_page(
             "edit_saved": form.text("saved") == "1" and not edit,
         }
 
-    if form.errors or edit or version[-1] is None:
+    if form.errors or edit or version.report_stamp is None:
         # problems shown beside their forms (422), or models still being computed: rendered as they are
         status = 422 if form.errors or edit else 200
         return render(request, "corpus.html", status_code=status, **build_context())

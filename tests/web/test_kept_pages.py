@@ -3,9 +3,28 @@ a corpus removed from a comparison's library."""
 
 from __future__ import annotations
 
-from app.services import modelling
+from collections import Counter
+
+import pytest
+
+from app.services import comparisons, modelling
 from app.store import corpora as store
+from app.web import pages
 from tests.web.test_lab_mode import post_text, words_of
+
+
+@pytest.fixture()
+def renders(monkeypatch) -> Counter:
+    """How many times each page template has been rendered (looked up to render) since the test began."""
+    counts: Counter = Counter()
+    original = pages.templates.env.get_template
+
+    def counted(name, *args, **kwargs):
+        counts[name] += 1
+        return original(name, *args, **kwargs)
+
+    monkeypatch.setattr(pages.templates.env, "get_template", counted)
+    return counts
 
 
 def two_corpora(client) -> list[int]:
@@ -17,12 +36,16 @@ def two_corpora(client) -> list[int]:
     return ids
 
 
-def test_corpus_and_comparison_pages_show_a_rename_at_once(client):
+def test_corpus_and_comparison_pages_show_a_rename_at_once(client, renders, monkeypatch):
     first, second = two_corpora(client)
     compare = f"/compare?corpus={first}&corpus={second}"
-    assert "First draft" in client.get(f"/corpora/{first}").text
-    assert "First draft" in client.get(compare).text
-    assert client.get(f"/corpora/{first}").text == client.get(f"/corpora/{first}").text  # kept as it was
+    snapshots = []
+    build = comparisons.build_snapshot
+    monkeypatch.setattr(comparisons, "build_snapshot", lambda *a: snapshots.append(a) or build(*a))
+    for _ in range(3):  # rendered once, then sent as kept
+        assert "First draft" in client.get(f"/corpora/{first}").text
+        assert "First draft" in client.get(compare).text
+    assert (renders["corpus.html"], renders["compare.html"], len(snapshots)) == (1, 1, 1)
 
     changed = client.patch(
         f"/api/corpora/{first}", json={"name": "Revised draft", "labels": {"stage": "final"}}
@@ -32,6 +55,7 @@ def test_corpus_and_comparison_pages_show_a_rename_at_once(client):
     assert "Revised draft" in page and "First draft" not in page and "stage: final" in page
     comparison = client.get(compare).text
     assert "Revised draft" in comparison and "First draft" not in comparison
+    assert (renders["corpus.html"], renders["compare.html"], len(snapshots)) == (2, 2, 2)
 
 
 def test_corpus_page_follows_its_model_report(client):
@@ -53,10 +77,11 @@ def test_corpus_page_follows_its_model_report(client):
     assert "types expected at" in page  # the recommended model's prediction card is back
 
 
-def test_library_shows_new_renamed_and_deleted_corpora_at_once(client):
+def test_library_shows_new_renamed_and_deleted_corpora_at_once(client, renders):
     first, second = two_corpora(client)
-    assert client.get("/").text == client.get("/").text  # kept as it was
-    assert "First draft" in client.get("/").text
+    for _ in range(3):  # rendered once, then sent as kept
+        assert "First draft" in client.get("/").text
+    assert renders["library.html"] == 1
 
     client.patch(f"/api/corpora/{first}", json={"name": "Revised draft"})
     assert "Revised draft" in client.get("/").text and "First draft" not in client.get("/").text
