@@ -1,19 +1,24 @@
 """Modelling service: spectra from the store in, cached numbers out (the maths lives in app.core).
 
-Fits and backtests are computed once per corpus and program version and cached in the store; predictors
-are rebuilt from the cached parameters, so pages render without fitting anything.
+Fits and backtests are computed once per corpus and cached in the store under a fingerprint of the code
+that computes them (``CACHE_KEY``); predictors are rebuilt from the cached parameters, so pages render
+without fitting anything.
 """
 
 from __future__ import annotations
 
+import hashlib
 import json
 from collections.abc import Iterable
 from dataclasses import asdict, dataclass
+from pathlib import Path
 from typing import Any
 
 import numpy as np
+import scipy
 from sqlalchemy.engine import Engine
 
+from app import core as core_package
 from app.config import PROGRAM_VERSION
 from app.core import planning, unseen
 from app.core import richness as richness_core
@@ -33,10 +38,29 @@ RECOMMENDED = "recommended"
 MODEL_NAMES = (SAMPLE, *MODELS, RECOMMENDED)
 PLAN_MODELS = (RECOMMENDED, *MODELS)
 MAX_PREDICTION_TOKENS = 10**12
-RESULT_SCHEMA = 2
-"""Version of the layout of cached results (2: descriptive parameter names). Cached payloads are keyed by
-program version and this schema, so a payload written with other parameter names is never read back."""
-CACHE_KEY = f"{PROGRAM_VERSION}+schema{RESULT_SCHEMA}"
+MODELLING_SOURCES = (Path(core_package.__file__).parent, Path(__file__))
+"""The code that computes cached results: the maths core (every module under ``app/core``) and this
+service (its settings: sizes, points, levels)."""
+
+
+def code_fingerprint(sources: Iterable[Path]) -> str:
+    """SHA-256 over the Python sources under ``sources`` (files, or folders searched recursively), each
+    with its path relative to its root, in a fixed order, and over the NumPy and SciPy versions; the
+    first 16 hexadecimal digits. Any change to the code that computes a result, or to the libraries it
+    calls, gives another fingerprint."""
+    digest = hashlib.sha256(f"numpy {np.__version__} scipy {scipy.__version__}".encode())
+    for source in sources:
+        files = sorted(source.rglob("*.py")) if source.is_dir() else [source]
+        for file in files:
+            name = file.relative_to(source if source.is_dir() else source.parent).as_posix()
+            digest.update(f"\0{name}\0".encode())
+            digest.update(file.read_bytes())
+    return digest.hexdigest()[:16]
+
+
+CACHE_KEY = f"{PROGRAM_VERSION}+code-{code_fingerprint(MODELLING_SOURCES)}"
+"""The key of every cached result (model reports, random-order growth, richness...): results computed by
+other code are never read back, and their tasks run again (their dedupe key holds it too)."""
 SMALL_CORPUS_TOKENS = 1_000
 """Below this many tokens a spectrum holds too few repeated types for any extrapolation to be trusted (a
 rule of thumb of ours: backtests on texts of a few hundred tokens miss by tens of per cent)."""
@@ -63,7 +87,7 @@ def load_spectrum(engine: Engine, corpus_id: int) -> Spectrum:
 
 
 def cached(engine: Engine, corpus_id: int, kind: str, compute) -> dict:
-    """Return the cached result of ``kind`` for this program version and result schema (``CACHE_KEY``),
+    """Return the cached result of ``kind`` for this program version and code fingerprint (``CACHE_KEY``),
     computing and storing it if absent."""
     payload = store.cached_result(engine, corpus_id, kind, CACHE_KEY)
     if payload is None:
@@ -137,7 +161,7 @@ MODELS_KIND = "models"
 def compute_model_report(engine: Engine, corpus_id: int) -> dict[str, Any]:
     """Fit every model at full size with goodness of fit, the backtests and the recommended ensemble, and
     cache the report; when no model can be fitted, cache the reason instead, so that it is never tried
-    again for this program version. Heavy: run it as a background task, never in a page request."""
+    again by this code (``CACHE_KEY``). Heavy: run it as a background task, never in a page request."""
     spectrum = load_spectrum(engine, corpus_id)
     try:
         payload = backtest(spectrum, _prefix_spectra(engine, corpus_id)).as_dict()
@@ -154,13 +178,13 @@ def warm_up() -> None:
 
 
 def report_stamps(engine: Engine, corpus_ids: Iterable[int]) -> dict[int, tuple[str, bool]]:
-    """For each corpus whose model report of this program version and result schema is stored: when it
+    """For each corpus whose model report of this program version and code fingerprint is stored: when it
     was stored and whether it records a failure (read without parsing the report). Absent: pending."""
     return store.cached_result_stamps(engine, corpus_ids, MODELS_KIND, CACHE_KEY)
 
 
 def has_model_report(engine: Engine, corpus_id: int) -> bool:
-    """Whether the model report of this program version and result schema is stored."""
+    """Whether the model report of this program version and code fingerprint is stored."""
     return corpus_id in report_stamps(engine, [corpus_id])
 
 

@@ -72,7 +72,7 @@ def ingest_params(
 
 
 def queue_models(engine: Engine, corpus_id: int, priority: int = 0) -> queue.TaskView:
-    """The model-report task of a corpus (queued now unless one exists for this program version)."""
+    """The model-report task of a corpus (queued now unless one exists for this code, ``modelling.CACHE_KEY``)."""
     return queue.enqueue(
         engine,
         MODELS,
