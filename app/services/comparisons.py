@@ -35,7 +35,7 @@ from app.services.memo import RecentResults
 from app.store import comparisons as saved
 from app.store import corpora as store
 from app.store.corpora import CorpusNotFoundError
-from app.store.tables import Corpus
+from app.store.tables import Corpus, SavedComparison
 
 MIN_CORPORA, MAX_CORPORA = 2, 8
 MAX_TOKENS = modelling.MAX_PREDICTION_TOKENS
@@ -658,34 +658,82 @@ class Publisher:
         return not self.lab or self.is_admin or (self.member_id is not None and self.member_id == creator_id)
 
 
-def check_publishable(engine: Engine, corpus_ids: list[int], publisher: Publisher) -> None:
-    """NotAllowedError unless every corpus may be made public by ``publisher``: in lab mode only corpora
-    the member uploaded (an admin: any corpus)."""
-    if not publisher.lab or publisher.is_admin:
+def saved_identity(corpus: Corpus) -> dict[str, Any]:
+    """What a saved comparison records of each corpus: id, owner, content hash and time of counting."""
+    return {
+        "id": corpus.id,
+        "owner_id": corpus.owner_id,
+        "content_hash": corpus.content_hash,
+        "created_at": corpus.created_at.isoformat(),
+    }
+
+
+def check_publishable(engine: Engine, saved_corpora: list[dict[str, Any]], publisher: Publisher) -> None:
+    """NotAllowedError unless every saved corpus (``saved_identity`` when saved) may be made public by
+    ``publisher`` in lab mode: it must still be in the library as it was saved (same id, content hash and
+    time of counting; not deleted, not replaced), and be the member's own, when saved and now (an admin:
+    any member's)."""
+    if not publisher.lab:
         return
-    corpora = store.get_corpora(engine, corpus_ids)
-    foreign = [c for c in corpora.values() if c.owner_id is None or c.owner_id != publisher.member_id]
-    if foreign:
-        names = ", ".join(f"{c.name} (id {c.id})" for c in foreign)
+    current = store.get_corpora(engine, [entry["id"] for entry in saved_corpora])
+    gone, foreign = [], []
+    for entry in saved_corpora:
+        now = current.get(entry["id"])
+        if now is None or saved_identity(now) | {"owner_id": entry["owner_id"]} != entry:
+            gone.append(f"id {entry['id']}")
+        elif not publisher.is_admin and not (
+            publisher.member_id is not None and entry["owner_id"] == publisher.member_id == now.owner_id
+        ):
+            foreign.append(f"{now.name} (id {now.id})")
+    if gone:
         raise NotAllowedError(
-            f"only corpora you uploaded can be made public (or ask an admin); not yours: {names}"
+            "a comparison can be made public only while every corpus in it is in the library as it was "
+            f"saved; deleted or replaced since: {', '.join(gone)}"
+        )
+    if foreign:
+        raise NotAllowedError(
+            f"only corpora you uploaded can be made public (or ask an admin); not yours: {', '.join(foreign)}"
         )
 
 
+def _saved_corpora(engine: Engine, row: SavedComparison) -> list[dict[str, Any]]:
+    """The corpora of a saved comparison as recorded when it was saved. A comparison saved before that
+    record existed: the ids, content hashes and times of counting of its snapshot, each with the owner of
+    the corpus that has that same identity now (an owner does not change; a replaced corpus has none)."""
+    if row.corpora_json is not None:
+        return json.loads(row.corpora_json)
+    entries = [
+        {key: entry[key] for key in ("id", "content_hash", "created_at")}
+        for entry in json.loads(row.snapshot_json)["corpora"]
+    ]
+    current = store.get_corpora(engine, [entry["id"] for entry in entries])
+    for entry in entries:
+        now = current.get(entry["id"])
+        same = now is not None and saved_identity(now) | {"owner_id": None} == entry | {"owner_id": None}
+        entry["owner_id"] = now.owner_id if same else None
+    return entries
+
+
 def save(
-    engine: Engine, settings: ComparisonSettings, creator_id: int | None = None, public: bool = False
+    engine: Engine, settings: ComparisonSettings, publisher: Publisher = Publisher(), public: bool = False
 ) -> str:
-    """Store the live snapshot of these settings under a new unguessable slug; returns the slug. In lab mode
-    ``creator_id`` is the member saving it, and ``public`` lets anyone with the link see it without words
-    (check ``check_publishable`` first)."""
-    snapshot = live_comparison(engine, settings)
+    """Store the live snapshot of these settings under a new unguessable slug, with each corpus as it is now
+    (``saved_identity``); returns the slug. ``publisher`` is who saves it (its creator in lab mode), and
+    ``public`` lets anyone with the link see it without words: NotAllowedError (nothing stored) unless
+    ``check_publishable`` allows it."""
+    live = live_version(engine, settings)
+    record = [saved_identity(c) for c in live.corpora]
+    if public:
+        check_publishable(engine, record, publisher)
+    snapshot = live_snapshot(engine, live)
     row = saved.save_comparison(
         engine,
         list(settings.corpora),
         snapshot["settings"],
         snapshot,
         snapshot["program_version"],
-        creator_id=creator_id,
+        creator_id=publisher.member_id,
+        corpora=record,
         public=public,
     )
     return row.slug
@@ -731,7 +779,7 @@ def set_visibility(engine: Engine, slug: str, public: bool, publisher: Publisher
             "only the member who saved this comparison, or an admin, may change who sees it"
         )
     if public:
-        check_publishable(engine, json.loads(row.corpus_ids_json), publisher)
+        check_publishable(engine, _saved_corpora(engine, row), publisher)
     saved.set_public(engine, slug, public)
 
 

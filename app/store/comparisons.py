@@ -34,10 +34,11 @@ def save_comparison(
     snapshot: dict[str, Any],
     program_version: str,
     creator_id: int | None = None,
+    corpora: list[dict[str, Any]] | None = None,
     public: bool = False,
 ) -> SavedComparison:
     """Store a comparison under a fresh slug and return the stored row (``creator_id``: the lab member who
-    saved it; ``public``: visible without signing in)."""
+    saved it; ``corpora``: each corpus as it was when saved; ``public``: visible without signing in)."""
     row = SavedComparison(
         slug=new_slug(),
         corpus_ids_json=json.dumps(corpus_ids),
@@ -45,6 +46,7 @@ def save_comparison(
         snapshot_json=json.dumps(snapshot, ensure_ascii=False, allow_nan=False),
         program_version=program_version,
         creator_id=creator_id,
+        corpora_json=None if corpora is None else json.dumps(corpora),
         public=public,
     )
     with transaction(engine) as session:

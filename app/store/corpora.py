@@ -22,6 +22,7 @@ from app.store.tables import (
     CachedResult,
     Corpus,
     GrowthPoint,
+    IssuedCorpusId,
     PrefixSpectrumRow,
     SpectrumRow,
     WordCount,
@@ -147,10 +148,20 @@ def _bulk(session: Session, table: type[SQLModel], columns: tuple[str, ...], row
         connection.execute(statement, [dict(zip(columns, row, strict=True)) for row in batch])
 
 
+def _issue_corpus_id(session: Session) -> int:
+    """A corpus id never issued before (``IssuedCorpusId``); the older issued rows are dropped."""
+    issued = IssuedCorpusId()
+    session.add(issued)
+    session.flush()
+    session.execute(delete(IssuedCorpusId).where(IssuedCorpusId.id < issued.id))
+    return int(issued.id)
+
+
 def save_corpus(engine: Engine, record: CorpusRecord) -> int:
     """Store a corpus with its counts, spectrum, growth and prefix spectra in one transaction."""
     with transaction(engine) as session:
         corpus = Corpus(
+            id=_issue_corpus_id(session),
             name=record.name,
             labels_json=json.dumps(record.labels, ensure_ascii=False),
             profile_json=json.dumps(record.profile, ensure_ascii=False),

@@ -51,6 +51,17 @@ class Corpus(SQLModel, table=True):
     origin_json: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
 
 
+class IssuedCorpusId(SQLModel, table=True):
+    """The corpus ids issued so far (only the newest row is kept): a new corpus takes the next id of this
+    table's sequence, which never goes back (SQLite AUTOINCREMENT, a PostgreSQL sequence), so an id once
+    used is never given to another corpus, even after the corpus that had the largest id is deleted."""
+
+    __tablename__ = "issued_corpus_id"
+    __table_args__ = {"sqlite_autoincrement": True}
+
+    id: int | None = Field(default=None, primary_key=True)
+
+
 class WordCount(SQLModel, table=True):
     """How often each type (word) occurs in a corpus."""
 
@@ -107,6 +118,9 @@ class SavedComparison(SQLModel, table=True):
     # The member who saved it (an Account id, None outside lab mode), and whether anyone with the link may see
     # it without signing in (statistics and plots only, never word lists).
     creator_id: int | None = Field(default=None)
+    # Each saved corpus as it was when saved (JSON list of id, owner_id, content_hash, created_at): publishing
+    # checks these, not whatever the ids hold today (None: saved before revision 0006).
+    corpora_json: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
     public: bool = Field(default=False, sa_column=Column(Boolean, nullable=False, server_default=false()))
 
 

@@ -47,11 +47,9 @@ def _save(engine: Engine, settings: service.ComparisonSettings, viewer: Viewer, 
     corpora of other members; nothing is stored when refused."""
     _live(engine, settings)
     try:
-        if public:
-            service.check_publishable(engine, list(settings.corpora), publisher(viewer))
+        return service.save(engine, settings, publisher(viewer), public)
     except service.NotAllowedError as exc:
         raise HTTPException(status_code=403, detail=str(exc)) from exc
-    return service.save(engine, settings, viewer.member.id if viewer.member else None, public)
 
 
 def _manage(action, engine: Engine, slug: str, *args) -> None:

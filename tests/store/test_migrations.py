@@ -144,3 +144,29 @@ def test_threads_migrating_different_stores_take_turns(tmp_path):
         engine = db.create_store_engine(url)
         assert revision_rows(engine) == [db.head_revision()]
         engine.dispose()
+
+
+def test_corpus_ids_are_never_given_twice_after_the_upgrade(database_url):
+    # A store of revision 0005 (before issued ids): corpora 1 and 2, and a saved comparison that still
+    # names id 9 (deleted since). The upgrade's sequence starts after all of them.
+    engine = db.make_engine(database_url)
+    first, second = (store.save_corpus(engine, record(name)) for name in ("a", "b"))
+    with engine.begin() as connection:
+        config = db.alembic_config()
+        config.attributes["connection"] = connection
+        command.downgrade(config, "0005_corpus_kinds")
+        connection.execute(
+            text(
+                "INSERT INTO savedcomparison (slug, corpus_ids_json, settings_json, snapshot_json, "
+                "program_version, created_at, public) VALUES ('s', :ids, '{}', '{}', 'old', :now, false)"
+            ),
+            {"ids": f"[{first}, 9]", "now": datetime.now(UTC)},
+        )
+    assert "issued_corpus_id" not in table_names(engine)
+    db.upgrade_to_head(engine)
+    third = store.save_corpus(engine, record("c"))
+    assert third == 10
+    store.delete_corpus(engine, third)  # the largest id goes: SQLite alone would give it again
+    store.delete_corpus(engine, second)
+    assert store.save_corpus(engine, record("d")) == 11
+    engine.dispose()

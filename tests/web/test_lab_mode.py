@@ -33,6 +33,7 @@ from sqlalchemy import text
 from app.config import Settings
 from app.main import create_app
 from app.store import accounts, signins
+from app.store import comparisons as saved_comparisons
 from app.store import corpora as store
 from app.store.corpora import get_corpus
 from app.store.db import make_engine
@@ -624,6 +625,53 @@ def test_a_member_publishes_only_their_own_corpora(lab):
         lab.client().patch(f"/api/comparisons/{slug}", json={"public": True}, headers=admin).status_code
         == 200
     )
+
+
+def test_publishing_checks_the_corpora_as_saved_not_the_ids_of_today(lab):
+    """Member cleo saves a comparison of her corpus and ben's; ben deletes his; publishing must still be
+    refused, and so when his id is given to a corpus of cleo's (as SQLite reused ids before 0006)."""
+    engine = lab.app.state.engine
+    cleo, csrf = lab.signed_in("cleo")
+    ben = bearer(lab.tokens["ben"])
+    own = post_text(cleo, "Cleo's notes", words_of(0, 1200), {"X-CSRF-Token": csrf}).json()["id"]
+    embargoed = post_text(
+        lab.client(), "Ben's embargoed draft", words_of(1200, 2600), ben, labels="status=embargoed"
+    ).json()["id"]
+    saved = cleo.post("/api/comparisons", json={"corpora": [own, embargoed]}, headers={"X-CSRF-Token": csrf})
+    assert saved.status_code == 201
+    slug = saved.json()["slug"]
+    publish = {"json": {"public": True}, "headers": {"X-CSRF-Token": csrf}}
+    assert cleo.patch(f"/api/comparisons/{slug}", **publish).status_code == 403
+
+    assert lab.client().delete(f"/api/corpora/{embargoed}", headers=ben).status_code == 204
+    refused = cleo.patch(f"/api/comparisons/{slug}", **publish)
+    assert refused.status_code == 403 and "deleted or replaced" in refused.json()["detail"]
+    assert lab.client().get(f"/api/comparisons/{slug}").status_code == 401  # still members-only
+
+    newer = post_text(cleo, "Cleo's second", words_of(2600, 3800), {"X-CSRF-Token": csrf}).json()["id"]
+    assert newer > embargoed  # ids are never given twice
+    with engine.begin() as connection:  # an id given again (as a store before 0006 could): still refused
+        for statement in (
+            "CREATE TEMP TABLE reused AS SELECT * FROM corpus WHERE id = :new",
+            "UPDATE reused SET id = :old",
+            "INSERT INTO corpus SELECT * FROM reused",
+            "DROP TABLE reused",
+        ):
+            connection.execute(text(statement), {"old": embargoed, "new": newer})
+    assert get_corpus(engine, embargoed).owner_id == get_corpus(engine, own).owner_id
+    assert cleo.patch(f"/api/comparisons/{slug}", **publish).status_code == 403
+    assert (
+        lab.client()
+        .patch(f"/api/comparisons/{slug}", json={"public": True}, headers=bearer(lab.tokens["ada"]))
+        .status_code
+        == 403
+    )
+    assert not saved_comparisons.is_public(engine, slug)
+    for corpus in (own, embargoed, newer):
+        assert (
+            lab.client().delete(f"/api/corpora/{corpus}", headers=bearer(lab.tokens["ada"])).status_code
+            == 204
+        )
 
 
 def lab_comparisons(engine) -> list[str]:
