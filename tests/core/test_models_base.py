@@ -91,3 +91,27 @@ def test_error_band_grows_with_the_extrapolation_factor():
     assert full.half_width(100.0) == pytest.approx(z * math.hypot(0.08, 0.06))
     assert full.half_width(4.0) == pytest.approx(z * math.hypot(0.04 * math.log(4) / math.log(10), 0.01))
     assert ErrorBand.from_dict(json.loads(json.dumps(full.as_dict()))) == full
+
+
+def test_parameters_where_a_formula_is_undefined_are_a_breakdown_not_an_error(corpus):
+    # A fit's residuals whitened by a Cholesky factor: scipy.linalg.solve_triangular refuses NaN input
+    # (ValueError, its check_finite), so an expectation that is NaN at some parameters must be caught
+    # before scaling; the optimiser then steps back instead of the whole model report failing.
+    from app.core.models.base import _BREAKDOWN
+    from app.core.models.goodness import whitening
+
+    fitted = MODELS["power_law"].fit(corpus).params
+    limit = fitted["exponent"] * 1.01
+
+    class UndefinedBeyondALimit(type(MODELS["power_law"])):
+        def expected_spectrum(self, n, m, params):
+            spectrum = super().expected_spectrum(n, m, params)
+            return spectrum if params["exponent"] < limit else np.full(np.shape(spectrum), np.nan)
+
+    model = UndefinedBeyondALimit()
+    whiten = whitening(model, fitted, corpus.tokens, 15)
+    residuals = model._residuals(corpus, 15, lambda d, _: whiten(d))
+    assert np.all(np.isfinite(residuals(model.to_unconstrained(fitted))))
+    undefined = model.to_unconstrained(fitted | {"exponent": limit * 1.01})
+    assert np.all(residuals(undefined) == _BREAKDOWN)
+    model.goodness_of_fit(corpus, fitted)  # does not raise

@@ -321,6 +321,8 @@ class VocabularyModel(ABC):
         def residuals(theta: np.ndarray) -> np.ndarray:
             try:
                 expected = expected_counts(self, self.from_unconstrained(theta), spectrum.tokens, m_max)
+                if not np.all(np.isfinite(expected)):  # e.g. 0 * inf at extreme parameters: not scaled
+                    return breakdown
                 r = scale(observed - expected, expected)
             except ArithmeticError:
                 return breakdown
