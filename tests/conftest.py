@@ -12,6 +12,10 @@ from fastapi.testclient import TestClient
 # Apps made by tests run their background tasks in the requesting thread (no worker process per app);
 # servers started as processes by the tests do not inherit LEXIGROWTH_* settings and use their worker.
 os.environ.setdefault("LEXIGROWTH_TASK_WORKER", "0")
+# Starlette's test client asks for the host "testserver": the apps made by tests answer for it too (a real
+# server answers only for loopback names and the configured ones).
+TEST_CLIENT_HOST = "testserver"
+os.environ.setdefault("LEXIGROWTH_ALLOWED_HOSTS", TEST_CLIENT_HOST)
 
 from app.config import Settings  # noqa: E402
 from app.main import create_app  # noqa: E402
