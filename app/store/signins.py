@@ -76,11 +76,11 @@ def attempt(
                 select(SignInFailures).where(SignInFailures.key == key).with_for_update()
             ).scalar_one()
             fresh = now - row.last_failure_at < FORGET_AFTER
-            if fresh:
-                until = row.last_failure_at + delay(row.failures, getattr(allowance, kind))
-                waits.append((until - now).total_seconds())
+            wait = delay(row.failures, getattr(allowance, kind)) if fresh else timedelta(0)
+            if wait:  # (a parallel attempt may have stamped a moment later than this one's ``now``)
+                waits.append((row.last_failure_at + wait - now).total_seconds())
             row.failures = row.failures + 1 if fresh else 1
-            row.last_failure_at = now
+            row.last_failure_at = max(row.last_failure_at, now) if fresh else now
     return max(waits)
 
 
