@@ -11,7 +11,7 @@ as in lab mode (below). Lab mode (as soon as the store has an account, or always
 (``Authorization: Bearer ...``), except the sign-in page, ``/api/health``, static assets and comparisons
 their creator made public. Anonymous API calls get 401 JSON, anonymous pages a redirect to ``/login``.
 
-Sessions live in the store (``app.store.sessions``): the cookie holds a random session id and the session's
+Sessions live in the store (``app.store.sessions``): the cookie holds a random session id (lab mode) and the
 CSRF token, signed (itsdangerous, HMAC-SHA1 over the JSON; key from ``LEXIGROWTH_SECRET_KEY`` or a random key
 kept in the data folder with mode 0600), HttpOnly, SameSite=Lax, Secure over HTTPS. Signing out deletes the
 session from the store and a password change deletes every session of the member, so a copied cookie stops
@@ -30,8 +30,9 @@ CSRF token (OWASP's synchronizer token pattern), kept in the signed cookie and s
 header or the ``csrf_token`` form field: in lab mode every request made with the cookie needs it; in
 personal mode a request that says where it comes from (``Origin`` or ``Sec-Fetch-Site``) needs no more, and
 one that says neither needs the token when it carries the cookie (a browser too old to send ``Origin``).
-A request with neither header and without the cookie is a script (curl, httpx, the API documentation's
-client sends ``Origin``): it passes in personal mode, as the command line does. Requests with an API token
+A request with neither header and without the cookie is a script's (curl, httpx): it passes in personal
+mode, as the command line does (only a browser too old to send ``Origin``, before about 2020, could send a
+cross-site write that looks like it; its SameSite=Lax cookie stays behind). Requests with an API token
 (lab mode) need no token, because a browser never adds that header by itself; a form field is looked for in
 the first 64 kB of the body only (before the first file of an upload), so a refused upload is not spooled.
 """
