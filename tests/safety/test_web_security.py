@@ -216,7 +216,7 @@ def test_requests_for_another_host_name_are_refused(lab_server):
         answer = httpx.get(f"{lab_server.base_url}/api/health", headers={"Host": host})
         assert answer.status_code == 400 and "does not answer for the host name" in answer.text, host
     port = lab_server.base_url.rsplit(":", 1)[1]
-    for host in (f"localhost:{port}", f"127.0.0.1:{port}", "LOCALHOST"):
+    for host in (f"localhost:{port}", f"127.0.0.1:{port}", f"[::1]:{port}", "LOCALHOST"):
         assert httpx.get(f"{lab_server.base_url}/api/health", headers={"Host": host}).status_code == 200
 
 
