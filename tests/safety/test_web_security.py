@@ -137,8 +137,7 @@ def with_accounts(data_dir: Path, *names: str) -> Path:
 
 
 def read_only(data_dir: Path) -> sqlite3.Connection:
-    """A read-only connection to a running server's store: closing it never checkpoints or removes the
-    write-ahead log that the server's connections still use."""
+    """A read-only connection to a running server's store (the tests only look)."""
     return sqlite3.connect(f"file:{data_dir / STORE_FILE}?mode=ro", uri=True)
 
 
