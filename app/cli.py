@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import ipaddress
 import os
 import sys
 from pathlib import Path
@@ -36,6 +37,14 @@ def _engine(data_dir: Path | None):
     return make_engine(_settings(data_dir).resolved_database_url)
 
 
+def _every_address(host: str) -> bool:
+    """Whether a listening address is every address of the machine (0.0.0.0, ::)."""
+    try:
+        return ipaddress.ip_address(host.strip("[]")).is_unspecified
+    except ValueError:
+        return False
+
+
 @app.command()
 def serve(
     host: Annotated[str, typer.Option(help="Address to listen on.")] = "127.0.0.1",
@@ -54,13 +63,17 @@ def serve(
     at once and the Library shows them arriving).
 
     Listening on an address other than this computer's own (127.0.0.1, ::1, localhost) needs lab mode: it is
-    refused while the store has no account ('lexigrowth user add NAME --admin').
+    refused while the store has no account ('lexigrowth user add NAME --admin'). The server answers only
+    for loopback names, the address it listens on and the names in LEXIGROWTH_ALLOWED_HOSTS; listening on
+    every address (0.0.0.0, ::) needs those names. Behind a reverse proxy, LEXIGROWTH_TRUSTED_PROXIES lists
+    its address: uvicorn then takes the client's address and scheme from its X-Forwarded-For and
+    X-Forwarded-Proto, and from no one else's.
     """
     import uvicorn
 
     from app.main import create_app
     from app.store.accounts import any_account
-    from app.web.security import is_loopback
+    from app.web.security import LOOPBACK_NAMES, is_loopback
 
     settings = _settings(data_dir)
     lab = any_account(_engine(data_dir))
@@ -72,23 +85,45 @@ def serve(
             err=True,
         )
         raise typer.Exit(code=2)
+    names = settings.host_names
+    if _every_address(host):
+        if not names:
+            typer.echo(
+                f"error: listening on {host} (every address of this machine) needs the host names members "
+                "type in their browsers: set LEXIGROWTH_ALLOWED_HOSTS (comma-separated, e.g. "
+                "lab.example.org,192.0.2.10). Requests for any other name are refused, so that a page of "
+                "another site cannot reach the dashboard under its own name (DNS rebinding).",
+                err=True,
+            )
+            raise typer.Exit(code=2)
+    elif host.strip("[]").lower() not in LOOPBACK_NAMES:
+        names = [*names, host.strip("[]").lower()]  # the address it listens on is a name members may use
+    settings = settings.model_copy(update={"allowed_hosts": ",".join(names)})
     mode = "lab mode: members sign in" if lab or settings.mode == "lab" else "personal mode: no sign-in"
     typer.echo(
         f"Lexigrowth on http://{host}:{port}  ({mode}; store: {settings.resolved_database_url}; "
         f"{workers} server process{'es' if workers > 1 else ''})"
     )
+    typer.echo(
+        f"Answers for the host names {', '.join(sorted(LOOPBACK_NAMES) + names)}; proxies trusted for "
+        f"X-Forwarded-*: {', '.join(settings.proxy_addresses) or 'none'}"
+    )
     options = {
         "host": host,
         "port": port,
         "log_level": "info",
-        "proxy_headers": settings.trust_proxy,  # X-Forwarded-* from FORWARDED_ALLOW_IPS (default 127.0.0.1)
+        # The client's address and scheme from X-Forwarded-* only when the connection comes from a listed
+        # proxy (uvicorn takes the nearest address that proxy did not add itself); else the connection's.
+        "proxy_headers": bool(settings.proxy_addresses),
+        "forwarded_allow_ips": ",".join(settings.proxy_addresses) or None,
         "timeout_graceful_shutdown": SHUTDOWN_SECONDS,
     }
     if workers == 1:
         uvicorn.run(create_app(settings), **options)
         return
-    # Each server process makes its own app from the environment: pass the data folder on.
+    # Each server process makes its own app from the environment: pass the data folder and names on.
     os.environ["LEXIGROWTH_DATA_DIR"] = str(settings.data_dir.resolve())
+    os.environ["LEXIGROWTH_ALLOWED_HOSTS"] = settings.allowed_hosts
     uvicorn.run("app.main:create_app", factory=True, workers=workers, **options)
 
 

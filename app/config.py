@@ -24,7 +24,8 @@ except PackageNotFoundError:  # running from a source tree that was not installe
 class Settings(BaseSettings):
     """Environment: LEXIGROWTH_DATA_DIR, LEXIGROWTH_DATABASE_URL, LEXIGROWTH_MAX_UPLOAD_MB, LEXIGROWTH_LOAD_DEMO,
     LEXIGROWTH_TASK_WORKER,
-    and for lab mode LEXIGROWTH_MODE, LEXIGROWTH_SECRET_KEY, LEXIGROWTH_TRUST_PROXY (see app.web.security)."""
+    LEXIGROWTH_ALLOWED_HOSTS, LEXIGROWTH_TRUSTED_PROXIES,
+    and for lab mode LEXIGROWTH_MODE, LEXIGROWTH_SECRET_KEY (see app.web.security)."""
 
     model_config = SettingsConfigDict(env_prefix="LEXIGROWTH_")
 
@@ -39,8 +40,12 @@ class Settings(BaseSettings):
     mode: Literal["auto", "lab"] = "auto"
     # Key that signs session cookies; empty: a random key kept in <data_dir>/secret_key (mode 0600).
     secret_key: str = Field(default="", repr=False)
-    # Believe X-Forwarded-Proto (and X-Forwarded-For in `serve`) from a reverse proxy in front of the app.
-    trust_proxy: bool = False
+    # Host names the server answers for besides localhost, 127.0.0.1 and ::1 (comma-separated); any other
+    # Host header is refused, which stops DNS rebinding (app.web.security.AllowedHostsMiddleware).
+    allowed_hosts: str = ""
+    # Addresses or networks of reverse proxies (comma-separated, e.g. "127.0.0.1" or "10.0.0.0/8") whose
+    # X-Forwarded-For and X-Forwarded-Proto uvicorn believes in `serve`; empty: none, the headers are ignored.
+    trusted_proxies: str = ""
 
     @property
     def resolved_database_url(self) -> str:
@@ -49,9 +54,24 @@ class Settings(BaseSettings):
         return f"sqlite:///{(self.data_dir / 'lexigrowth.sqlite3').resolve()}"
 
     @property
+    def host_names(self) -> list[str]:
+        """The configured names of ``allowed_hosts``, lower case."""
+        return _listed(self.allowed_hosts)
+
+    @property
+    def proxy_addresses(self) -> list[str]:
+        """The configured addresses or networks of ``trusted_proxies``."""
+        return _listed(self.trusted_proxies)
+
+    @property
     def work_dir(self) -> Path:
         """Scratch space for uploads and temporary type-id sequences."""
         return private_dir(self.data_dir / "work")
+
+
+def _listed(value: str) -> list[str]:
+    """Comma- or blank-separated entries, lower case, without duplicates, in their order."""
+    return list(dict.fromkeys(item for item in value.replace(",", " ").lower().split()))
 
 
 def private_dir(path: Path) -> Path:

@@ -5,7 +5,7 @@ from __future__ import annotations
 import logging
 from contextlib import asynccontextmanager
 
-from fastapi import Depends, FastAPI, Request
+from fastapi import FastAPI, Request
 from fastapi.exception_handlers import http_exception_handler, request_validation_exception_handler
 from fastapi.exceptions import RequestValidationError
 from fastapi.responses import Response
@@ -59,7 +59,6 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         version=PROGRAM_VERSION,
         description="Frequency spectra, vocabulary growth and n-legomena models for comparing corpora.",
         lifespan=lifespan,
-        dependencies=[Depends(security.csrf_protect)],
         docs_url=None,  # served by app.web.security from local files, with its own Content-Security-Policy
         redoc_url=None,
         default_response_class=FiniteJSONResponse,
@@ -78,6 +77,8 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     # Responses of 1 kB or more are gzip-compressed when the browser accepts it (plotly.js is compressed once).
     app.add_middleware(GZipMiddleware, minimum_size=1000, compresslevel=GZIP_LEVEL)
+    # Outermost: requests for other host names (DNS rebinding) are refused before anything else.
+    app.add_middleware(security.AllowedHostsMiddleware, names=settings.host_names)
 
     app.mount(security.SWAGGER_ASSETS, StaticFiles(directory=swagger_ui_path), name="swagger-ui")
 

@@ -1,6 +1,6 @@
 // Upload with a progress bar: bytes sent, then the ingestion job's stages (reading, counting with its own
 // progress, storing), then the corpus page as soon as the corpus exists (its models are fitted meanwhile).
-// In lab mode the page's CSRF token (<meta name="csrf-token">) goes with the upload as X-CSRF-Token.
+// The page's CSRF token (<meta name="csrf-token">) goes with the upload as X-CSRF-Token.
 (function () {
   "use strict";
   var form = document.getElementById("upload-form");

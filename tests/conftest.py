@@ -12,6 +12,10 @@ from fastapi.testclient import TestClient
 # Apps made by tests run their background tasks in the requesting thread (no worker process per app);
 # servers started as processes by the tests do not inherit LEXIGROWTH_* settings and use their worker.
 os.environ.setdefault("LEXIGROWTH_TASK_WORKER", "0")
+# Starlette's test client asks for the host "testserver": the apps made by tests answer for it too (a real
+# server answers only for loopback names and the configured ones).
+TEST_CLIENT_HOST = "testserver"
+os.environ.setdefault("LEXIGROWTH_ALLOWED_HOSTS", TEST_CLIENT_HOST)
 
 from app.config import Settings  # noqa: E402
 from app.main import create_app  # noqa: E402
@@ -94,7 +98,13 @@ def settings(tmp_path) -> Settings:
     return Settings(data_dir=tmp_path / "data", load_demo=False, max_upload_mb=5)
 
 
+# What every browser in use sends with a POST, PUT, PATCH or DELETE of a page of this site: the tests'
+# client keeps the cookie its pages set, so without it a write would need the page's CSRF token.
+SAME_ORIGIN = {"Origin": f"http://{TEST_CLIENT_HOST}"}
+
+
 @pytest.fixture()
 def client(settings) -> TestClient:
-    with TestClient(create_app(settings)) as test_client:
+    """A browser on the app's own pages (personal mode)."""
+    with TestClient(create_app(settings), headers=SAME_ORIGIN) as test_client:
         yield test_client

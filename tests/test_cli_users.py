@@ -119,7 +119,7 @@ def token_hashes(data: list[str]) -> set[str]:
 def started(monkeypatch) -> list[dict]:
     """The keyword arguments of every uvicorn.run call (nothing really listens)."""
     calls: list[dict] = []
-    monkeypatch.setattr(uvicorn, "run", lambda app, **kwargs: calls.append(kwargs))
+    monkeypatch.setattr(uvicorn, "run", lambda app, **kwargs: calls.append(kwargs | {"app": app}))
     return calls
 
 
@@ -134,22 +134,46 @@ def test_serve_refuses_other_addresses_while_there_is_no_account(data, started, 
 def test_serve_on_this_computer_needs_no_account(data, started, host):
     result = runner.invoke(app, ["serve", "--host", host, *data])
     assert result.exit_code == 0 and "personal mode" in result.output
-    assert started == [
+    assert [{k: v for k, v in call.items() if k != "app"} for call in started] == [
         {
             "host": host,
             "port": 8000,
             "log_level": "info",
-            "proxy_headers": False,
+            "proxy_headers": False,  # no proxy trusted: X-Forwarded-* are ignored
+            "forwarded_allow_ips": None,
             "timeout_graceful_shutdown": 2,
         }
     ]
 
 
-def test_serve_on_every_address_once_there_is_an_account(data, started):
+def test_serve_on_every_address_needs_an_account_and_the_host_names(data, started, monkeypatch):
     add(data, "ada", secrets.token_urlsafe(12), "--admin")
+    monkeypatch.delenv("LEXIGROWTH_ALLOWED_HOSTS", raising=False)
+    refused = runner.invoke(app, ["serve", "--host", "0.0.0.0", "--port", "8123", *data])
+    assert refused.exit_code == 2 and "LEXIGROWTH_ALLOWED_HOSTS" in refused.output and started == []
+    monkeypatch.setenv("LEXIGROWTH_ALLOWED_HOSTS", "Lab.Example.org, 192.0.2.10")
     result = runner.invoke(app, ["serve", "--host", "0.0.0.0", "--port", "8123", *data])
     assert result.exit_code == 0 and "lab mode" in result.output
+    assert "lab.example.org, 192.0.2.10" in result.output
     assert started[0]["host"] == "0.0.0.0" and started[0]["port"] == 8123
+    served = TestClient(started[0]["app"], base_url="http://lab.example.org")
+    assert served.get("/login").status_code == 200
+    refused = served.get("/login", headers={"Host": "lab.example.org.evil.example"})
+    assert refused.status_code == 400 and "LEXIGROWTH_ALLOWED_HOSTS" in refused.text
+
+
+def test_serve_on_one_address_answers_for_that_address_and_trusts_only_listed_proxies(
+    data, started, monkeypatch
+):
+    add(data, "ada", secrets.token_urlsafe(12), "--admin")
+    monkeypatch.delenv("LEXIGROWTH_ALLOWED_HOSTS", raising=False)
+    monkeypatch.setenv("LEXIGROWTH_TRUSTED_PROXIES", "127.0.0.1, 10.0.0.0/8")
+    result = runner.invoke(app, ["serve", "--host", "192.0.2.10", *data])
+    assert result.exit_code == 0, result.output
+    assert started[0]["proxy_headers"] is True and started[0]["forwarded_allow_ips"] == "127.0.0.1,10.0.0.0/8"
+    served = TestClient(started[0]["app"], base_url="http://192.0.2.10:8000")
+    assert served.get("/login").status_code == 200
+    assert served.get("/login", headers={"Host": "rebound.example:8000"}).status_code == 400
 
 
 def test_password_change_revokes_or_keeps_tokens_and_says_which(data):
@@ -185,21 +209,21 @@ def test_unlock_forgets_failed_sign_ins(data):
     by_pair = signins.Allowance(pair=1, address=5)  # only the name-and-address pair is over its allowance
     by_address = signins.Allowance(pair=5, address=1)  # only the address is
     for address in ("192.0.2.1", "192.0.2.2"):
-        signins.failed(engine, "ben", address)
-    signins.failed(engine, "cleo", "192.0.2.3")
-    assert signins.wait_seconds(engine, "ben", "192.0.2.1", by_pair) > 0
+        assert signins.attempt(engine, "ben", address, by_pair) == 0  # each attempt counts, also this one
+    assert signins.attempt(engine, "cleo", "192.0.2.3", by_pair) == 0
+    assert signins.attempt(engine, "ben", "192.0.2.1", by_pair) > 0
 
     result = runner.invoke(app, ["user", "unlock", "ben", *data])
     assert result.exit_code == 0 and "forgot the failed sign-ins of 2" in result.output
-    assert signins.wait_seconds(engine, "BEN", "192.0.2.1", by_pair) == 0  # names are compared folded
-    assert signins.wait_seconds(engine, "ben", "192.0.2.2", by_pair) == 0
-    # the address's own count stays until cleared by address (or everything)
-    assert signins.wait_seconds(engine, "dora", "192.0.2.1", by_address) > 0
+    assert signins.attempt(engine, "BEN", "192.0.2.1", by_pair) == 0  # names are compared folded
+    assert signins.attempt(engine, "ben", "192.0.2.2", by_pair) == 0
+    # the address's own count (3 attempts) stays until cleared by address (or everything)
+    assert signins.attempt(engine, "dora", "192.0.2.1", by_address) > 0
     assert runner.invoke(app, ["user", "unlock", "--address", "192.0.2.1", *data]).exit_code == 0
-    assert signins.wait_seconds(engine, "dora", "192.0.2.1", by_address) == 0
-    assert signins.wait_seconds(engine, "cleo", "192.0.2.3", by_pair) > 0
+    assert signins.attempt(engine, "dora", "192.0.2.1", by_address) == 0
+    assert signins.attempt(engine, "cleo", "192.0.2.3", by_pair) > 0
     everything = runner.invoke(app, ["user", "unlock", *data])
-    assert everything.exit_code == 0 and signins.wait_seconds(engine, "cleo", "192.0.2.3", by_pair) == 0
+    assert everything.exit_code == 0 and signins.attempt(engine, "cleo", "192.0.2.3", by_pair) == 0
 
 
 def test_failures_older_than_a_day_are_removed_from_the_store(data):
@@ -210,8 +234,8 @@ def test_failures_older_than_a_day_are_removed_from_the_store(data):
     engine = engine_of(data)
     long_ago = datetime.now(UTC) - timedelta(days=2)
     for address in ("192.0.2.10", "192.0.2.11"):
-        signins.failed(engine, "ben", address, long_ago)
-    signins.failed(engine, "cleo", "192.0.2.12")
+        signins.attempt(engine, "ben", address, signins.Allowance(), long_ago)
+    signins.attempt(engine, "cleo", "192.0.2.12", signins.Allowance())
     with engine.connect() as connection:
         keys = set(connection.execute(text("SELECT key FROM signinfailures")).scalars())
     assert keys == {"pair cleo 192.0.2.12", "address 192.0.2.12"}

@@ -52,9 +52,16 @@ def _use_wal(cursor: sqlite3.Cursor) -> None:
 
 def _private_file(path: Path) -> None:
     """Create the SQLite file (and its folder, when missing) readable by its owner only: modes 0600 and
-    0700. SQLite gives its -wal and -shm files the mode of the database file."""
+    0700. SQLite gives its -wal and -shm files the mode of the database file.
+
+    An existing file is not opened: closing any descriptor of a file drops every POSIX lock the process
+    holds on it (fcntl(2)), those of its open SQLite connections too, and another process closing its
+    connection would then take itself for the last one and delete the write-ahead log still in use."""
     path.parent.mkdir(mode=0o700, parents=True, exist_ok=True)
-    os.close(os.open(path, os.O_RDWR | os.O_CREAT, 0o600))
+    try:
+        os.close(os.open(path, os.O_RDWR | os.O_CREAT | os.O_EXCL, 0o600))
+    except FileExistsError:
+        pass
     if path.stat().st_mode & 0o077:
         path.chmod(0o600)
 

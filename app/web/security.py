@@ -1,19 +1,40 @@
-"""Lab mode and the security of every response: who is asking, the sign-in gate, CSRF, and security headers.
+"""Lab mode and the security of every request and response: the host names served, who is asking, the
+sign-in gate, cross-site request forgery, and security headers.
 
-Personal mode (the default while the store has no account): requests pass as they always did; only the
-security headers are added. Lab mode (as soon as the store has an account, or always with
+Host names: only requests for localhost, 127.0.0.1, ::1 and the names of ``LEXIGROWTH_ALLOWED_HOSTS`` are
+answered (``AllowedHostsMiddleware``), so a page of another site whose name was pointed at this machine
+(DNS rebinding) gets nothing, not even a read.
+
+Personal mode (the default while the store has no account): nobody signs in; cross-site writes are refused
+as in lab mode (below). Lab mode (as soon as the store has an account, or always with
 ``LEXIGROWTH_MODE=lab``): every page and API route needs a signed-in member (session cookie) or an API token
 (``Authorization: Bearer ...``), except the sign-in page, ``/api/health``, static assets and comparisons
 their creator made public. Anonymous API calls get 401 JSON, anonymous pages a redirect to ``/login``.
 
-Sessions live in the store (``app.store.sessions``): the cookie holds a random session id and the session's
+Sessions live in the store (``app.store.sessions``): the cookie holds a random session id (lab mode) and the
 CSRF token, signed (itsdangerous, HMAC-SHA1 over the JSON; key from ``LEXIGROWTH_SECRET_KEY`` or a random key
 kept in the data folder with mode 0600), HttpOnly, SameSite=Lax, Secure over HTTPS. Signing out deletes the
 session from the store and a password change deletes every session of the member, so a copied cookie stops
 working in every server process at once (OWASP Session Management Cheat Sheet, "Session Expiration":
-invalidate sessions on the server side). Failed sign-ins are counted in the store (``app.store.signins``). Every state-changing request (POST, PUT, PATCH, DELETE) made with the session cookie must send that
-token, in the ``X-CSRF-Token`` header or the ``csrf_token`` form field (OWASP's synchronizer token pattern);
-requests with an API token need none, because a browser never adds that header by itself.
+invalidate sessions on the server side). Sign-in attempts are counted in the store before the password is
+checked (``app.store.signins``); the client's address is the connection's, or what uvicorn took from the
+headers of a proxy listed in ``LEXIGROWTH_TRUSTED_PROXIES`` (``lexigrowth serve``), never a header read here.
+
+Cross-site request forgery, in both modes (``forgery_refusal``, run by ``SecurityMiddleware`` before a byte
+of the body is read). A state-changing request (POST, PUT, PATCH, DELETE) is refused with 403 when the
+browser says it comes from another origin: ``Sec-Fetch-Site`` other than ``same-origin`` or ``none``, or an
+``Origin`` that is not this server's own (OWASP CSRF Prevention Cheat Sheet, "Fetch Metadata headers" and
+"Verifying Origin With Standard Headers"). Browsers send ``Origin`` with every POST, PUT, PATCH and DELETE
+(Fetch standard, "append a request `Origin` header"), so a cross-site one never arrives without it. Then the
+CSRF token (OWASP's synchronizer token pattern), kept in the signed cookie and sent in the ``X-CSRF-Token``
+header or the ``csrf_token`` form field: in lab mode every request made with the cookie needs it; in
+personal mode a request that says where it comes from (``Origin`` or ``Sec-Fetch-Site``) needs no more, and
+one that says neither needs the token when it carries the cookie (a browser too old to send ``Origin``).
+A request with neither header and without the cookie is a script's (curl, httpx): it passes in personal
+mode, as the command line does (only a browser too old to send ``Origin``, before about 2020, could send a
+cross-site write that looks like it; its SameSite=Lax cookie stays behind). Requests with an API token
+(lab mode) need no token, because a browser never adds that header by itself; a form field is looked for in
+the first 64 kB of the body only (before the first file of an upload), so a refused upload is not spooled.
 """
 
 from __future__ import annotations
@@ -25,17 +46,19 @@ import math
 import os
 import re
 import secrets
+from collections.abc import Iterable
 from dataclasses import dataclass, field
 from datetime import timedelta
 from typing import Annotated, Any
-from urllib.parse import quote
+from urllib.parse import parse_qs, quote, urlsplit
 
-from fastapi import APIRouter, Form, HTTPException, Request
-from fastapi.responses import HTMLResponse, JSONResponse, RedirectResponse, Response
+from fastapi import APIRouter, Form, Request
+from fastapi.responses import HTMLResponse, JSONResponse, PlainTextResponse, RedirectResponse, Response
 from itsdangerous import BadData, URLSafeTimedSerializer
+from python_multipart.multipart import MultipartParser, parse_options_header
 from sqlalchemy.engine import Engine
 from starlette.concurrency import run_in_threadpool
-from starlette.datastructures import MutableHeaders
+from starlette.datastructures import Headers, MutableHeaders
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
 from app.config import Settings
@@ -58,7 +81,15 @@ OPEN_PREFIXES = ("/static/",)
 PUBLIC_PERMALINK = re.compile(
     r"/compare/([A-Za-z0-9_-]{16,86})|/api/comparisons/([A-Za-z0-9_-]{16,86})(?:/table\.csv)?"
 )
-FORM_TYPES = ("application/x-www-form-urlencoded", "multipart/form-data")
+URLENCODED = "application/x-www-form-urlencoded"
+MULTIPART = "multipart/form-data"
+# The browser's word on where a request comes from (Fetch Metadata): these two are this site itself
+# ("none": typed or bookmarked by the user); "same-site" is another origin of the same site (another port
+# of localhost, another subdomain), not this server.
+OWN_SITE = frozenset({"same-origin", "none"})
+TOKEN_FIELD_BYTES = 64 * 1024  # a form's token field is looked for this far into its body, no further
+FORM_BODY_BYTES = 1 << 20  # a form without files (sign-in, save, delete): a few hundred bytes in practice
+LOOPBACK_NAMES = frozenset({"localhost", "127.0.0.1", "::1"})
 SIGN_IN_ALLOWANCE = signins.Allowance(pair=5, address=20)
 
 # Plotly fills an empty <style> element through the CSS object model (which a policy does not restrict);
@@ -90,7 +121,8 @@ SECURITY_HEADERS = {
 
 @dataclass
 class Viewer:
-    """Who is asking: in lab mode a member (by session or API token) or nobody; outside it, the owner."""
+    """Who is asking: in lab mode a member (by session or API token) or nobody; outside it, the owner.
+    ``session`` is what the signed cookie holds: the CSRF token (both modes) and the session id (lab)."""
 
     lab: bool
     member: Member | None = None
@@ -105,9 +137,7 @@ class Viewer:
         return self.lab and self.member is None
 
     def csrf_token(self) -> str:
-        """The session's CSRF token (made on first use); empty outside lab mode, where none is checked."""
-        if not self.lab:
-            return ""
+        """The session's CSRF token, made on first use (and then sent in the cookie)."""
         if not self.session.get("csrf"):
             self.session = self.session | {"csrf": secrets.token_urlsafe(32)}
             self.session_changed = True
@@ -115,9 +145,10 @@ class Viewer:
 
     def page_key(self) -> tuple:
         """Everything of the viewer that a page shows: the mode, the member (id, name, role) and the CSRF
-        token its forms carry. Two requests with the same key see the same page."""
+        token its forms carry. Two requests with the same key see the same page. An anonymous visitor (of
+        a public permalink) is shown no form, so no token: one page for all of them, and no cookie."""
         member = self.member and (self.member.id, self.member.name, self.member.is_admin)
-        return (self.lab, member, self.csrf_token())
+        return (self.lab, member, "" if self.anonymous else self.csrf_token())
 
     def csrf_matches(self, sent: str | None) -> bool:
         return _same(self.session.get("csrf"), sent)
@@ -202,7 +233,6 @@ class Guard:
 
     def __init__(self, settings: Settings, engine: Engine) -> None:
         self.engine = engine
-        self.trust_proxy = settings.trust_proxy
         self._lab = settings.mode == "lab"
         self._serializer = URLSafeTimedSerializer(secret_key(settings), salt="lexigrowth-session")
 
@@ -212,18 +242,12 @@ class Guard:
             self._lab = True
         return self._lab
 
-    def client_address(self, request: Request) -> str:
-        """The client's address: the first X-Forwarded-For entry behind a trusted proxy."""
-        forwarded = request.headers.get("x-forwarded-for", "").split(",")[0].strip()
-        if self.trust_proxy and forwarded:
-            return forwarded
+    @staticmethod
+    def client_address(request: Request) -> str:
+        """The client's address as the server sees it: the connection's, or the one uvicorn took from
+        X-Forwarded-For when the connection comes from a trusted proxy (``LEXIGROWTH_TRUSTED_PROXIES``:
+        the nearest address the proxies did not add themselves). No header is read here."""
         return request.client.host if request.client else "unknown address"
-
-    def is_https(self, request: Request) -> bool:
-        if request.url.scheme == "https":
-            return True
-        forwarded = request.headers.get("x-forwarded-proto", "").split(",")[0].strip().lower()
-        return self.trust_proxy and forwarded == "https"
 
     def _session(self, cookie: str | None) -> dict[str, Any]:
         if not cookie:
@@ -237,7 +261,7 @@ class Guard:
     def identify(self, request: Request) -> Viewer:
         """The viewer from an API token (which must be valid when sent) or the session cookie."""
         if not self.lab_mode():
-            return Viewer(lab=False)
+            return Viewer(lab=False, session=self._session(request.cookies.get(SESSION_COOKIE)))
         authorization = request.headers.get("authorization")
         if authorization is not None:
             scheme, _, token = authorization.partition(" ")
@@ -329,28 +353,223 @@ class SecurityMiddleware:
                 if viewer.lab and not static and "cache-control" not in headers:
                     headers["cache-control"] = "no-store"  # members' pages stay out of shared caches
                 if viewer.session_changed:
-                    headers.append("set-cookie", self.guard.cookie(viewer, self.guard.is_https(request)))
+                    headers.append("set-cookie", self.guard.cookie(viewer, scope.get("scheme") == "https"))
             await send(message)
 
+        if refusal is None and scope["method"] not in SAFE_METHODS:
+            refusal, receive = await forgery_refusal(request, viewer, receive)
         await (refusal or self.app)(scope, receive, send_secured)
 
 
 # --------------------------------------------------------------------------------------------- CSRF
 
 
-async def csrf_protect(request: Request) -> None:
-    """Dependency of every route: a state-changing request made with the lab session cookie must carry the
-    session's CSRF token (header or form field); 403 otherwise. Nothing is checked outside lab mode."""
-    viewer = viewer_of(request)
-    if request.method in SAFE_METHODS or not viewer.lab or viewer.via_token:
-        return
-    sent = request.headers.get(CSRF_HEADER)
-    if sent is None and request.headers.get("content-type", "").startswith(FORM_TYPES):
-        sent = (await request.form()).get(CSRF_FIELD)
-    if not viewer.csrf_matches(sent if isinstance(sent, str) else None):
-        raise HTTPException(
-            status_code=403, detail="missing or wrong CSRF token: reload the page and try again"
+def _origin(url: str) -> tuple[str, str, int | None] | None:
+    """Scheme, host name and port of an origin or URL, in one form (lower case, default port left out);
+    None for what is not one (``null``, a damaged value)."""
+    try:
+        parts = urlsplit(url.strip())
+        port = parts.port
+    except ValueError:
+        return None
+    if parts.scheme not in ("http", "https") or not parts.hostname:
+        return None
+    return (
+        parts.scheme,
+        parts.hostname.rstrip("."),
+        None if port == {"http": 80, "https": 443}[parts.scheme] else port,
+    )
+
+
+def cross_site(scope: Scope) -> str | None:
+    """Why a request comes from another site by what the browser says (``Sec-Fetch-Site``, ``Origin``),
+    or None. This server's own origin is its scheme and the Host header (checked by
+    ``AllowedHostsMiddleware``)."""
+    headers = Headers(scope=scope)
+    site = headers.get("sec-fetch-site")
+    if site is not None and site.strip().lower() not in OWN_SITE:
+        return f"this request comes from another site (Sec-Fetch-Site: {site[:40]})"
+    origin = headers.get("origin")
+    if origin is None:
+        return None
+    own = f"{scope.get('scheme', 'http')}://{headers.get('host', '')}"
+    sent, served = _origin(origin), _origin(own)
+    if sent is not None and sent == served:
+        return None
+    reason = f"this request comes from another site (Origin: {origin[:100]}; this server is {own[:100]})"
+    if sent and served and sent[1:] == served[1:]:  # the same name by another scheme: an HTTPS proxy
+        reason += (
+            ". If a proxy in front of this server speaks HTTPS, list its address in "
+            "LEXIGROWTH_TRUSTED_PROXIES so that its X-Forwarded-Proto is believed"
         )
+    return reason
+
+
+def _needs_token(viewer: Viewer, headers: Headers, cookie_sent: bool) -> bool:
+    """Lab mode: every request made with the session cookie. Personal mode: a request that carries the
+    cookie but says neither where it comes from (``Origin``, ``Sec-Fetch-Site``): a browser too old to say
+    it. A request with neither header nor cookie is a script's."""
+    if viewer.lab:
+        return True
+    return cookie_sent and "origin" not in headers and "sec-fetch-site" not in headers
+
+
+async def forgery_refusal(
+    request: Request, viewer: Viewer, receive: Receive
+) -> tuple[Response | None, Receive]:
+    """The 403 for a state-changing request from another site or without its CSRF token (None when it may
+    go on), and the ``receive`` to read its body with: what was read to find a token field is read again.
+
+    Decided from the headers before any of the body is read; only a form that sends its token as a field
+    is read, as far as that field (at most ``TOKEN_FIELD_BYTES``, never into an uploaded file)."""
+    if viewer.via_token:
+        return None, receive
+    reason = cross_site(request.scope)
+    if reason is None and _needs_token(viewer, request.headers, SESSION_COOKIE in request.cookies):
+        sent = request.headers.get(CSRF_HEADER)
+        if sent is None:
+            sent, receive = await token_field(request.headers.get("content-type", ""), receive)
+        if not viewer.csrf_matches(sent):
+            reason = "missing or wrong CSRF token: reload the page and try again"
+    if reason is None:
+        return None, receive
+    log.warning("refused %s %s: %s", request.method, request.url.path, reason)
+    if request.url.path.startswith("/api/"):
+        return JSONResponse({"detail": reason}, status_code=403), receive
+    refusal = render(
+        request, "error.html", status_code=403, heading="Not allowed", detail=reason, json_url=None, typed=[]
+    )
+    return refusal, receive
+
+
+async def token_field(content_type: str, receive: Receive) -> tuple[str | None, Receive]:
+    """The ``csrf_token`` field of a form body (URL-encoded, or multipart before its first file), read from
+    ``receive`` only as far as needed, and a ``receive`` that gives the messages read again first."""
+    kind, options = parse_options_header(content_type)
+    read: list[Message] = []
+
+    async def replayed() -> Message:
+        return read.pop(0) if read else await receive()
+
+    if kind == URLENCODED.encode():
+        body = await _read_until(receive, read, FORM_BODY_BYTES, lambda _chunk: False)
+        values = parse_qs(body.decode("latin-1")).get(CSRF_FIELD, [])
+        return (values[0] if values else None), replayed
+    if kind != MULTIPART.encode() or not options.get(b"boundary"):
+        return None, replayed
+    fields = _TokenFields(options[b"boundary"])
+    await _read_until(receive, read, TOKEN_FIELD_BYTES, fields.feed)
+    return fields.token, replayed
+
+
+async def _read_until(receive: Receive, read: list[Message], limit: int, done) -> bytes:
+    """Body messages from ``receive`` (kept in ``read``) until the body ends, ``done(chunk)`` says enough,
+    or more than ``limit`` bytes came; the bytes read."""
+    body = bytearray()
+    while len(body) <= limit:
+        message = await receive()
+        read.append(message)
+        if message["type"] != "http.request":
+            break
+        chunk = message.get("body", b"")
+        body += chunk
+        if done(chunk) or not message.get("more_body", False):
+            break
+    return bytes(body)
+
+
+class _TokenFields:
+    """A multipart body parsed as it arrives until its ``csrf_token`` field is complete or a file begins
+    (python-multipart's streaming parser, the one Starlette reads forms with)."""
+
+    def __init__(self, boundary: bytes) -> None:
+        self.token: str | None = None
+        self.finished = False
+        self._field = bytearray()
+        self._value = bytearray()
+        self._disposition = b""
+        self._in_token = False
+        self._parser = MultipartParser(
+            boundary,
+            {
+                "on_part_begin": self._begin,
+                "on_header_field": lambda data, start, end: self._field.extend(data[start:end]),
+                "on_header_value": lambda data, start, end: self._value.extend(data[start:end]),
+                "on_header_end": self._header_end,
+                "on_headers_finished": self._headers_finished,
+                "on_part_data": self._data,
+                "on_part_end": self._end,
+            },
+        )
+
+    def feed(self, chunk: bytes) -> bool:
+        """Parse one more chunk; whether the search is over (token found, a file began, bad body)."""
+        try:
+            self._parser.write(chunk)
+        except Exception:  # a damaged body: the route's form parser says what is wrong, if it is let in
+            self.finished = True
+        return self.finished
+
+    def _begin(self) -> None:
+        self._disposition, self._in_token = b"", False
+
+    def _header_end(self) -> None:
+        if bytes(self._field).strip().lower() == b"content-disposition":
+            self._disposition = bytes(self._value)
+        self._field.clear()
+        self._value.clear()
+
+    def _headers_finished(self) -> None:
+        _, options = parse_options_header(self._disposition)
+        if b"filename" in options:
+            self.finished = True  # the token field comes before the files, or not at all
+        self._in_token = options.get(b"name") == CSRF_FIELD.encode()
+
+    def _data(self, data: bytes, start: int, end: int) -> None:
+        if self._in_token and not self.finished:
+            self._value.extend(data[start:end])
+
+    def _end(self) -> None:
+        if self._in_token and not self.finished:
+            self.token = self._value.decode("latin-1")
+            self.finished = True
+        self._value.clear()
+
+
+def served_host(host_header: str) -> str:
+    """The host name of a Host header, without port or brackets, lower case (``[::1]:8000`` -> ``::1``)."""
+    host = host_header.strip().lower()
+    if host.startswith("["):
+        return host[1 : host.find("]")] if "]" in host else ""
+    return host.rsplit(":", 1)[0].rstrip(".") if host.count(":") <= 1 else ""
+
+
+class AllowedHostsMiddleware:
+    """Answers only requests for the host names this server is meant to serve: the loopback names and the
+    configured ones (``LEXIGROWTH_ALLOWED_HOSTS``); any other Host gets 400 with a sentence saying why.
+
+    A page of another site whose name the attacker re-points at 127.0.0.1 (DNS rebinding) reaches this
+    server with its own name as Host and same-origin to itself, so only the Host tells it apart (as
+    Starlette's TrustedHostMiddleware or Django's ALLOWED_HOSTS do; this one says why in its answer)."""
+
+    def __init__(self, app: ASGIApp, names: Iterable[str]) -> None:
+        self.app = app
+        self.names = LOOPBACK_NAMES | {served_host(name) for name in names}
+
+    async def __call__(self, scope: Scope, receive: Receive, send: Send) -> None:
+        if scope["type"] not in ("http", "websocket"):
+            await self.app(scope, receive, send)
+            return
+        host = Headers(scope=scope).get("host", "")
+        if served_host(host) in self.names:
+            await self.app(scope, receive, send)
+            return
+        detail = (
+            f"This server does not answer for the host name {host[:100]!r}: it serves localhost, "
+            "127.0.0.1, [::1] and the names listed in LEXIGROWTH_ALLOWED_HOSTS."
+        )
+        log.warning("refused a request for the host %r", host[:100])
+        await PlainTextResponse(detail, status_code=400)(scope, receive, send)
 
 
 # ------------------------------------------------------------------------------------ sign in and out
@@ -385,7 +604,7 @@ def login(
     guard: Guard = request.app.state.guard
     engine = request.app.state.engine
     address = guard.client_address(request)
-    wait = signins.wait_seconds(engine, name, address, SIGN_IN_ALLOWANCE)
+    wait = signins.attempt(engine, name, address, SIGN_IN_ALLOWANCE)
     if wait > 0:
         seconds = math.ceil(wait)
         after = (
@@ -406,8 +625,7 @@ def login(
         refusal.headers["Retry-After"] = str(math.ceil(wait))
         return refusal
     member = accounts.authenticate(engine, name, password)
-    if member is None:
-        signins.failed(engine, name, address)
+    if member is None:  # already counted by the attempt
         log.info("failed sign-in from %s", address)
         return render(
             request,
@@ -466,12 +684,11 @@ def change_password(
     guard: Guard = request.app.state.guard
     engine = request.app.state.engine
     name, address = viewer.member.name, guard.client_address(request)
-    if signins.wait_seconds(engine, name, address, SIGN_IN_ALLOWANCE) > 0:
+    if signins.attempt(engine, name, address, SIGN_IN_ALLOWANCE) > 0:
         return _password_page(
             request, 429, error="Too many wrong passwords from this address: try again later."
         )
-    if accounts.authenticate(engine, name, current) is None:
-        signins.failed(engine, name, address)
+    if accounts.authenticate(engine, name, current) is None:  # already counted by the attempt
         return _password_page(request, 401, error="The current password is wrong.")
     if new != repeat:
         return _password_page(request, 422, error="The two new passwords differ.")

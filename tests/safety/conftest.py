@@ -6,6 +6,7 @@ import os
 
 import pytest
 
+from tests.conftest import TEST_CLIENT_HOST
 from tests.safety.generated import GeneratedText, write_text
 
 # About 20 MB: counting takes a few seconds on two cores and the store writes 1.5 million word rows.
@@ -17,9 +18,11 @@ BIG_TEXT_MIN_LETTERS = 6
 @pytest.fixture(autouse=True)
 def no_lexigrowth_environment(monkeypatch):
     """The apps made in the tests read no LEXIGROWTH_* variable of the caller (lab mode would answer 401
-    to every request, and the fuzz tests would then pass without reaching a single route)."""
+    to every request, and the fuzz tests would then pass without reaching a single route), except the host
+    name of Starlette's test client."""
     for name in [n for n in os.environ if n.startswith("LEXIGROWTH_")]:
         monkeypatch.delenv(name)
+    monkeypatch.setenv("LEXIGROWTH_ALLOWED_HOSTS", TEST_CLIENT_HOST)
 
 
 @pytest.fixture(scope="session")

@@ -17,7 +17,7 @@ from scipy.stats import hypergeom
 from app.config import Settings
 from app.main import create_app
 from app.services.comparisons import CAUTION, TABLE_COLUMNS
-from tests.conftest import stdlib_docstrings
+from tests.conftest import SAME_ORIGIN, stdlib_docstrings
 from tests.web.test_api import expected_counts, upload
 
 FIGURE_JSON = re.compile(r'<script type="application/json" id="([^"]+)-data">(.*?)</script>', re.S)
@@ -41,7 +41,7 @@ def upload_two(client, texts: list[str]) -> list[int]:
 def shared(tmp_path_factory, texts):
     """One app with the corpora Alpha (id 1) and Beta (id 2) for the tests that only read and save."""
     settings = Settings(data_dir=tmp_path_factory.mktemp("shared") / "data", load_demo=False, max_upload_mb=5)
-    with TestClient(create_app(settings)) as client:
+    with TestClient(create_app(settings), headers=SAME_ORIGIN) as client:
         yield client, upload_two(client, texts)
 
 

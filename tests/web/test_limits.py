@@ -93,7 +93,7 @@ def test_declared_oversize_upload_is_refused_before_its_body_is_read(small_limit
     server, _ = small_limit_server
     with _connect(server.base_url) as sock:
         sock.sendall(
-            b"POST /api/corpora?wait=1 HTTP/1.1\r\nHost: x\r\n"
+            b"POST /api/corpora?wait=1 HTTP/1.1\r\nHost: 127.0.0.1\r\n"
             + f"Content-Type: multipart/form-data; boundary={BOUNDARY}\r\n".encode()
             + f"Content-Length: {1 << 30}\r\n\r\n".encode()  # 1 GB declared, not a byte of it sent
         )
@@ -116,7 +116,7 @@ def test_streamed_oversize_upload_is_cut_off_and_scratch_stays_small(small_limit
     sent, largest, answered = 0, 0, False
     with _connect(server.base_url) as sock:
         sock.sendall(
-            b"POST /api/corpora?wait=1 HTTP/1.1\r\nHost: x\r\nTransfer-Encoding: chunked\r\n"
+            b"POST /api/corpora?wait=1 HTTP/1.1\r\nHost: 127.0.0.1\r\nTransfer-Encoding: chunked\r\n"
             + f"Content-Type: multipart/form-data; boundary={BOUNDARY}\r\n\r\n".encode()
         )
         for piece in [head] + [block] * 160:
