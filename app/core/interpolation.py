@@ -85,10 +85,36 @@ def _log_miss(N: int, n: int, m: np.ndarray, floor: float | None = None) -> np.n
         far = clipped > dense_top
         stops = np.unique(clipped[far])
         starts = np.concatenate([[dense_top], stops[:-1]])
-        pieces = [_sum_log_miss_terms(N, n, int(a), int(b)) for a, b in zip(starts, stops, strict=True)]
-        sums = cumulative[-1] + np.cumsum(pieces)
+        sums = cumulative[-1] + np.cumsum(_sum_log_miss_pieces(N, n, starts, stops))
         values[far] = sums[np.searchsorted(stops, clipped[far])]
     return np.where(reachable, values, -np.inf)
+
+
+def _sum_log_miss_pieces(N: int, n: int, starts: np.ndarray, stops: np.ndarray) -> np.ndarray:
+    """sum_{a <= j < b} log(1 - n / (N - j)) for each piece [a, b) of ``starts``, ``stops`` (b > a).
+
+    Pieces of at most ``DIRECT_TERMS`` terms (most of them when the frequencies are dense, as the pair sums
+    of a large spectrum are) are summed term by term all at once, ``DENSE_TERMS`` terms at a time; longer
+    ones by ``_sum_log_miss_terms``. The cost is then bounded by the range of frequencies, not by a Python
+    call per frequency."""
+    lengths = stops - starts
+    out = np.empty(lengths.size)
+    short = np.flatnonzero(lengths <= DIRECT_TERMS)
+    if short.size:
+        ends = np.cumsum(lengths[short])
+        first = 0
+        while first < short.size:
+            done = ends[first - 1] if first else 0
+            last = max(int(np.searchsorted(ends, done + DENSE_TERMS, side="right")), first + 1)
+            group = short[first:last]
+            counts = lengths[group]
+            offsets = np.concatenate([[0], np.cumsum(counts)[:-1]])
+            j = np.repeat(starts[group] - offsets, counts) + np.arange(int(counts.sum()))
+            out[group] = np.add.reduceat(np.log1p(-n / (N - j.astype(float))), offsets)
+            first = last
+    for i in np.flatnonzero(lengths > DIRECT_TERMS):
+        out[i] = _sum_log_miss_terms(N, n, int(starts[i]), int(stops[i]))
+    return out
 
 
 def _sum_log_miss_terms(N: int, n: int, a: int, b: int) -> float:

@@ -81,22 +81,37 @@ def growth_sizes(tokens: int, points: int) -> np.ndarray:
     return np.unique(np.clip(np.rint(sizes), 1, tokens).astype(np.int64))
 
 
+RANDOM_ORDER_GROWTH = "random_order_growth"
+
+
+def random_order_growth_of(spectrum: Spectrum) -> dict:
+    """Expected type growth of random samples with its 95% band (exact hypergeometric) of a spectrum."""
+    bands = growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS))
+    return {
+        "method": "exact hypergeometric expectation over random samples without replacement; "
+        "band = expectation +- 1.96 exact standard deviations",
+        "points": [
+            {"tokens": b.tokens, "types": b.types, "sd": b.sd, "low": b.low, "high": b.high} for b in bands
+        ],
+    }
+
+
+def exact_statistics(pairs: list[tuple[int, int]]) -> dict[str, dict]:
+    """The results a new corpus is stored with (result kind -> payload), computed from its spectrum before
+    it is stored, so that a corpus whose statistics cannot be computed is never stored. Their cost is
+    bounded by the limits on what is accepted (``app.ingest.counts``: largest frequency, spectrum rows)."""
+    return {RANDOM_ORDER_GROWTH: random_order_growth_of(Spectrum.from_pairs(pairs))}
+
+
 def random_order_growth(engine: Engine, corpus_id: int) -> dict:
-    """Expected type growth of random samples with its 95% band (exact hypergeometric), cached."""
-
-    def compute() -> dict:
-        spectrum = load_spectrum(engine, corpus_id)
-        bands = growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS))
-        return {
-            "method": "exact hypergeometric expectation over random samples without replacement; "
-            "band = expectation +- 1.96 exact standard deviations",
-            "points": [
-                {"tokens": b.tokens, "types": b.types, "sd": b.sd, "low": b.low, "high": b.high}
-                for b in bands
-            ],
-        }
-
-    return cached(engine, corpus_id, "random_order_growth", compute)
+    """The random-order growth with its band, cached (stored with the corpus; computed here only for a
+    corpus stored by an older version)."""
+    return cached(
+        engine,
+        corpus_id,
+        RANDOM_ORDER_GROWTH,
+        lambda: random_order_growth_of(load_spectrum(engine, corpus_id)),
+    )
 
 
 # ---------------------------------------------------------------------------------------------- models

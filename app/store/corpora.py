@@ -147,8 +147,11 @@ def _bulk(session: Session, table: type[SQLModel], columns: tuple[str, ...], row
         connection.execute(statement, [dict(zip(columns, row, strict=True)) for row in batch])
 
 
-def save_corpus(engine: Engine, record: CorpusRecord) -> int:
-    """Store a corpus with its counts, spectrum, growth and prefix spectra in one transaction."""
+def save_corpus(
+    engine: Engine, record: CorpusRecord, results: dict[str, dict] | None = None, results_version: str = ""
+) -> int:
+    """Store a corpus with its counts, spectrum, growth and prefix spectra, and the ``results`` already
+    computed from them (kind -> payload, cached under ``results_version``), in one transaction."""
     with transaction(engine) as session:
         corpus = Corpus(
             name=record.name,
@@ -181,6 +184,15 @@ def save_corpus(engine: Engine, record: CorpusRecord) -> int:
             ("corpus_id", "share", "m", "vm", "prefix_tokens"),
             ((cid, share, m, v, n) for share, (n, pairs) in record.prefix_spectra.items() for m, v in pairs),
         )
+        for kind, payload in (results or {}).items():
+            session.add(
+                CachedResult(
+                    corpus_id=cid,
+                    kind=kind,
+                    program_version=results_version,
+                    payload_json=json.dumps(payload),
+                )
+            )
         return int(cid)
 
 
