@@ -506,8 +506,9 @@ def _prefix_spectra(
     return prefixes
 
 
-def _text_order(value: Any, tokens: int) -> dict[str, Any]:
-    """MATTR (a share, 0..1), MTLD (a length in tokens) and the segment spreads, with known keys only."""
+def check_text_order(value: Any, tokens: int) -> dict[str, Any]:
+    """Text-order statistics of a corpus of ``tokens`` tokens, as a bundle carries them and the store keeps
+    them: MATTR (a share, 0..1), MTLD (a length in tokens) and the segment spreads, with known keys only."""
     if not isinstance(value, dict):
         raise _refuse("corpus.text_order", "must be an object or null")
     _known_keys(value, TEXT_ORDER_FIELDS, "corpus.text_order.")
@@ -643,7 +644,7 @@ def _bundle_corpus(corpus: dict[str, Any], document: dict[str, Any]) -> BundleCo
     if kind == TEXT:
         growth = _growth(corpus.get("growth"), tokens, types)
         prefixes = _prefix_spectra(corpus.get("prefix_spectra") or {}, tokens, types, spectrum[-1][0], growth)
-        text_order = _text_order(corpus.get("text_order") or {}, tokens)
+        text_order = check_text_order(corpus.get("text_order") or {}, tokens)
     else:
         for key in ("growth", "prefix_spectra", "text_order"):
             if corpus.get(key):

@@ -202,6 +202,7 @@ class _Member:
     corpus: Corpus
     spectrum: Spectrum
     text_order: dict[str, Any]
+    text_order_damage: str | None
     predictor: Predictor | None
     model_failure: str | None
 
@@ -209,7 +210,12 @@ class _Member:
 def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
     """The corpus with its spectrum, text-order statistics and, only when a size beyond the corpus is asked
     for (``largest_size``), its recommended model (fits are cached by the modelling service)."""
-    spectrum = modelling.load_spectrum(engine, corpus.id)
+    try:
+        spectrum = modelling.load_spectrum(engine, corpus.id)
+    except ValueError as exc:  # rows the store holds but no version of this program writes
+        raise ComparisonInputError(
+            f"{corpus.name} (corpus {corpus.id}) cannot be compared: its stored spectrum is damaged ({exc})"
+        ) from exc
     predictor = failure = None
     if largest_size > corpus.tokens:
         try:
@@ -217,7 +223,7 @@ def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
             predictor = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
         except MODEL_ERRORS as exc:
             failure = str(exc) or type(exc).__name__
-    return _Member(corpus, spectrum, json.loads(corpus.text_order_json or "{}"), predictor, failure)
+    return _Member(corpus, spectrum, *modelling.stored_text_order(corpus), predictor, failure)
 
 
 def _corpus_entry(corpus: Corpus, index: int) -> dict[str, Any]:
@@ -472,7 +478,7 @@ def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: in
 
 def _warnings(members: list[_Member], rows: list[dict[str, Any]], n0: int, horizon: int) -> list[dict]:
     out: list[dict[str, str]] = []
-    profiles = {json.dumps(json.loads(m.corpus.profile_json), sort_keys=True) for m in members}
+    profiles = {json.dumps(store.stored_fields(m.corpus)[0]["profile"], sort_keys=True) for m in members}
     if len(profiles) > 1:
         named = "; ".join(f"{m.corpus.name}: {m.corpus.profile_name}" for m in members)
         out.append(
@@ -502,6 +508,8 @@ def _warnings(members: list[_Member], rows: list[dict[str, Any]], n0: int, horiz
         )
     for member, row in zip(members, rows, strict=True):
         corpus = member.corpus
+        if member.text_order_damage:
+            out.append({"kind": "damaged", "message": f"{corpus.name}: {member.text_order_damage}."})
         if corpus.tokens < MTLD_MIN_TOKENS:
             out.append(
                 {

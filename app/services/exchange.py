@@ -8,7 +8,6 @@ made from, and records its origin.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable
 from datetime import UTC, datetime
 from pathlib import Path
@@ -20,6 +19,7 @@ from app.config import PROGRAM_VERSION
 from app.ingest import counts as parse
 from app.ingest.names import clean_name
 from app.ingest.profiles import TokenizationProfile
+from app.services import modelling
 from app.services.ingestion import (
     MAX_NAME_LENGTH,
     IngestionInputError,
@@ -179,7 +179,7 @@ def bundle_document(engine: Engine, corpus_id: int) -> dict[str, Any]:
                 for share, (n, pairs) in prefixes.items()
             }
             or None,
-            "text_order": json.loads(corpus.text_order_json or "{}") or None,
+            "text_order": modelling.stored_text_order(corpus)[0] or None,
         },
     }
 

@@ -24,7 +24,9 @@ from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
 from app.core.models.base import RANGE_LEVEL, RANGE_METHOD
 from app.core.models.goodness import spectrum_misfit
 from app.core.spectrum import Spectrum
+from app.ingest import counts
 from app.store import corpora as store
+from app.store.tables import Corpus
 
 RANDOM_GROWTH_POINTS = 60
 LEGOMENA_SHOWN = 20
@@ -374,12 +376,24 @@ def _anchored(
 # ------------------------------------------------------------------------------------ richness, unseen
 
 
+def stored_text_order(corpus: Corpus) -> tuple[dict[str, Any], str | None]:
+    """The text-order statistics stored with a corpus ({} when it has none), checked by the rules of a
+    bundle's (``check_text_order``), and None; or {} and what is wrong when a hand-edited row or another
+    program's left something else: only the statistics that need them are then missing."""
+    try:
+        value = json.loads(corpus.text_order_json or "{}")
+        return (counts.check_text_order(value, corpus.tokens) if value else {}), None
+    except (ValueError, TypeError) as exc:  # CountsInputError is a ValueError
+        problem = str(exc).removeprefix("bundle: corpus.")
+        return {}, f"the stored text-order statistics are damaged and not shown ({problem})"
+
+
 def richness(engine: Engine, corpus_id: int, common_size: int | None = None) -> dict[str, Any]:
     """Richness indices at the corpus size (MATTR and MTLD measured in text order at ingestion) and, when
     asked, the size-dependent ones at a common size by exact interpolation."""
     corpus = store.get_corpus(engine, corpus_id)
     spectrum = load_spectrum(engine, corpus_id)
-    text_order = json.loads(corpus.text_order_json)
+    text_order, damage = stored_text_order(corpus)
     at_size = asdict(richness_core.richness_indices(spectrum))
     at_size["mattr"] = text_order.get("mattr")
     at_size["mtld"] = text_order.get("mtld")
@@ -388,6 +402,8 @@ def richness(engine: Engine, corpus_id: int, common_size: int | None = None) -> 
         "at_corpus_size": at_size,
         "text_order_tokens": text_order.get("measured_tokens"),
     }
+    if damage:
+        out["text_order_damaged"] = damage
     if common_size is not None:
         if not 1 <= common_size <= corpus.tokens:
             raise PredictionError(f"common size must lie between 1 and the corpus size {corpus.tokens:,}")
