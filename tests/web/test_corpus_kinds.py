@@ -162,6 +162,8 @@ def test_bundles_round_trip_to_identical_numbers(client, stdlib_text):
     assert recreated["source"]["origin"]["name"] == "docs" and recreated["source"]["unavailable"] == []
     for path in ("spectrum", "growth", "richness", "unseen", "words?limit=10000"):
         a, b = (client.get(f"/api/corpora/{cid}/{path}").json() for cid in (text_id, copy_id))
+        if path == "spectrum":  # the same numbers, each with its own download address
+            a, b = ({k: v for k, v in body.items() if k != "download"} for body in (a, b))
         assert a == b, path
     first, second = (fitted_report(client, cid) for cid in (text_id, copy_id))
     assert first == second  # text-order backtests included: the prefix spectra came along
