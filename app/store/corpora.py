@@ -106,7 +106,7 @@ def source(corpus: Corpus) -> dict[str, Any]:
     bundle), ``data`` (the kind of data it holds: a bundle holds that of the corpus it was exported from),
     ``word_list`` and ``text_order`` (whether it has them) and ``unavailable`` (statistics it cannot give)."""
     kind = corpus.source_kind or "text"
-    origin = stored_fields(corpus)[0]["origin"]
+    origin = _stored_json(corpus.origin_json, dict) if corpus.origin_json else None
     data = (origin or {}).get("source_kind", "text") if kind == "bundle" else kind
     word_list = data != "spectrum"
     text_order = data == "text"

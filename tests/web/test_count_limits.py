@@ -91,3 +91,21 @@ def test_a_large_spectrums_page_and_json_stay_bounded_and_the_download_has_every
     download = client.get(body["download"])
     lines = [line for line in download.text.splitlines() if line and not line.startswith("#")]
     assert len(lines) == rows + 1 and lines[-1] == f"{rows}\t1"
+
+
+def test_a_failure_of_the_exact_statistics_stores_nothing(client, monkeypatch):
+    """They are computed before the corpus is stored (once, the corpus was stored and they failed after)."""
+    from app.services import modelling
+
+    def exhausted(_spectrum):
+        raise MemoryError("Unable to allocate 72.0 TiB")
+
+    monkeypatch.setattr(modelling, "random_order_growth_of", exhausted)
+    before = _rows(client)
+    for kind, content in (("spectrum", b"1\t5\n7\t2\n"), ("word-counts", b"the,7\ncat,1\n"), ("text", None)):
+        if content is None:
+            response = client.post("/api/corpora?wait=1", data={"name": "t", "text": "the cat and the dog"})
+        else:
+            response = _upload(client, kind, content)
+        assert response.status_code == 422 and "MemoryError" in response.json()["detail"], kind
+    assert _rows(client) == before
