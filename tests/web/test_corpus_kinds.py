@@ -331,7 +331,7 @@ TEXT_FORGERIES = [
 def test_forged_text_bundles_are_refused_naming_the_field_and_store_nothing(
     client, stdlib_text, change, message
 ):
-    source_id = upload(client, "text", "docs.txt", stdlib_text[:20_000].encode(), "docs").json()["id"]
+    source_id = upload(client, "text", "docs.txt", stdlib_text[:4_000].encode(), "docs").json()["id"]
     before = _stored_rows(client)
     response = upload(client, "bundle", "b.json.gz", _tampered(client, source_id, change, True), None)
     assert response.status_code == 422, response.text
@@ -357,7 +357,7 @@ def test_forged_counts_bundles_are_refused(client):
 
 def test_a_text_bundles_made_up_content_hash_is_not_kept(client, stdlib_text):
     """The text is not in a bundle, so its SHA-256 cannot be checked: the copy is known by its numbers."""
-    source_id = upload(client, "text", "docs.txt", stdlib_text[:20_000].encode(), "docs").json()["id"]
+    source_id = upload(client, "text", "docs.txt", stdlib_text[:4_000].encode(), "docs").json()["id"]
     made_up = "ab" * 32
     bundle = _tampered(client, source_id, _set("corpus.content_hash", made_up), True)
     copy = upload(client, "bundle", "b.json.gz", bundle, None)
