@@ -379,10 +379,26 @@ def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
 # --------------------------------------------------------------------------------------------- curves
 
 
-def _growth(engine: Engine, member: _Member, horizon: int) -> dict[str, Any]:
+def _random_order(engine: Engine, corpus: Corpus) -> tuple[dict[str, list], str | None]:
+    """The random-order growth curve of a corpus, or empty lists and a warning when its stored copy is
+    damaged (edited by hand, or left by another program)."""
+    try:
+        points = modelling.random_order_growth(engine, corpus.id)["points"]
+        return {
+            "tokens": [int(p["tokens"]) for p in points],
+            **{key: [_num(p[key]) for p in points] for key in ("types", "low", "high")},
+        }, None
+    except (KeyError, TypeError, ValueError) as exc:
+        empty: dict[str, list] = {"tokens": [], "types": [], "low": [], "high": []}
+        return empty, (
+            f"{corpus.name}: its stored random-order growth curve is damaged and not shown "
+            f"({exc.__class__.__name__}: {str(exc)[:100]})."
+        )
+
+
+def _growth(engine: Engine, member: _Member, horizon: int, random_order: dict[str, list]) -> dict[str, Any]:
     corpus = member.corpus
     text_order = thin_curve(store.growth_points(engine, corpus.id))
-    random_points = modelling.random_order_growth(engine, corpus.id)["points"]
     model = None
     if member.predictor is not None and horizon > corpus.tokens:
         sizes = np.unique(np.rint(np.geomspace(corpus.tokens, horizon, MODEL_POINTS))).astype(float)
@@ -396,10 +412,7 @@ def _growth(engine: Engine, member: _Member, horizon: int) -> dict[str, Any]:
     return {
         "corpus_id": corpus.id,
         "text_order": {"tokens": [n for n, _ in text_order], "types": [v for _, v in text_order]},
-        "random_order": {
-            "tokens": [p["tokens"] for p in random_points],
-            **{key: [_num(p[key]) for p in random_points] for key in ("types", "low", "high")},
-        },
+        "random_order": random_order,
         "model": model,
     }
 
@@ -587,6 +600,7 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
     members = [_member(engine, c, max(n0, horizon)) for c in corpora]
     rows = [_size_matched_row(m, n0) for m in members]
     tests, untested = _tests(rows)
+    random_order = [_random_order(engine, m.corpus) for m in members]
     return {
         "kind": "lexigrowth comparison",
         "program_version": PROGRAM_VERSION,
@@ -594,10 +608,13 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "settings": settings.as_dict(),
         "caution": CAUTION,
         "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
-        "warnings": _warnings(members, rows, n0, horizon),
+        "warnings": _warnings(members, rows, n0, horizon)
+        + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage],
         "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested},
         "spread": _spread(members, n0),
-        "growth": [_growth(engine, m, horizon) for m in members],
+        "growth": [
+            _growth(engine, m, horizon, curve) for m, (curve, _) in zip(members, random_order, strict=True)
+        ],
         "legomena": _legomena(members, rows),
         "rank_frequency": [
             dict(zip(("ranks", "frequencies"), rank_frequency_points(m.spectrum), strict=True))

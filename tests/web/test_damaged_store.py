@@ -74,7 +74,7 @@ def test_a_damaged_spectrum_row_disables_the_sections_that_need_it(client):
     assert client.get("/compare", params={"corpus": [damaged, other]}).status_code == 422
 
 
-def test_a_damaged_cached_curve_disables_the_growth_plot(client):
+def test_a_damaged_cached_curve_disables_the_growth_plots(client):
     damaged = _upload(client, "bad curve")
     _damage(
         client,
@@ -85,3 +85,8 @@ def test_a_damaged_cached_curve_disables_the_growth_plot(client):
     page = client.get(f"/corpora/{damaged}")
     assert page.status_code == 200 and 'id="damaged-growth"' in page.text
     assert 'id="spectrum-plot"' in page.text
+    other = _upload(client, "intact", TEXT.replace("alpha", "delta"))
+    assert client.get("/compare", params={"corpus": [damaged, other]}).status_code == 200
+    body = client.get("/api/compare", params={"corpus": [damaged, other]}).json()
+    assert body["growth"][0]["random_order"]["tokens"] == [] and body["growth"][1]["random_order"]["tokens"]
+    assert any(w["kind"] == "damaged" and "bad curve" in w["message"] for w in body["warnings"])
