@@ -46,6 +46,9 @@ DENSE_TERMS = 1 << 20
 """Terms of ``_log_miss`` summed one by one (an array of this many floats); beyond, in pieces."""
 DIRECT_TERMS = 256
 """Pieces shorter than this, or this close to the pole at j = N - n, are summed term by term."""
+MAX_DENSE_TERMS = 1 << 25
+"""Beyond ``DENSE_TERMS``, terms are still summed one by one when the frequencies asked for are at least one
+per ``DIRECT_TERMS`` terms on average, up to this many (an array of 256 MB)."""
 
 
 LOG_FLOOR = -800.0
@@ -58,8 +61,8 @@ def _log_miss(N: int, n: int, m: np.ndarray, floor: float | None = None) -> np.n
     Summed term by term (cumulatively up to the largest m, or up to ``DENSE_TERMS``) instead of as a
     difference of log-gamma values, which would lose about eps * N log N in absolute terms and spoil
     E[V(n)] at small n on huge corpora. Frequencies beyond ``DENSE_TERMS`` (only in corpora of many
-    millions of tokens, or absurd designs) continue from there with ``_sum_log_miss_terms``, so memory and
-    time stay bounded whatever m.
+    millions of tokens, or absurd designs) continue from there term by term when they lie close together,
+    else in pieces (``_sum_log_miss_pieces``), so memory and time stay bounded whatever m.
 
     With a ``floor`` (callers that only need exp of the result): every term is at most log(1 - n / N) < 0,
     so the cumulative sum has passed the floor after J = ceil(floor / log(1 - n / N)) terms; it stops there
@@ -72,23 +75,50 @@ def _log_miss(N: int, n: int, m: np.ndarray, floor: float | None = None) -> np.n
     reachable = m <= N - n
     clipped = np.minimum(m, N - n)
     top = int(clipped.max())
-    dense_top = min(top, DENSE_TERMS)
-    floored = False
     if floor is not None and 0 < n < N:
-        enough = int(np.ceil(floor / np.log1p(-n / N)))  # terms after which the sum is <= floor
-        if enough < dense_top:
-            dense_top, floored = enough, True
+        top = min(top, int(np.ceil(floor / np.log1p(-n / N))))  # terms after which the sum is <= floor
+        clipped = np.minimum(clipped, top)
+    dense_top = min(top, DENSE_TERMS)
+    far = clipped > dense_top
+    if top <= MAX_DENSE_TERMS and np.count_nonzero(far) * DIRECT_TERMS >= top - dense_top:
+        dense_top = top  # frequencies packed closely (the pair sums of a large spectrum): one cumulative sum
+        far = np.zeros_like(far)
     j = np.arange(dense_top, dtype=float)
     cumulative = np.concatenate([[0.0], np.cumsum(np.log1p(-n / (N - j)))])
     values = cumulative[np.minimum(clipped, dense_top)]
-    if top > dense_top and not floored:
-        far = clipped > dense_top
+    if far.any():
         stops = np.unique(clipped[far])
         starts = np.concatenate([[dense_top], stops[:-1]])
-        pieces = [_sum_log_miss_terms(N, n, int(a), int(b)) for a, b in zip(starts, stops, strict=True)]
-        sums = cumulative[-1] + np.cumsum(pieces)
+        sums = cumulative[-1] + np.cumsum(_sum_log_miss_pieces(N, n, starts, stops))
         values[far] = sums[np.searchsorted(stops, clipped[far])]
     return np.where(reachable, values, -np.inf)
+
+
+def _sum_log_miss_pieces(N: int, n: int, starts: np.ndarray, stops: np.ndarray) -> np.ndarray:
+    """sum_{a <= j < b} log(1 - n / (N - j)) for each piece [a, b) of ``starts``, ``stops`` (b > a).
+
+    Pieces of at most ``DIRECT_TERMS`` terms (most of them when the frequencies are dense, as the pair sums
+    of a large spectrum are) are summed term by term all at once, ``DENSE_TERMS`` terms at a time; longer
+    ones by ``_sum_log_miss_terms``. The cost is then bounded by the range of frequencies, not by a Python
+    call per frequency."""
+    lengths = stops - starts
+    out = np.empty(lengths.size)
+    short = np.flatnonzero(lengths <= DIRECT_TERMS)
+    if short.size:
+        ends = np.cumsum(lengths[short])
+        first = 0
+        while first < short.size:
+            done = ends[first - 1] if first else 0
+            last = max(int(np.searchsorted(ends, done + DENSE_TERMS, side="right")), first + 1)
+            group = short[first:last]
+            counts = lengths[group]
+            offsets = np.concatenate([[0], np.cumsum(counts)[:-1]])
+            j = np.repeat(starts[group] - offsets, counts) + np.arange(int(counts.sum()))
+            out[group] = np.add.reduceat(np.log1p(-n / (N - j.astype(float))), offsets)
+            first = last
+    for i in np.flatnonzero(lengths > DIRECT_TERMS):
+        out[i] = _sum_log_miss_terms(N, n, int(starts[i]), int(stops[i]))
+    return out
 
 
 def _sum_log_miss_terms(N: int, n: int, a: int, b: int) -> float:

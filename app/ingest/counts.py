@@ -20,15 +20,19 @@ import gzip
 import hashlib
 import io
 import json
+import math
 import re
 import zlib
 from collections.abc import Iterator
 from dataclasses import dataclass, field
+from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+from app.ingest.counting import PREFIX_FRACTIONS, prefix_length
 from app.ingest.encoding import SAMPLE_BYTES, detect_encoding
-from app.ingest.profiles import TokenizationProfile
+from app.ingest.names import clean_name
+from app.ingest.profiles import MAX_WORD_CHARS, TokenizationProfile
 
 WORD_COUNTS = "word-counts"
 SPECTRUM = "spectrum"
@@ -40,11 +44,28 @@ BUNDLE_FORMAT = "lexigrowth-corpus-bundle"
 BUNDLE_VERSION = 1
 """The bundle format version this program writes and the newest it reads."""
 
-MAX_COUNT = 10**13
-"""Largest count, frequency or number of types accepted from a file (10 trillion: far beyond any corpus)."""
-MAX_TOKENS = 10**13
-"""Largest corpus size, sum of m V_m, accepted from a spectrum or a bundle."""
-MAX_WORD_CHARS = 1000
+MAX_FREQUENCY = 10**7
+"""Largest count of one word, and so largest frequency m of a spectrum, accepted from a file or a bundle. The
+exact random-order statistics computed before a corpus is stored convolve the spectrum with itself up to
+twice this frequency: measured 0.3 s at 10^6, 3.1 s of CPU and 1.2 GB at 10^7, growing linearly (10^8 would
+cost about 30 s and 12 GB). The most frequent word of a 1 GB English text occurs about 10^7 times."""
+MAX_TYPES = 5_000_000
+"""Most types (rows of a word-count list, sum of V_m of a spectrum) accepted from a file or a bundle: a
+word list of this size is about 5 million rows in the store (a 200 MB text of generated words has 0.8
+million types)."""
+MAX_SPECTRUM_ROWS = 100_000
+"""Most distinct frequencies (spectrum rows) accepted: a text of N tokens has fewer than sqrt(2 N) of them
+(distinct frequencies 1, 2, ... k already need k (k + 1) / 2 tokens), so 100,000 rows would need 5 * 10^9
+tokens. Measured: 1.6 s for the exact statistics of 100,000 rows."""
+MAX_TOKENS = 10**11
+"""Largest corpus size, sum of m V_m, accepted from a spectrum or a bundle: predictions reach 10^12 tokens
+(``MAX_PREDICTION_TOKENS``), ten times this."""
+MAX_GROWTH_POINTS = 10_000
+"""Most points of a bundle's text-order growth curve (a counted text has at most 301)."""
+MAX_SOURCES = 1_000
+"""Most file names a bundle may list (an upload takes at most 1,000 files)."""
+MAX_ORIGIN_DEPTH = 16
+"""A bundle of a bundle records its origin inside its own: at most this many levels."""
 MAX_BUNDLE_BYTES = 4 << 30
 """A gzip-compressed bundle may unpack to at most this many bytes."""
 
@@ -144,17 +165,24 @@ def read_word_counts(
                 raise CountsInputError(
                     f"{_where(name, number)}: the count {raw_count!r} is {what}; a count is a positive integer"
                 )
-            if count < 1 or count > MAX_COUNT:
+            if count < 1 or count > MAX_FREQUENCY:
                 raise CountsInputError(
-                    f"{_where(name, number)}: the count {count} is outside 1 .. {MAX_COUNT:,}"
+                    f"{_where(name, number)}: the count {count:,} is outside 1 .. {MAX_FREQUENCY:,}"
                 )
             word = normalize(raw_word).strip()
-            if not word or len(word) > MAX_WORD_CHARS or any(not ch.isprintable() for ch in word):
+            check_word(word, _where(name, number), raw_word)
+            total = counts.get(word, 0) + count
+            if total > MAX_FREQUENCY:
                 raise CountsInputError(
-                    f"{_where(name, number)}: {raw_word[:50]!r} is not a word (empty, too long or with "
-                    "control characters)"
+                    f"{_where(name, number)}: the counts of {word[:50]!r} add up to {total:,}, more than "
+                    f"{MAX_FREQUENCY:,}"
                 )
-            counts[word] = counts.get(word, 0) + count
+            counts[word] = total
+            if len(counts) > MAX_TYPES:
+                raise CountsInputError(
+                    f"{_where(name, number)}: more than {MAX_TYPES:,} different words; this program accepts "
+                    "at most that many types"
+                )
             rows += 1
         if not rows:
             raise CountsInputError(f"{name}: no word counts found")
@@ -192,16 +220,25 @@ def read_spectrum(files: list[tuple[Path, str]]) -> ParsedSpectrum:
                     f"{_where(name, number)}: {bad!r} is not a whole number >= 0; a spectrum row is a "
                     "frequency m >= 1 and a number of types V_m >= 0"
                 )
-            if m < 1 or m > MAX_COUNT or vm > MAX_COUNT:
+            if m < 1 or m > MAX_FREQUENCY:
                 raise CountsInputError(
-                    f"{_where(name, number)}: frequency {m} or number of types {vm} is outside the "
-                    f"possible range (1 .. {MAX_COUNT:,})"
+                    f"{_where(name, number)}: the frequency {m:,} is outside 1 .. {MAX_FREQUENCY:,}, the "
+                    "largest frequency this program accepts"
+                )
+            if vm > MAX_TYPES:
+                raise CountsInputError(
+                    f"{_where(name, number)}: {vm:,} types is more than the {MAX_TYPES:,} this program accepts"
                 )
             if m in seen:
                 raise CountsInputError(
                     f"{_where(name, number)}: frequency {m} given twice (first on line {seen[m]})"
                 )
             seen[m] = number
+            if len(seen) > MAX_SPECTRUM_ROWS:
+                raise CountsInputError(
+                    f"{_where(name, number)}: more than {MAX_SPECTRUM_ROWS:,} spectrum rows (distinct "
+                    "frequencies); this program accepts at most that many"
+                )
             if vm:
                 total[m] = total.get(m, 0) + vm
         if not seen:
@@ -211,15 +248,39 @@ def read_spectrum(files: list[tuple[Path, str]]) -> ParsedSpectrum:
     return ParsedSpectrum(pairs, declared.get("tokens"), declared.get("types"))
 
 
+def check_word(word: str, where: str, shown: str | None = None) -> None:
+    """The rule every stored word follows, whatever it came from: not empty, at most ``MAX_WORD_CHARS``
+    characters (the tokenizer's own limit) and no control or format characters (NUL, escape, the
+    bidirectional overrides...); ``shown`` is the word as the file wrote it."""
+    if not word or len(word) > MAX_WORD_CHARS or any(not ch.isprintable() for ch in word):
+        raise CountsInputError(
+            f"{where}: {(word if shown is None else shown)[:50]!r} is not a word (empty, longer than "
+            f"{MAX_WORD_CHARS} characters or with control characters)"
+        )
+
+
 def check_spectrum(
     pairs: list[tuple[int, int]], tokens: int | None, types: int | None, what: str
 ) -> tuple[int, int]:
-    """(N, V) of spectrum pairs, checked: some types, sum m V_m at most ``MAX_TOKENS``, and equal to the
-    declared totals when given."""
+    """(N, V) of spectrum pairs (m ascending), checked: some types, at most ``MAX_SPECTRUM_ROWS`` rows, the
+    largest m at most ``MAX_FREQUENCY``, V at most ``MAX_TYPES``, N at most ``MAX_TOKENS``, and equal to
+    the declared totals when given. These bound the cost of everything computed from a spectrum."""
+    if len(pairs) > MAX_SPECTRUM_ROWS:
+        raise CountsInputError(
+            f"{what}: {len(pairs):,} rows (distinct frequencies), more than the {MAX_SPECTRUM_ROWS:,} this "
+            "program accepts"
+        )
+    if pairs and pairs[-1][0] > MAX_FREQUENCY:
+        raise CountsInputError(
+            f"{what}: the largest frequency {pairs[-1][0]:,} is more than the {MAX_FREQUENCY:,} this program "
+            "accepts"
+        )
     n = sum(m * v for m, v in pairs)
     v = sum(count for _, count in pairs)
     if not pairs or n == 0:
         raise CountsInputError(f"{what}: no types at all (every V_m is 0)")
+    if v > MAX_TYPES:
+        raise CountsInputError(f"{what}: {v:,} types, more than the {MAX_TYPES:,} this program accepts")
     if n > MAX_TOKENS:
         raise CountsInputError(
             f"{what}: sum of m V_m is {n:,} tokens, more than the {MAX_TOKENS:,} this program accepts"
@@ -281,22 +342,228 @@ def _gunzip(data: bytes, name: str) -> bytes:
     return out
 
 
-def _pairs(value: Any, what: str, first_min: int) -> list[tuple[int, int]]:
-    if not isinstance(value, list) or not all(
-        isinstance(p, list) and len(p) == 2 and all(type(x) is int for x in p) for p in value
+BUNDLE_FIELDS = frozenset(
+    {"format", "format_version", "program_version", "exported_at", "corpus", "checksum"}
+)
+CORPUS_FIELDS = frozenset(
+    {
+        "name", "labels", "profile", "source_kind", "origin", "sources", "content_hash", "program_version",
+        "created_at", "tokens", "types", "hapaxes", "counts", "spectrum", "growth", "prefix_spectra",
+        "text_order",
+    }
+)  # fmt: skip
+ORIGIN_FIELDS = frozenset(
+    {"source_kind", "name", "exported_by", "exported_at", "created_at", "origin", "file"}
+)
+TEXT_ORDER_FIELDS = frozenset({"measured_tokens", "mattr", "mtld", "segments"})
+SEGMENT_FIELDS = frozenset({"size", "mean", "sd", "segments"})
+MAX_SEGMENT_SIZES = 100
+"""Most segment sizes of a bundle's text-order spread (a counted text has at most 24)."""
+MAX_VERSION_CHARS = 64
+_SHA256 = re.compile(r"[0-9a-f]{64}")
+
+
+def _refuse(field_name: str, problem: str) -> CountsInputError:
+    return CountsInputError(f"bundle: {field_name} {problem}")
+
+
+def _known_keys(value: dict[str, Any], known: frozenset[str], where: str) -> None:
+    unknown = sorted(str(k) for k in set(value) - known)
+    if unknown:
+        raise CountsInputError(
+            f"bundle: unknown field {where}{unknown[0]!r}"
+            + (f" (and {len(unknown) - 1:,} more)" if len(unknown) > 1 else "")
+            + f"; known fields here: {', '.join(sorted(known))}"
+        )
+
+
+def _integer_field(value: Any, field_name: str, low: int, high: int) -> int:
+    if type(value) is not int or not low <= value <= high:
+        raise _refuse(field_name, f"must be an integer from {low:,} to {high:,}")
+    return value
+
+
+def _number_field(value: Any, field_name: str, low: float, high: float) -> float | None:
+    """A measured number (or null), finite and within [low, high]."""
+    if value is None:
+        return None
+    if type(value) not in (int, float) or not math.isfinite(value) or not low <= value <= high:
+        raise _refuse(field_name, f"must be a number from {low:,} to {high:,} or null")
+    return float(value)
+
+
+def _text_field(value: Any, field_name: str, max_chars: int) -> str:
+    """A short line of text (a version, a time, a name) under the rules of every name (``clean_name``)."""
+    if not isinstance(value, str):
+        raise _refuse(field_name, "must be a string")
+    try:
+        return clean_name(value, f"bundle: {field_name}", max_chars)
+    except ValueError as exc:
+        raise CountsInputError(str(exc)) from exc
+
+
+def _time_field(value: Any, field_name: str) -> str:
+    text = _text_field(value, field_name, 40)
+    try:
+        datetime.fromisoformat(text)
+    except ValueError as exc:
+        raise _refuse(field_name, "must be a time in ISO 8601 form") from exc
+    return text
+
+
+def _pairs(value: Any, field_name: str, first_min: int, max_rows: int) -> list[tuple[int, int]]:
+    """[[a, b], ...] of integers, a strictly ascending from ``first_min``, b >= 1, at most ``max_rows``."""
+    if not isinstance(value, list):
+        raise _refuse(field_name, "must be a list of [integer, integer] pairs")
+    if len(value) > max_rows:
+        raise _refuse(field_name, f"has {len(value):,} rows, more than the {max_rows:,} this program accepts")
+    if not all(
+        isinstance(p, list) and len(p) == 2 and type(p[0]) is int and type(p[1]) is int for p in value
     ):
-        raise CountsInputError(f"bundle: {what} must be a list of [integer, integer] pairs")
-    pairs = [(int(a), int(b)) for a, b in value]
-    if any(a < first_min or b < 0 for a, b in pairs) or any(
+        raise _refuse(field_name, "must be a list of [integer, integer] pairs")
+    pairs = [(a, b) for a, b in value]
+    if any(a < first_min or b < 1 for a, b in pairs) or any(
         x[0] >= y[0] for x, y in zip(pairs, pairs[1:], strict=False)
     ):
-        raise CountsInputError(f"bundle: {what} must be in ascending order of positive integers")
+        raise _refuse(
+            field_name,
+            f"must be in strictly ascending order of its first numbers (from {first_min}), each "
+            "second number at least 1",
+        )
     return pairs
+
+
+def _counts(value: Any, spectrum: list[tuple[int, int]]) -> dict[str, int]:
+    """The word counts of a bundle: [word, count] rows in code-point order of the words, each word under
+    the rule of every stored word (``check_word``), whose spectrum is the bundle's spectrum."""
+    if not isinstance(value, list):
+        raise _refuse("corpus.counts", "must be a list of [word, count] pairs or null")
+    if len(value) > MAX_TYPES:
+        raise _refuse("corpus.counts", f"has {len(value):,} words, more than the {MAX_TYPES:,} accepted")
+    counts: dict[str, int] = {}
+    previous = None
+    for index, row in enumerate(value):
+        where = f"bundle: corpus.counts[{index}]"
+        if not (isinstance(row, list) and len(row) == 2 and isinstance(row[0], str) and type(row[1]) is int):
+            raise CountsInputError(f"{where} must be a [word, count] pair")
+        word, count = row
+        check_word(word, where)
+        if not 1 <= count <= MAX_FREQUENCY:
+            raise CountsInputError(f"{where}: the count {count:,} is outside 1 .. {MAX_FREQUENCY:,}")
+        if previous is not None and word <= previous:
+            raise CountsInputError(f"{where}: the words must be unique and in code-point order")
+        counts[word] = count
+        previous = word
+    if spectrum_of_counts(counts) != spectrum:
+        raise CountsInputError("bundle: corpus.counts disagree with corpus.spectrum")
+    return counts
+
+
+def _growth(value: Any, tokens: int, types: int) -> list[tuple[int, int]]:
+    """The exact text-order growth curve: tokens strictly rising from 1, 1 <= V(n) <= n, V never falling
+    and rising by at most the tokens added (each token adds at most one type), ending at (N, V)."""
+    growth = _pairs(value, "corpus.growth", 1, MAX_GROWTH_POINTS)
+    previous = (0, 0)
+    for index, (n, v) in enumerate(growth):
+        if not 1 <= v <= n or v < previous[1] or v - previous[1] > n - previous[0]:
+            raise _refuse(
+                f"corpus.growth[{index}]",
+                f"({n:,} tokens, {v:,} types) is impossible after ({previous[0]:,}, {previous[1]:,}): types "
+                "never fall, never exceed tokens and rise by at most one per token",
+            )
+        previous = (n, v)
+    if not growth or growth[-1] != (tokens, types):
+        raise _refuse("corpus.growth", f"must end at the corpus's {tokens:,} tokens and {types:,} types")
+    return growth
+
+
+def _prefix_spectra(
+    value: Any, tokens: int, types: int, largest: int, growth: list[tuple[int, int]]
+) -> dict[str, tuple[int, list[tuple[int, int]]]]:
+    """Spectra of the first shares of the text: known shares only, round(share N) tokens each, no more types
+    than the corpus and no larger frequency, and the types the growth curve has at that size."""
+    if not isinstance(value, dict):
+        raise _refuse("corpus.prefix_spectra", "must be an object or null")
+    at = dict(growth)
+    prefixes: dict[str, tuple[int, list[tuple[int, int]]]] = {}
+    for share, entry in value.items():
+        where = f"corpus.prefix_spectra[{share!r}]"
+        if share not in PREFIX_FRACTIONS:
+            raise CountsInputError(
+                f"bundle: unknown field corpus.prefix_spectra[{str(share)[:50]!r}]; the shares are "
+                f"{', '.join(PREFIX_FRACTIONS)}"
+            )
+        if not isinstance(entry, dict):
+            raise _refuse(where, "must be an object with tokens and spectrum")
+        _known_keys(entry, frozenset({"tokens", "spectrum"}), f"{where}.")
+        size = prefix_length(share, tokens)
+        n = _integer_field(entry.get("tokens"), f"{where}.tokens", size, size)
+        pairs = _pairs(entry.get("spectrum"), f"{where}.spectrum", 1, MAX_SPECTRUM_ROWS)
+        _, v = check_spectrum(pairs, n, None, f"bundle: {where}.spectrum")
+        if v > types or pairs[-1][0] > largest or at.get(n, v) != v:
+            raise _refuse(where, "disagrees with the corpus's spectrum or growth curve")
+        prefixes[share] = (n, pairs)
+    return prefixes
+
+
+def check_text_order(value: Any, tokens: int) -> dict[str, Any]:
+    """Text-order statistics of a corpus of ``tokens`` tokens, as a bundle carries them and the store keeps
+    them: MATTR (a share, 0..1), MTLD (a length in tokens) and the segment spreads, with known keys only."""
+    if not isinstance(value, dict):
+        raise _refuse("corpus.text_order", "must be an object or null")
+    _known_keys(value, TEXT_ORDER_FIELDS, "corpus.text_order.")
+    measured = _integer_field(value.get("measured_tokens", 0), "corpus.text_order.measured_tokens", 0, tokens)
+    segments = value.get("segments", [])
+    if not isinstance(segments, list) or len(segments) > MAX_SEGMENT_SIZES:
+        raise _refuse("corpus.text_order.segments", f"must be a list of at most {MAX_SEGMENT_SIZES} objects")
+    checked = []
+    for index, segment in enumerate(segments):
+        where = f"corpus.text_order.segments[{index}]"
+        if not isinstance(segment, dict):
+            raise _refuse(where, "must be an object")
+        _known_keys(segment, SEGMENT_FIELDS, f"{where}.")
+        size = _integer_field(segment.get("size"), f"{where}.size", 1, max(measured, 1))
+        checked.append(
+            {
+                "size": size,
+                "mean": _number_field(segment.get("mean"), f"{where}.mean", 0, size),
+                "sd": _number_field(segment.get("sd"), f"{where}.sd", 0, size),
+                "segments": _integer_field(segment.get("segments"), f"{where}.segments", 1, max(measured, 1)),
+            }
+        )
+    return {
+        "measured_tokens": measured,
+        "mattr": _number_field(value.get("mattr"), "corpus.text_order.mattr", 0, 1),
+        "mtld": _number_field(value.get("mtld"), "corpus.text_order.mtld", 0, MAX_TOKENS),
+        "segments": checked,
+    }
+
+
+def _origin(value: Any, where: str = "corpus.origin", depth: int = 0) -> dict[str, Any] | None:
+    """Where a corpus that came from a bundle came from (known keys, short clean strings, bounded depth)."""
+    if value is None:
+        return None
+    if not isinstance(value, dict):
+        raise _refuse(where, "must be an object or null")
+    if depth >= MAX_ORIGIN_DEPTH:
+        raise _refuse(where, f"nests more than {MAX_ORIGIN_DEPTH} bundles")
+    _known_keys(value, ORIGIN_FIELDS, f"{where}.")
+    out: dict[str, Any] = {}
+    for key, item in value.items():
+        if key == "origin":
+            out[key] = _origin(item, f"{where}.origin", depth + 1)
+        elif key == "source_kind" and item not in (TEXT, WORD_COUNTS, SPECTRUM):
+            raise _refuse(f"{where}.source_kind", f"must be one of {TEXT}, {WORD_COUNTS}, {SPECTRUM}")
+        else:
+            out[key] = _text_field(item, f"{where}.{key}", 200)
+    return out
 
 
 @dataclass
 class BundleCorpus:
-    """A corpus as read from a checked bundle (the fields of ``CorpusRecord`` plus its origin)."""
+    """A corpus as read from a checked bundle (the fields of ``CorpusRecord`` plus its origin). ``name``,
+    ``labels``, ``profile`` and ``sources`` are checked for their types here and for the rules of names,
+    labels and profiles by the service that stores them (``app.services.exchange``)."""
 
     name: str
     labels: dict[str, str]
@@ -317,13 +584,16 @@ class BundleCorpus:
 
 
 def decode_bundle(data: bytes, name: str = "bundle") -> BundleCorpus:
-    """Read and check a bundle: format, version, checksum, then that its numbers agree with each other."""
+    """Read and check a bundle: format, version and checksum (against damage: anyone can recompute it), then
+    every field for its type, range and agreement with the others, known fields only."""
     if data[:2] == b"\x1f\x8b":
         data = _gunzip(data, name)
     try:
         document = json.loads(data.decode("utf-8-sig"))
     except (UnicodeDecodeError, json.JSONDecodeError) as exc:
         raise CountsInputError(f"{name}: not a corpus bundle (not JSON: {exc})") from exc
+    except RecursionError as exc:
+        raise CountsInputError(f"{name}: not a corpus bundle (nested too deeply)") from exc
     if not isinstance(document, dict) or document.get("format") != BUNDLE_FORMAT:
         raise CountsInputError(f'{name}: not a corpus bundle (no "format": "{BUNDLE_FORMAT}")')
     version = document.get("format_version")
@@ -341,6 +611,7 @@ def decode_bundle(data: bytes, name: str = "bundle") -> BundleCorpus:
         raise CountsInputError(
             f"{name}: the checksum does not match the content: the file was changed or damaged after export"
         )
+    _known_keys(document, BUNDLE_FIELDS, "")
     corpus = document.get("corpus")
     if not isinstance(corpus, dict):
         raise CountsInputError(f"{name}: the bundle has no corpus")
@@ -348,66 +619,91 @@ def decode_bundle(data: bytes, name: str = "bundle") -> BundleCorpus:
 
 
 def _bundle_corpus(corpus: dict[str, Any], document: dict[str, Any]) -> BundleCorpus:
-    def need(key: str, kind: type | tuple[type, ...]) -> Any:
-        value = corpus.get(key)
-        if not isinstance(value, kind) or isinstance(value, bool):
-            raise CountsInputError(f"bundle: corpus field {key!r} is missing or has the wrong type")
-        return value
-
-    kind = need("source_kind", str)
+    _known_keys(corpus, CORPUS_FIELDS, "corpus.")
+    kind = corpus.get("source_kind")
     if kind not in (TEXT, WORD_COUNTS, SPECTRUM):
-        raise CountsInputError(f"bundle: unknown source kind {kind!r}")
-    spectrum = _pairs(need("spectrum", list), "spectrum", 1)
-    tokens, types = check_spectrum(spectrum, need("tokens", int), need("types", int), "bundle")
-    raw_counts = corpus.get("counts")
+        raise _refuse("corpus.source_kind", f"must be one of {TEXT}, {WORD_COUNTS}, {SPECTRUM}")
+    spectrum = _pairs(corpus.get("spectrum"), "corpus.spectrum", 1, MAX_SPECTRUM_ROWS)
+    tokens, types = check_spectrum(
+        spectrum,
+        _integer_field(corpus.get("tokens"), "corpus.tokens", 1, MAX_TOKENS),
+        _integer_field(corpus.get("types"), "corpus.types", 1, MAX_TYPES),
+        "bundle: corpus.spectrum",
+    )
+    hapaxes = dict(spectrum).get(1, 0)
+    _integer_field(corpus.get("hapaxes"), "corpus.hapaxes", hapaxes, hapaxes)
     counts: dict[str, int] = {}
-    if raw_counts is not None:
-        if not isinstance(raw_counts, list) or not all(
-            isinstance(r, list) and len(r) == 2 and isinstance(r[0], str) and type(r[1]) is int and r[1] > 0
-            for r in raw_counts
-        ):
-            raise CountsInputError("bundle: counts must be a list of [word, positive integer] pairs")
-        counts = {w: c for w, c in raw_counts}
-        if len(counts) != len(raw_counts) or spectrum_of_counts(counts) != spectrum:
-            raise CountsInputError("bundle: the word counts disagree with the spectrum")
-    elif kind != SPECTRUM:
-        raise CountsInputError(f"bundle: a corpus made from {kind} needs its word counts")
-    growth = _pairs(corpus.get("growth") or [], "growth", 0)
-    if growth and (
-        growth[-1] != (tokens, types) or any(y[1] < x[1] for x, y in zip(growth, growth[1:], strict=False))
-    ):
-        raise CountsInputError("bundle: the growth curve does not end at the corpus's tokens and types")
+    if kind == SPECTRUM:
+        if corpus.get("counts") is not None:
+            raise _refuse("corpus.counts", "must be null: a corpus made from a spectrum has no word counts")
+    else:
+        counts = _counts(corpus.get("counts"), spectrum)
+    growth: list[tuple[int, int]] = []
     prefixes: dict[str, tuple[int, list[tuple[int, int]]]] = {}
-    raw_prefixes = corpus.get("prefix_spectra") or {}
-    if not isinstance(raw_prefixes, dict):
-        raise CountsInputError("bundle: prefix_spectra must be an object")
-    for share, entry in raw_prefixes.items():
-        if not isinstance(entry, dict) or type(entry.get("tokens")) is not int:
-            raise CountsInputError("bundle: each prefix spectrum needs tokens and spectrum")
-        prefixes[str(share)] = (entry["tokens"], _pairs(entry.get("spectrum"), "prefix spectrum", 1))
-    text_order = corpus.get("text_order") or {}
+    text_order: dict[str, Any] = {}
+    if kind == TEXT:
+        growth = _growth(corpus.get("growth"), tokens, types)
+        prefixes = _prefix_spectra(corpus.get("prefix_spectra") or {}, tokens, types, spectrum[-1][0], growth)
+        text_order = check_text_order(corpus.get("text_order") or {}, tokens)
+    else:
+        for key in ("growth", "prefix_spectra", "text_order"):
+            if corpus.get(key):
+                raise _refuse(f"corpus.{key}", f"must be null: a corpus made from {kind} has no text order")
+    claimed = corpus.get("content_hash")
+    if not isinstance(claimed, str) or not _SHA256.fullmatch(claimed):
+        raise _refuse("corpus.content_hash", "must be a SHA-256 in 64 lowercase hexadecimal digits")
+    if kind == TEXT:
+        # The text is not in the bundle: its hash cannot be checked, so the corpus is known by its numbers.
+        content_hash = data_hash(
+            TEXT,
+            {
+                "counts": sorted(counts.items()),
+                "growth": growth,
+                "prefix_spectra": {share: [n, pairs] for share, (n, pairs) in prefixes.items()},
+                "text_order": text_order,
+            },
+        )
+    else:
+        content_hash = data_hash(kind, sorted(counts.items()) if kind == WORD_COUNTS else spectrum)
+        if claimed != content_hash:
+            raise _refuse("corpus.content_hash", f"does not match the {kind} it carries")
     labels = corpus.get("labels") or {}
-    if not isinstance(text_order, dict) or not isinstance(labels, dict):
-        raise CountsInputError("bundle: labels and text_order must be objects")
+    if not isinstance(labels, dict) or not all(isinstance(v, str) for v in labels.values()):
+        raise _refuse("corpus.labels", "must be an object of text values")
+    profile = corpus.get("profile")
+    if not isinstance(profile, dict):
+        raise _refuse("corpus.profile", "must be an object")
+    sources = corpus.get("sources") or []
+    if not isinstance(sources, list) or not all(isinstance(s, str) for s in sources):
+        raise _refuse("corpus.sources", "must be a list of file names")
+    if len(sources) > MAX_SOURCES:
+        raise _refuse(
+            "corpus.sources", f"lists {len(sources):,} files, more than the {MAX_SOURCES:,} accepted"
+        )
+    name = corpus.get("name")
+    if not isinstance(name, str):
+        raise _refuse("corpus.name", "must be a string")
     origin = {
         "source_kind": kind,
-        "name": need("name", str),
-        "exported_by": str(document.get("program_version", "")),
-        "exported_at": str(document.get("exported_at", "")),
-        "created_at": str(corpus.get("created_at", "")),
-        "origin": corpus.get("origin") or None,
+        "name": name,
+        "exported_by": _text_field(document.get("program_version", ""), "program_version", MAX_VERSION_CHARS),
+        "exported_at": _time_field(document.get("exported_at"), "exported_at"),
+        "created_at": _time_field(corpus.get("created_at"), "corpus.created_at"),
+        "origin": _origin(corpus.get("origin")),
     }
     return BundleCorpus(
-        name=corpus["name"],
-        labels={str(k): str(v) for k, v in labels.items()},
-        profile=need("profile", dict),
+        name=name,
+        labels=labels,
+        profile=profile,
         source_kind=kind,
-        sources=[str(s) for s in corpus.get("sources") or []],
-        content_hash=str(corpus.get("content_hash", "")),
-        program_version=str(corpus.get("program_version", "")),
+        sources=sources,
+        content_hash=content_hash,
+        program_version=_text_field(
+            corpus.get("program_version"), "corpus.program_version", MAX_VERSION_CHARS
+        ),
         tokens=tokens,
         types=types,
-        hapaxes=dict(spectrum).get(1, 0),
+        hapaxes=hapaxes,
         counts=counts,
         spectrum=spectrum,
         growth=growth,

@@ -202,6 +202,7 @@ class _Member:
     corpus: Corpus
     spectrum: Spectrum
     text_order: dict[str, Any]
+    text_order_damage: str | None
     predictor: Predictor | None
     model_failure: str | None
 
@@ -209,7 +210,12 @@ class _Member:
 def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
     """The corpus with its spectrum, text-order statistics and, only when a size beyond the corpus is asked
     for (``largest_size``), its recommended model (fits are cached by the modelling service)."""
-    spectrum = modelling.load_spectrum(engine, corpus.id)
+    try:
+        spectrum = modelling.load_spectrum(engine, corpus.id)
+    except ValueError as exc:  # rows the store holds but no version of this program writes
+        raise ComparisonInputError(
+            f"{corpus.name} (corpus {corpus.id}) cannot be compared: its stored spectrum is damaged ({exc})"
+        ) from exc
     predictor = failure = None
     if largest_size > corpus.tokens:
         try:
@@ -217,7 +223,7 @@ def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
             predictor = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
         except MODEL_ERRORS as exc:
             failure = str(exc) or type(exc).__name__
-    return _Member(corpus, spectrum, json.loads(corpus.text_order_json or "{}"), predictor, failure)
+    return _Member(corpus, spectrum, *modelling.stored_text_order(corpus), predictor, failure)
 
 
 def _corpus_entry(corpus: Corpus, index: int) -> dict[str, Any]:
@@ -373,10 +379,26 @@ def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
 # --------------------------------------------------------------------------------------------- curves
 
 
-def _growth(engine: Engine, member: _Member, horizon: int) -> dict[str, Any]:
+def _random_order(engine: Engine, corpus: Corpus) -> tuple[dict[str, list], str | None]:
+    """The random-order growth curve of a corpus, or empty lists and a warning when its stored copy is
+    damaged (edited by hand, or left by another program)."""
+    try:
+        points = modelling.random_order_growth(engine, corpus.id)["points"]
+        return {
+            "tokens": [int(p["tokens"]) for p in points],
+            **{key: [_num(p[key]) for p in points] for key in ("types", "low", "high")},
+        }, None
+    except (KeyError, TypeError, ValueError) as exc:
+        empty: dict[str, list] = {"tokens": [], "types": [], "low": [], "high": []}
+        return empty, (
+            f"{corpus.name}: its stored random-order growth curve is damaged and not shown "
+            f"({exc.__class__.__name__}: {str(exc)[:100]})."
+        )
+
+
+def _growth(engine: Engine, member: _Member, horizon: int, random_order: dict[str, list]) -> dict[str, Any]:
     corpus = member.corpus
     text_order = thin_curve(store.growth_points(engine, corpus.id))
-    random_points = modelling.random_order_growth(engine, corpus.id)["points"]
     model = None
     if member.predictor is not None and horizon > corpus.tokens:
         sizes = np.unique(np.rint(np.geomspace(corpus.tokens, horizon, MODEL_POINTS))).astype(float)
@@ -390,10 +412,7 @@ def _growth(engine: Engine, member: _Member, horizon: int) -> dict[str, Any]:
     return {
         "corpus_id": corpus.id,
         "text_order": {"tokens": [n for n, _ in text_order], "types": [v for _, v in text_order]},
-        "random_order": {
-            "tokens": [p["tokens"] for p in random_points],
-            **{key: [_num(p[key]) for p in random_points] for key in ("types", "low", "high")},
-        },
+        "random_order": random_order,
         "model": model,
     }
 
@@ -472,7 +491,7 @@ def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: in
 
 def _warnings(members: list[_Member], rows: list[dict[str, Any]], n0: int, horizon: int) -> list[dict]:
     out: list[dict[str, str]] = []
-    profiles = {json.dumps(json.loads(m.corpus.profile_json), sort_keys=True) for m in members}
+    profiles = {json.dumps(store.stored_fields(m.corpus)[0]["profile"], sort_keys=True) for m in members}
     if len(profiles) > 1:
         named = "; ".join(f"{m.corpus.name}: {m.corpus.profile_name}" for m in members)
         out.append(
@@ -502,6 +521,8 @@ def _warnings(members: list[_Member], rows: list[dict[str, Any]], n0: int, horiz
         )
     for member, row in zip(members, rows, strict=True):
         corpus = member.corpus
+        if member.text_order_damage:
+            out.append({"kind": "damaged", "message": f"{corpus.name}: {member.text_order_damage}."})
         if corpus.tokens < MTLD_MIN_TOKENS:
             out.append(
                 {
@@ -579,6 +600,7 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
     members = [_member(engine, c, max(n0, horizon)) for c in corpora]
     rows = [_size_matched_row(m, n0) for m in members]
     tests, untested = _tests(rows)
+    random_order = [_random_order(engine, m.corpus) for m in members]
     return {
         "kind": "lexigrowth comparison",
         "program_version": PROGRAM_VERSION,
@@ -586,10 +608,13 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "settings": settings.as_dict(),
         "caution": CAUTION,
         "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
-        "warnings": _warnings(members, rows, n0, horizon),
+        "warnings": _warnings(members, rows, n0, horizon)
+        + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage],
         "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested},
         "spread": _spread(members, n0),
-        "growth": [_growth(engine, m, horizon) for m in members],
+        "growth": [
+            _growth(engine, m, horizon, curve) for m, (curve, _) in zip(members, random_order, strict=True)
+        ],
         "legomena": _legomena(members, rows),
         "rank_frequency": [
             dict(zip(("ranks", "frequencies"), rank_frequency_points(m.spectrum), strict=True))

@@ -8,7 +8,6 @@ made from, and records its origin.
 
 from __future__ import annotations
 
-import json
 from collections.abc import Callable
 from datetime import UTC, datetime
 from pathlib import Path
@@ -18,11 +17,18 @@ from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
 from app.ingest import counts as parse
+from app.ingest.names import clean_name
 from app.ingest.profiles import TokenizationProfile
 from app.services import modelling
-from app.services.ingestion import IngestionInputError, check_name
+from app.services.ingestion import (
+    MAX_NAME_LENGTH,
+    IngestionInputError,
+    check_name,
+    parse_labels,
+    store_with_exact_statistics,
+)
 from app.store import corpora as store
-from app.store.corpora import CorpusRecord, save_corpus
+from app.store.corpora import CorpusRecord
 
 COUNT_KINDS = (parse.WORD_COUNTS, parse.SPECTRUM, parse.BUNDLE)
 ProgressCallback = Callable[[int, int], None]
@@ -66,6 +72,28 @@ def _record_from_counts(
     )
 
 
+def _bundle_rules(bundle: parse.BundleCorpus, name: str | None, labels: dict[str, str]) -> dict[str, Any]:
+    """The bundle's name, labels (with the upload's own), profile and file names under the rules of the
+    Upload form (``check_name``, ``parse_labels``, ``TokenizationProfile``), each refusal naming its field."""
+
+    def field(what: str, check: Callable[[], Any]) -> Any:
+        try:
+            return check()
+        except (ValueError, TypeError) as exc:
+            raise IngestionInputError(f"bundle: {what}: {exc}") from exc
+
+    field("corpus.name", lambda: check_name(bundle.name))
+    return {
+        "name": check_name(name or bundle.name),
+        "labels": field("corpus.labels", lambda: parse_labels(bundle.labels | labels)),
+        "profile": field("corpus.profile", lambda: TokenizationProfile.from_dict(bundle.profile).to_dict()),
+        "sources": [
+            field(f"corpus.sources[{i}]", lambda s=s: clean_name(s, "a file name", MAX_NAME_LENGTH))
+            for i, s in enumerate(bundle.sources)
+        ],
+    }
+
+
 def _record_from_bundle(
     files: list[tuple[Path, str]], name: str | None, labels: dict[str, str]
 ) -> CorpusRecord:
@@ -74,10 +102,7 @@ def _record_from_bundle(
     path, shown = files[0]
     bundle = parse.read_bundle(path, shown)
     return CorpusRecord(
-        name=check_name(name or bundle.name),
-        labels=bundle.labels | labels,
-        profile=bundle.profile,
-        sources=bundle.sources,
+        **_bundle_rules(bundle, name, labels),
         tokens=bundle.tokens,
         types=bundle.types,
         hapaxes=bundle.hapaxes,
@@ -120,11 +145,7 @@ def ingest_counts(
         record = _record_from_counts(kind, files, name or "", labels or {}, profile or TokenizationProfile())
     if progress:
         progress(total, total)
-    stage("storing")
-    corpus_id = save_corpus(engine, record)
-    stage("exact statistics")
-    modelling.random_order_growth(engine, corpus_id)
-    return corpus_id
+    return store_with_exact_statistics(engine, record, stage)
 
 
 def bundle_document(engine: Engine, corpus_id: int) -> dict[str, Any]:
@@ -158,7 +179,7 @@ def bundle_document(engine: Engine, corpus_id: int) -> dict[str, Any]:
                 for share, (n, pairs) in prefixes.items()
             }
             or None,
-            "text_order": json.loads(corpus.text_order_json or "{}") or None,
+            "text_order": modelling.stored_text_order(corpus)[0] or None,
         },
     }
 

@@ -4,7 +4,8 @@ from __future__ import annotations
 
 import csv
 import io
-from collections.abc import Iterable, Sequence
+from collections.abc import Iterable, Iterator, Sequence
+from itertools import islice
 
 from app.config import PROGRAM_VERSION
 from app.store.tables import Corpus
@@ -19,12 +20,28 @@ def neutralise(cell: object) -> object:
     return cell
 
 
-def table_text(header: Sequence[str], rows: Iterable[Sequence[object]], delimiter: str = ",") -> str:
+STREAM_ROWS = 10_000
+"""Rows written per piece of a streamed table."""
+
+
+def table_pieces(
+    header: Sequence[str], rows: Iterable[Sequence[object]], delimiter: str = ","
+) -> Iterator[str]:
+    """The CSV/TSV text of a table in pieces of ``STREAM_ROWS`` rows (a download is sent as it is written)."""
     out = io.StringIO()
     writer = csv.writer(out, delimiter=delimiter, lineterminator="\n")
     writer.writerow(header)
-    writer.writerows([neutralise(c) for c in row] for row in rows)
-    return out.getvalue()
+    iterator = iter(rows)
+    while batch := list(islice(iterator, STREAM_ROWS)):
+        writer.writerows([neutralise(c) for c in row] for row in batch)
+        yield out.getvalue()
+        out.seek(0)
+        out.truncate()
+    yield out.getvalue()
+
+
+def table_text(header: Sequence[str], rows: Iterable[Sequence[object]], delimiter: str = ",") -> str:
+    return "".join(table_pieces(header, rows, delimiter))
 
 
 SPECTRUM_COLUMNS = ("occurrences", "types")
@@ -35,6 +52,10 @@ def _one_line(text: object) -> str:
 
 
 def spectrum_tsv(pairs: Iterable[tuple[int, int]], corpus: Corpus) -> str:
+    return "".join(spectrum_tsv_pieces(pairs, corpus))
+
+
+def spectrum_tsv_pieces(pairs: Iterable[tuple[int, int]], corpus: Corpus) -> Iterator[str]:
     """The frequency spectrum in our own layout: a header of '#' comment lines naming the corpus, its
     tokenization profile, tokens, types and the program version, then two named columns: ``occurrences``
     (how often a type occurs, m) and ``types`` (how many types occur exactly that often, V_m), m ascending."""
@@ -48,4 +69,5 @@ def spectrum_tsv(pairs: Iterable[tuple[int, int]], corpus: Corpus) -> str:
         f"# exported by Lexigrowth version: {PROGRAM_VERSION}",
         "# columns: occurrences = times a type occurs; types = number of types that occur exactly that often",
     ]
-    return "\n".join(header) + "\n" + table_text(SPECTRUM_COLUMNS, pairs, delimiter="\t")
+    yield "\n".join(header) + "\n"
+    yield from table_pieces(SPECTRUM_COLUMNS, pairs, delimiter="\t")

@@ -142,8 +142,13 @@ def ingest(
             },
             text_order=text_order_statistics(result.type_ids()),
         )
-    stage("storing")
-    corpus_id = save_corpus(engine, record)
+    return store_with_exact_statistics(engine, record, stage)
+
+
+def store_with_exact_statistics(engine: Engine, record: CorpusRecord, stage: StageCallback) -> int:
+    """Compute a new corpus's exact statistics, then store it with them in one transaction: a failure of
+    either stores nothing. Returns the new corpus id."""
     stage("exact statistics")
-    modelling.random_order_growth(engine, corpus_id)
-    return corpus_id
+    results = modelling.exact_statistics(record.spectrum)
+    stage("storing")
+    return save_corpus(engine, record, results, modelling.CACHE_KEY)

@@ -29,7 +29,9 @@ from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
 from app.core.models.base import RANGE_LEVEL, RANGE_METHOD
 from app.core.models.goodness import spectrum_misfit
 from app.core.spectrum import Spectrum
+from app.ingest import counts
 from app.store import corpora as store
+from app.store.tables import Corpus
 
 RANDOM_GROWTH_POINTS = 60
 LEGOMENA_SHOWN = 20
@@ -105,22 +107,37 @@ def growth_sizes(tokens: int, points: int) -> np.ndarray:
     return np.unique(np.clip(np.rint(sizes), 1, tokens).astype(np.int64))
 
 
+RANDOM_ORDER_GROWTH = "random_order_growth"
+
+
+def random_order_growth_of(spectrum: Spectrum) -> dict:
+    """Expected type growth of random samples with its 95% band (exact hypergeometric) of a spectrum."""
+    bands = growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS))
+    return {
+        "method": "exact hypergeometric expectation over random samples without replacement; "
+        "band = expectation +- 1.96 exact standard deviations",
+        "points": [
+            {"tokens": b.tokens, "types": b.types, "sd": b.sd, "low": b.low, "high": b.high} for b in bands
+        ],
+    }
+
+
+def exact_statistics(pairs: list[tuple[int, int]]) -> dict[str, dict]:
+    """The results a new corpus is stored with (result kind -> payload), computed from its spectrum before
+    it is stored, so that a corpus whose statistics cannot be computed is never stored. Their cost is
+    bounded by the limits on what is accepted (``app.ingest.counts``: largest frequency, spectrum rows)."""
+    return {RANDOM_ORDER_GROWTH: random_order_growth_of(Spectrum.from_pairs(pairs))}
+
+
 def random_order_growth(engine: Engine, corpus_id: int) -> dict:
-    """Expected type growth of random samples with its 95% band (exact hypergeometric), cached."""
-
-    def compute() -> dict:
-        spectrum = load_spectrum(engine, corpus_id)
-        bands = growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS))
-        return {
-            "method": "exact hypergeometric expectation over random samples without replacement; "
-            "band = expectation +- 1.96 exact standard deviations",
-            "points": [
-                {"tokens": b.tokens, "types": b.types, "sd": b.sd, "low": b.low, "high": b.high}
-                for b in bands
-            ],
-        }
-
-    return cached(engine, corpus_id, "random_order_growth", compute)
+    """The random-order growth with its band, cached (stored with the corpus; computed here only for a
+    corpus stored by an older version)."""
+    return cached(
+        engine,
+        corpus_id,
+        RANDOM_ORDER_GROWTH,
+        lambda: random_order_growth_of(load_spectrum(engine, corpus_id)),
+    )
 
 
 # ---------------------------------------------------------------------------------------------- models
@@ -383,12 +400,24 @@ def _anchored(
 # ------------------------------------------------------------------------------------ richness, unseen
 
 
+def stored_text_order(corpus: Corpus) -> tuple[dict[str, Any], str | None]:
+    """The text-order statistics stored with a corpus ({} when it has none), checked by the rules of a
+    bundle's (``check_text_order``), and None; or {} and what is wrong when a hand-edited row or another
+    program's left something else: only the statistics that need them are then missing."""
+    try:
+        value = json.loads(corpus.text_order_json or "{}")
+        return (counts.check_text_order(value, corpus.tokens) if value else {}), None
+    except (ValueError, TypeError) as exc:  # CountsInputError is a ValueError
+        problem = str(exc).removeprefix("bundle: corpus.")
+        return {}, f"the stored text-order statistics are damaged and not shown ({problem})"
+
+
 def richness(engine: Engine, corpus_id: int, common_size: int | None = None) -> dict[str, Any]:
     """Richness indices at the corpus size (MATTR and MTLD measured in text order at ingestion) and, when
     asked, the size-dependent ones at a common size by exact interpolation."""
     corpus = store.get_corpus(engine, corpus_id)
     spectrum = load_spectrum(engine, corpus_id)
-    text_order = json.loads(corpus.text_order_json)
+    text_order, damage = stored_text_order(corpus)
     at_size = asdict(richness_core.richness_indices(spectrum))
     at_size["mattr"] = text_order.get("mattr")
     at_size["mtld"] = text_order.get("mtld")
@@ -397,6 +426,8 @@ def richness(engine: Engine, corpus_id: int, common_size: int | None = None) -> 
         "at_corpus_size": at_size,
         "text_order_tokens": text_order.get("measured_tokens"),
     }
+    if damage:
+        out["text_order_damaged"] = damage
     if common_size is not None:
         if not 1 <= common_size <= corpus.tokens:
             raise PredictionError(f"common size must lie between 1 and the corpus size {corpus.tokens:,}")

@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import json
 import unicodedata
-from collections.abc import Iterable, Iterator
+from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
 from itertools import islice
 from typing import Any
@@ -68,12 +68,46 @@ SOURCE_TITLES = {
 """What each source kind of a corpus is called on pages."""
 
 
+def _stored_json(text: str | None, kind: type, valid: Callable[[Any], bool] = lambda _value: True) -> Any:
+    """A JSON column's value, or None when it does not parse to ``kind`` (and ``valid``): a row edited by
+    hand or written by another program."""
+    try:
+        value = json.loads(text or "")
+    except (TypeError, ValueError):
+        return None
+    return value if isinstance(value, kind) and valid(value) else None
+
+
+def _text_map(value: dict) -> bool:
+    return all(isinstance(k, str) and isinstance(v, str) for k, v in value.items())
+
+
+def _text_list(value: list) -> bool:
+    return all(isinstance(v, str) for v in value)
+
+
+def stored_fields(corpus: Corpus) -> tuple[dict[str, Any], list[str]]:
+    """The labels, profile, file names and origin (None: none) of a stored corpus, each left empty when it
+    cannot be read, and the names of those that could not (``damaged``): pages show what is readable
+    instead of failing."""
+    fields = {
+        "labels": _stored_json(corpus.labels_json, dict, _text_map),
+        "profile": _stored_json(corpus.profile_json, dict),
+        "sources": _stored_json(corpus.sources_json, list, _text_list),
+        "origin": _stored_json(corpus.origin_json, dict) if corpus.origin_json else {},
+    }
+    damaged = [key for key, value in fields.items() if value is None]
+    empty = {"labels": {}, "profile": {}, "sources": [], "origin": {}}
+    read = {key: empty[key] if value is None else value for key, value in fields.items()}
+    return read | {"origin": read["origin"] or None}, damaged
+
+
 def source(corpus: Corpus) -> dict[str, Any]:
     """What a corpus was made from, and what that leaves out: ``kind`` (text, word-counts, spectrum or
     bundle), ``data`` (the kind of data it holds: a bundle holds that of the corpus it was exported from),
     ``word_list`` and ``text_order`` (whether it has them) and ``unavailable`` (statistics it cannot give)."""
     kind = corpus.source_kind or "text"
-    origin = json.loads(corpus.origin_json) if corpus.origin_json else None
+    origin = _stored_json(corpus.origin_json, dict) if corpus.origin_json else None
     data = (origin or {}).get("source_kind", "text") if kind == "bundle" else kind
     word_list = data != "spectrum"
     text_order = data == "text"
@@ -99,7 +133,9 @@ def source(corpus: Corpus) -> dict[str, Any]:
 
 
 def summary(corpus: Corpus) -> dict[str, Any]:
-    """The corpus summary of the JSON API."""
+    """The corpus summary of the JSON API. ``damaged`` names the stored fields that could not be read (left
+    empty here): a row edited by hand or written by another program."""
+    fields, damaged = stored_fields(corpus)
     return {
         "id": corpus.id,
         "name": corpus.name,
@@ -108,13 +144,14 @@ def summary(corpus: Corpus) -> dict[str, Any]:
         "hapaxes": corpus.hapaxes,
         "hapax_share": corpus.hapaxes / corpus.types if corpus.types else 0.0,
         "ttr": corpus.types / corpus.tokens if corpus.tokens else 0.0,
-        "labels": json.loads(corpus.labels_json),
-        "profile": json.loads(corpus.profile_json),
-        "sources": json.loads(corpus.sources_json),
+        "labels": fields["labels"],
+        "profile": fields["profile"],
+        "sources": fields["sources"],
         "content_hash": corpus.content_hash,
         "program_version": corpus.program_version,
         "created_at": corpus.created_at.isoformat(),
         "source": source(corpus),
+        "damaged": damaged,
     }
 
 
@@ -157,8 +194,11 @@ def _issue_corpus_id(session: Session) -> int:
     return int(issued.id)
 
 
-def save_corpus(engine: Engine, record: CorpusRecord) -> int:
-    """Store a corpus with its counts, spectrum, growth and prefix spectra in one transaction."""
+def save_corpus(
+    engine: Engine, record: CorpusRecord, results: dict[str, dict] | None = None, results_version: str = ""
+) -> int:
+    """Store a corpus with its counts, spectrum, growth and prefix spectra, and the ``results`` already
+    computed from them (kind -> payload, cached under ``results_version``), in one transaction."""
     with transaction(engine) as session:
         corpus = Corpus(
             id=_issue_corpus_id(session),
@@ -192,6 +232,15 @@ def save_corpus(engine: Engine, record: CorpusRecord) -> int:
             ("corpus_id", "share", "m", "vm", "prefix_tokens"),
             ((cid, share, m, v, n) for share, (n, pairs) in record.prefix_spectra.items() for m, v in pairs),
         )
+        for kind, payload in (results or {}).items():
+            session.add(
+                CachedResult(
+                    corpus_id=cid,
+                    kind=kind,
+                    program_version=results_version,
+                    payload_json=json.dumps(payload),
+                )
+            )
         return int(cid)
 
 

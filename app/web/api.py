@@ -163,14 +163,37 @@ def delete_corpus(corpus_id: CorpusId, engine: EngineDep, request: Request) -> R
     return Response(status_code=204)
 
 
+SPECTRUM_ROWS_SHOWN = 10_000
+"""Spectrum rows (m, V_m) in one JSON answer; the spectrum TSV download holds them all."""
+
+
 @router.get("/corpora/{corpus_id}/spectrum")
-def spectrum(corpus_id: CorpusId, engine: EngineDep) -> dict:
+def spectrum(
+    corpus_id: CorpusId,
+    engine: EngineDep,
+    limit: Annotated[int, Query(ge=1, le=SPECTRUM_ROWS_SHOWN)] = SPECTRUM_ROWS_SHOWN,
+    offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
+) -> dict:
+    """The frequency spectrum [[m, V_m], ...], m ascending: at most 10,000 rows from ``offset`` (``rows``:
+    how many there are; a corpus of 10^8 tokens has a few thousand), all of them in ``download``."""
     corpus = corpus_or_404(engine, corpus_id)
-    return {
+    pairs = store.spectrum_pairs(engine, corpus_id)
+    shown = pairs[offset : offset + limit]
+    download = f"/api/corpora/{corpus_id}/spectrum.tsv"
+    out = {
         "tokens": corpus.tokens,
         "types": corpus.types,
-        "spectrum": [list(p) for p in store.spectrum_pairs(engine, corpus_id)],
+        "rows": len(pairs),
+        "offset": offset,
+        "spectrum": [list(p) for p in shown],
+        "download": download,
     }
+    if len(shown) < len(pairs):
+        out["note"] = (
+            f"rows {offset + 1:,} to {offset + len(shown):,} of {len(pairs):,} (at most "
+            f"{SPECTRUM_ROWS_SHOWN:,} at a time; more with offset): the whole spectrum is at {download}"
+        )
+    return out
 
 
 @router.get("/corpora/{corpus_id}/growth")

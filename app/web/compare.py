@@ -160,7 +160,14 @@ QuerySettings = Annotated[service.ComparisonSettings, Depends(_query_settings)]
 
 
 def _live(engine: Engine, settings: service.ComparisonSettings) -> dict[str, Any]:
-    return service.live_snapshot(engine, _live_version(engine, settings))
+    return _snapshot(engine, _live_version(engine, settings))
+
+
+def _snapshot(engine: Engine, live: service.LiveComparison) -> dict[str, Any]:
+    try:
+        return service.live_snapshot(engine, live)
+    except service.ComparisonInputError as exc:  # a corpus whose stored data cannot be compared
+        raise HTTPException(status_code=422, detail=str(exc)) from exc
 
 
 def _live_version(engine: Engine, settings: service.ComparisonSettings) -> service.LiveComparison:
@@ -271,9 +278,7 @@ def compare_page(
     scale: Annotated[str | None, Query(max_length=10)] = None,
 ):
     live = _live_version(engine, settings)  # a kept page is sent without its snapshot
-    return _page(
-        request, lambda: service.live_snapshot(engine, live), live.settings.as_dict(), live.key, scale=scale
-    )
+    return _page(request, lambda: _snapshot(engine, live), live.settings.as_dict(), live.key, scale=scale)
 
 
 @router.post("/compare", include_in_schema=False)

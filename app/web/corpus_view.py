@@ -2,7 +2,8 @@
 
 from __future__ import annotations
 
-import json
+import logging
+from collections.abc import Callable
 from datetime import datetime
 from typing import Any, NamedTuple
 
@@ -10,11 +11,23 @@ import numpy as np
 from sqlalchemy.engine import Engine
 
 from app.core import planning
+from app.core.spectrum import Spectrum
 from app.services import modelling
 from app.services.memo import RecentResults
 from app.store import corpora as store
 from app.store.tables import Corpus
 from app.web import figures
+
+log = logging.getLogger("lexigrowth.pages")
+
+STORED_DATA_ERRORS = (ValueError, TypeError, KeyError, IndexError, ArithmeticError)
+"""What computing a section from rows no version of this program writes (edited by hand, or left by
+another program) raises: that section is replaced by a message, the rest of the page is shown."""
+DAMAGED = (
+    "This section cannot be shown: the data stored for it is damaged ({reason}). Everything else on this "
+    "page is unaffected; uploading the corpus again repairs it."
+)
+
 
 WORDS_PER_PAGE = 50
 CURVE_POINTS = 60
@@ -119,7 +132,7 @@ def model_section(
         return {"models_error": None, "models_pending": "queued"}
     except modelling.ModelsFailedError as exc:  # the page says "No vocabulary model could be fitted" itself
         return {"models_error": exc.reason}
-    except (ValueError, ArithmeticError) as exc:
+    except STORED_DATA_ERRORS as exc:
         return {"models_error": str(exc)}
     backtests, backtest_tips = _backtest_table(report)
     weights = report["recommended"]["weights"]
@@ -204,7 +217,7 @@ def plan_section(
         return {"plan": None, "plan_error": None}
     try:
         return {"plan": modelling.plan(engine, corpus_id, target, model), "plan_error": None}
-    except (ValueError, ArithmeticError) as exc:
+    except STORED_DATA_ERRORS as exc:
         return {"plan": None, "plan_error": str(exc)}
 
 
@@ -250,6 +263,17 @@ def corpus_context(
     return {"corpus": store.summary(corpus)} | derived
 
 
+def _section(damaged: dict[str, str], name: str, compute: Callable[[], Any], fallback: Any) -> Any:
+    """``compute()``, or ``fallback`` with the reason recorded in ``damaged[name]`` when the stored data it
+    reads is damaged (``STORED_DATA_ERRORS``)."""
+    try:
+        return compute()
+    except STORED_DATA_ERRORS as exc:
+        log.warning("corpus page section %r not shown: %s: %s", name, exc.__class__.__name__, exc)
+        damaged[name] = DAMAGED.format(reason=f"{exc.__class__.__name__}: {str(exc)[:200]}")
+        return fallback
+
+
 def _derived_context(
     engine: Engine,
     corpus: Corpus,
@@ -263,8 +287,8 @@ def _derived_context(
 ) -> dict[str, Any]:
     corpus_id = corpus.id
     tokens = corpus.tokens
+    damaged: dict[str, str] = {}
     pairs = store.spectrum_pairs(engine, corpus_id)
-    dense = dict(pairs)
     sizes = parse_sizes(sizes_text, tokens)
     planned = plan_section(engine, corpus_id, target, plan_model)
     horizon = int(max(tokens * horizon_factor, tokens + 1))
@@ -275,32 +299,52 @@ def _derived_context(
         if answer <= horizon:
             marker = (answer, f"target reached: {answer:,.0f} tokens")
     models = model_section(engine, corpus_id, tokens, horizon, sizes)
-    text_order = store.growth_points(engine, corpus_id)
-    random_order = modelling.random_order_growth(engine, corpus_id)["points"]
-    common = common_size or min(tokens, 10_000)
-    total_words, word_rows = store.word_counts(
-        engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
-    )
-    return (
-        {
-            "text_order_stats": json.loads(corpus.text_order_json),
+
+    def spectrum_section() -> dict[str, Any]:
+        dense = dict(Spectrum.from_pairs(pairs).pairs())
+        return {
             "spectrum_rows": [(m, dense.get(m, 0)) for m in range(1, 21)],
             "spectrum_figure": figures.spectrum_bars(pairs, models.get("expected_at_corpus_size")),
             "rank_figure": figures.rank_frequency(pairs),
+        }
+
+    def growth_section() -> dict[str, Any]:
+        return {
             "growth_figure": figures.growth_lines(
-                text_order,
-                random_order,
+                store.growth_points(engine, corpus_id),
+                modelling.random_order_growth(engine, corpus_id)["points"],
                 models.get("curves"),
                 models.get("recommended_curve_band"),
                 tokens,
                 marker,
+            )
+        }
+
+    common = common_size or min(tokens, 10_000)
+    total_words, word_rows = store.word_counts(
+        engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
+    )
+    richness = _section(
+        damaged, "richness", lambda: modelling.richness(engine, corpus_id, min(common, tokens)), None
+    )
+    if richness and richness.get("text_order_damaged"):
+        damaged["text_order"] = DAMAGED.format(reason=richness["text_order_damaged"])
+    return (
+        {
+            "damaged": damaged,
+            **_section(
+                damaged,
+                "spectrum",
+                spectrum_section,
+                {"spectrum_rows": [], "spectrum_figure": None, "rank_figure": None},
             ),
+            **_section(damaged, "growth", growth_section, {"growth_figure": None}),
             "sizes_text": sizes_text or "",
             "horizon_factor": horizon_factor,
             "horizon": horizon,
-            "richness": modelling.richness(engine, corpus_id, min(common, tokens)),
+            "richness": richness,
             "index_names": INDEX_NAMES,
-            "unseen": modelling.unseen_vocabulary(engine, corpus_id),
+            "unseen": _section(damaged, "unseen", lambda: modelling.unseen_vocabulary(engine, corpus_id), []),
             "words": word_rows,
             "words_total": total_words,
             "words_query": q or "",

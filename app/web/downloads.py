@@ -3,11 +3,12 @@
 from __future__ import annotations
 
 import re
-from collections.abc import Iterable
+from collections.abc import Iterable, Iterator
 
 from fastapi import Response
+from fastapi.responses import StreamingResponse
 
-from app.services.export import spectrum_tsv, table_text
+from app.services.export import spectrum_tsv_pieces, table_pieces
 from app.store.tables import Corpus
 
 
@@ -21,15 +22,26 @@ def attachment(text: str | bytes, filename: str, media_type: str) -> Response:
     )
 
 
-def spectrum_tsv_response(corpus: Corpus, pairs: Iterable[tuple[int, int]]) -> Response:
-    return attachment(
-        spectrum_tsv(pairs, corpus), f"{file_stem(corpus)}-spectrum.tsv", "text/tab-separated-values"
+def streamed_attachment(pieces: Iterator[str], filename: str, media_type: str) -> StreamingResponse:
+    """A table sent as it is written (``app.services.export``), however many rows it has."""
+    return StreamingResponse(
+        (piece.encode("utf-8") for piece in pieces),
+        media_type=media_type,
+        headers={"Content-Disposition": f'attachment; filename="{filename}"'},
     )
 
 
-def word_counts_csv_response(corpus: Corpus, rows: Iterable[tuple[str, int]]) -> Response:
-    return attachment(
-        table_text(["word", "count"], rows), f"{file_stem(corpus)}-word-counts.csv", "text/csv; charset=utf-8"
+def spectrum_tsv_response(corpus: Corpus, pairs: Iterable[tuple[int, int]]) -> StreamingResponse:
+    return streamed_attachment(
+        spectrum_tsv_pieces(pairs, corpus), f"{file_stem(corpus)}-spectrum.tsv", "text/tab-separated-values"
+    )
+
+
+def word_counts_csv_response(corpus: Corpus, rows: Iterable[tuple[str, int]]) -> StreamingResponse:
+    return streamed_attachment(
+        table_pieces(["word", "count"], rows),
+        f"{file_stem(corpus)}-word-counts.csv",
+        "text/csv; charset=utf-8",
     )
 
 

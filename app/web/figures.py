@@ -6,7 +6,9 @@ import math
 from dataclasses import dataclass
 from typing import Any
 
+from app.core.spectrum import Spectrum
 from app.services import modelling
+from app.services.comparisons import rank_frequency_points, thin_curve
 
 # Okabe & Ito (2008) colour-blind-safe palette for lines. Its yellow #F0E442 is too faint for a line on white:
 # the eighth colour is that yellow darkened until it reads as a line (fills may use the pale one).
@@ -269,15 +271,23 @@ def spectrum_bars(
     )
 
 
+RANK_STEPS = 1_000
+"""Frequency classes drawn as exact steps in the rank-frequency plot; beyond (only very large or invented
+spectra), the frequency at ``RANK_STEPS`` log-spaced ranks, so that the page stays small."""
+
+
 def rank_frequency(pairs: list[tuple[int, int]]) -> dict[str, Any]:
     """Zipf's rank-frequency plot from the spectrum: the types of frequency m hold the ranks just below those
     of all more frequent types, so the last rank of frequency m is the number of types with f >= m."""
-    ranks, freqs = [], []
-    covered = 0
-    for m, v in sorted(pairs, reverse=True):
-        ranks += [covered + 1, covered + v]
-        freqs += [m, m]
-        covered += v
+    if len(pairs) > RANK_STEPS:
+        ranks, freqs = rank_frequency_points(Spectrum.from_pairs(pairs), RANK_STEPS)
+    else:
+        ranks, freqs = [], []
+        covered = 0
+        for m, v in sorted(pairs, reverse=True):
+            ranks += [covered + 1, covered + v]
+            freqs += [m, m]
+            covered += v
     trace = line(
         ranks,
         freqs,
@@ -286,6 +296,10 @@ def rank_frequency(pairs: list[tuple[int, int]]) -> dict[str, Any]:
         hovertemplate="rank %{x:,}: %{y:,} occurrences (tokens)<extra></extra>",
     )
     return figure([trace], "rank", "frequency (tokens)", log_x=True, log_y=True, showlegend=False)
+
+
+GROWTH_POINTS = 1_000
+"""Points of the text-order growth curve drawn at most (a counted text stores 301)."""
 
 
 def growth_lines(
@@ -336,6 +350,7 @@ def growth_lines(
                 hovertemplate=f"<b>{style.title}</b><br>%{{x:,}} tokens: %{{y:,.0f}} types expected<extra></extra>",
             )
         )
+    text_order = thin_curve(text_order, GROWTH_POINTS)
     data.append(
         line(
             [n for n, _ in text_order],

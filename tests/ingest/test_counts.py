@@ -64,3 +64,38 @@ def test_spectrum_with_comments_header_and_zero_rows(tmp_path):
     assert parsed.pairs == [(1, 5), (2, 2), (8, 1)]
     assert (parsed.declared_tokens, parsed.declared_types) == (17, 8)
     assert sum(m * v for m, v in parsed.pairs) == 17
+
+
+def test_spectrum_limits_hold_at_their_edges():
+    """Each limit (README, "Corpora from counts") accepts its value and refuses one more."""
+    from app.ingest.counts import MAX_FREQUENCY, MAX_SPECTRUM_ROWS, MAX_TOKENS, MAX_TYPES, check_spectrum
+
+    assert check_spectrum([(1, 1), (MAX_FREQUENCY, 1)], None, None, "s") == (MAX_FREQUENCY + 1, 2)
+    with pytest.raises(CountsInputError, match="largest frequency 10,000,001"):
+        check_spectrum([(1, 1), (MAX_FREQUENCY + 1, 1)], None, None, "s")
+    rows = [(m, 1) for m in range(1, MAX_SPECTRUM_ROWS + 1)]
+    assert check_spectrum(rows, None, None, "s")[1] == MAX_SPECTRUM_ROWS
+    with pytest.raises(CountsInputError, match="100,001 rows"):
+        check_spectrum([*rows, (MAX_SPECTRUM_ROWS + 1, 1)], None, None, "s")
+    assert check_spectrum([(1, MAX_TYPES)], None, None, "s") == (MAX_TYPES, MAX_TYPES)
+    with pytest.raises(CountsInputError, match="5,000,001 types"):
+        check_spectrum([(1, MAX_TYPES + 1)], None, None, "s")
+    at_most = [(MAX_FREQUENCY, MAX_TOKENS // MAX_FREQUENCY)]
+    assert check_spectrum(at_most, None, None, "s")[0] == MAX_TOKENS
+    with pytest.raises(CountsInputError, match="more than the 100,000,000,000"):
+        check_spectrum([(1, 1), *at_most], None, None, "s")
+
+
+def test_words_of_a_list_follow_the_tokenizers_length_limit(tmp_path):
+    from app.ingest.profiles import MAX_WORD_CHARS
+
+    longest = "w" * MAX_WORD_CHARS
+    content = f"{longest},2\n".encode()
+    assert read_word_counts(_file(tmp_path, content), BUILTIN_PROFILES["default"]) == {longest: 2}
+    with pytest.raises(CountsInputError, match="longer than 100 characters"):
+        read_word_counts(_file(tmp_path, f"{longest}w,2\n".encode()), BUILTIN_PROFILES["default"])
+    for bad in ("tab\u202eto", "esc\x1bx"):
+        with pytest.raises(CountsInputError, match="not a word"):
+            read_word_counts(_file(tmp_path, f"{bad},2\n".encode()), BUILTIN_PROFILES["default"])
+    with pytest.raises(CountsInputError):  # a NUL byte: the file is not read as UTF-8 text at all
+        read_word_counts(_file(tmp_path, b"nul\x00x,2\n"), BUILTIN_PROFILES["default"])

@@ -150,7 +150,8 @@ def test_spectrum_download_in_our_own_layout(corpus):
     assert header == "occurrences\ttypes"
     # the JSON twin keeps its shape
     spectrum = client.get(f"/api/corpora/{cid}/spectrum").json()
-    assert set(spectrum) == {"tokens", "types", "spectrum"} and spectrum["spectrum"][0][0] == 1
+    assert set(spectrum) == {"tokens", "types", "rows", "offset", "spectrum", "download"}
+    assert spectrum["spectrum"][0][0] == 1 and len(spectrum["spectrum"]) == spectrum["rows"]
 
 
 def test_assets_are_compressed_cached_and_plotly_styles_served_as_a_sheet(client):
