@@ -16,6 +16,7 @@ from sqlalchemy.engine import Engine
 from sqlalchemy.exc import DBAPIError
 from sqlmodel import Session, SQLModel
 
+from app.store import tasks
 from app.store.db import transaction
 from app.store.tables import (
     BackgroundTask,
@@ -148,7 +149,8 @@ def _bulk(session: Session, table: type[SQLModel], columns: tuple[str, ...], row
 
 
 def save_corpus(engine: Engine, record: CorpusRecord) -> int:
-    """Store a corpus with its counts, spectrum, growth and prefix spectra in one transaction."""
+    """Store a corpus with its counts, spectrum, growth and prefix spectra in one transaction; run by a
+    task, only while the task is still this process's (``app.store.tasks.confirm_in``)."""
     with transaction(engine) as session:
         corpus = Corpus(
             name=record.name,
@@ -181,6 +183,7 @@ def save_corpus(engine: Engine, record: CorpusRecord) -> int:
             ("corpus_id", "share", "m", "vm", "prefix_tokens"),
             ((cid, share, m, v, n) for share, (n, pairs) in record.prefix_spectra.items() for m, v in pairs),
         )
+        tasks.confirm_in(session)  # a task that lost its lease meanwhile stores nothing (rolled back)
         return int(cid)
 
 
