@@ -34,6 +34,9 @@ INGEST = "ingest"
 MODELS = "models"
 UPLOAD_PRIORITY = 1
 """A member's upload is counted before queued model reports of other corpora and before the demo corpora."""
+NEW_REPORT_PRIORITY = 2
+"""The model report of a member's new corpus comes before that member's next upload (other members' tasks
+are interleaved by fair shares, ``app.store.tasks.claim_next``)."""
 DEMO_PRIORITY = -1
 ANONYMOUS = "anonymous"
 DEMO = "demo"
@@ -188,7 +191,8 @@ def run(
             if task.kind == INGEST:
                 corpus_id = _run_ingest(engine, task, work_dir, progress)
                 if queue.finish(engine, task, corpus_id):
-                    after(queue_models(engine, corpus_id, min(task.priority, 0)))  # a demo's report waits
+                    priority = DEMO_PRIORITY if task.priority < 0 else NEW_REPORT_PRIORITY
+                    after(queue_models(engine, corpus_id, priority))
             elif task.kind == MODELS:
                 progress.stage("fitting models")
                 modelling.compute_model_report(engine, int(task.params["corpus_id"]))

@@ -2,9 +2,9 @@
 supervisor that keeps it running.
 
 Each server process starts one (``TaskWorker``); any number of them may serve one store, each claiming
-queued tasks safely (``app.store.tasks``). A worker has two lanes (threads): one takes any task, the other
-only small ones (uploads up to ``SMALL_TASK_SIZE`` bytes, model reports of corpora up to as many tokens), so
-that a colleague's draft is counted and fitted while a large corpus is being ingested.
+queued tasks safely and fairly (``app.store.tasks``). A worker has two lanes (threads): one takes any task,
+the other only small ones (``SMALL_TASKS``), so that a colleague's draft is counted and fitted at once while
+large corpora are being ingested and fitted: it waits for one small task at most.
 
 The whole worker process, every thread included (the numerical libraries start theirs when they are
 imported), runs at a lower CPU priority than its server (``TASK_NICENESS``), so that background work never
@@ -38,7 +38,10 @@ from app.services import modelling, tasks
 from app.store import tasks as queue
 from app.store.db import create_store_engine
 
-SMALL_TASK_SIZE = 4 * 1024 * 1024
+SMALL_TASKS = {tasks.INGEST: 256 * 1024, tasks.MODELS: 50_000}
+"""What the lane for small tasks takes: uploads of up to 256 KiB (size hint in bytes) and model reports of
+corpora of up to 50,000 tokens (size hint in tokens): each done within a second or two, so that a draft
+never waits long for this lane."""
 TASK_NICENESS = 10
 """How much lower than the server's the worker's CPU priority is (``nice``; its counting processes inherit
 it): when pages and background tasks want the same cores, the pages are answered first, and the tasks use
@@ -78,12 +81,12 @@ def lower_priority(niceness: int = TASK_NICENESS) -> int:
 
 
 def _lane(
-    engine, work_dir: Path, process: str, max_size: int | None, running: dict, stop: threading.Event
+    engine, work_dir: Path, process: str, max_sizes: dict | None, running: dict, stop: threading.Event
 ) -> None:
     lane = threading.current_thread().name
     while not stop.is_set():
         try:
-            task = queue.claim_next(engine, process, max_size)
+            task = queue.claim_next(engine, process, max_sizes)
         except Exception:  # noqa: BLE001 - a busy or restarting database: try again
             log.exception("cannot claim a task")
             stop.wait(1.0)
@@ -91,19 +94,13 @@ def _lane(
         if task is None:
             stop.wait(POLL_SECONDS)
             continue
-        follow_ups: list[queue.TaskView] = []  # a new corpus's model report: fitted at once, in this lane
-        while task is not None:
-            running[lane] = task
-            try:
-                tasks.run(engine, task, work_dir, follow_ups.append)
-            finally:
-                running.pop(lane, None)
-            # A member's new corpus is fitted at once; the demo corpora's reports wait behind uploads.
-            task = (
-                queue.claim(engine, follow_ups.pop(0).id, process)
-                if follow_ups and task.priority >= 0
-                else None
-            )
+        running[lane] = task
+        try:
+            # A new corpus's model report is queued (before its member's next upload) and taken from the
+            # queue in fair order like any other task.
+            tasks.run(engine, task, work_dir, lambda _report: None)
+        finally:
+            running.pop(lane, None)
 
 
 def worker_main(database_url: str, work_dir: str, seen) -> None:
@@ -133,7 +130,7 @@ def worker_main(database_url: str, work_dir: str, seen) -> None:
         threading.Thread(
             target=_lane, name=name, args=(engine, Path(work_dir), process, size, running, stop), daemon=True
         )
-        for name, size in (("any", None), ("small", SMALL_TASK_SIZE))
+        for name, size in (("any", None), ("small", SMALL_TASKS))
     ]
     for lane in lanes:
         lane.start()

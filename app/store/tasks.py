@@ -216,7 +216,7 @@ def claim(engine: Engine, task_id: str, process: str) -> TaskView | None:
     return get(engine, task_id) if claimed == 1 else None
 
 
-def _next_candidate(session: Session, max_size: int | None) -> str | None:
+def _next_candidate(session: Session, max_sizes: dict[str, int] | None) -> str | None:
     """The queued task to claim next (see the module's docstring for the order)."""
     recent = (
         select(
@@ -236,8 +236,15 @@ def _next_candidate(session: Session, max_size: int | None) -> str | None:
         .outerjoin(recent, recent.c.member == BackgroundTask.member)
         .where(BackgroundTask.state == QUEUED)
     )
-    if max_size is not None:
-        query = query.where(BackgroundTask.size_hint <= max_size)
+    if max_sizes is not None:
+        query = query.where(
+            or_(
+                *(
+                    and_(BackgroundTask.kind == kind, BackgroundTask.size_hint <= most)
+                    for kind, most in max_sizes.items()
+                )
+            )
+        )
     query = query.order_by(
         case((BackgroundTask.priority < 0, 1), else_=0),  # the demo corpora after every member's work
         func.coalesce(recent.c.running, 0),  # the member with the fewest tasks running
@@ -250,8 +257,9 @@ def _next_candidate(session: Session, max_size: int | None) -> str | None:
     return session.exec(query.limit(1)).scalar()
 
 
-def claim_next(engine: Engine, process: str, max_size: int | None = None) -> TaskView | None:
-    """Take the next queued task (of at most ``max_size`` by its size hint) for ``process``; None if none.
+def claim_next(engine: Engine, process: str, max_sizes: dict[str, int] | None = None) -> TaskView | None:
+    """Take the next queued task for ``process``; None if none. With ``max_sizes`` ({kind: largest size
+    hint}), only a task of one of those kinds and sizes.
 
     Order: tasks of priority 0 and above before background ones (below 0); among them the member with the
     fewest tasks running, then the one whose last claim is oldest (or who has none within
@@ -259,7 +267,7 @@ def claim_next(engine: Engine, process: str, max_size: int | None = None) -> Tas
     priority; then model reports of smaller corpora; then the oldest."""
     for _ in range(5):  # another process may take the candidate between the look and the claim
         with Session(engine) as session:
-            candidate = _next_candidate(session, max_size)
+            candidate = _next_candidate(session, max_sizes)
         if candidate is None:
             return None
         claimed = claim(engine, candidate, process)

@@ -119,7 +119,7 @@ async def upload_corpus(
     task = await run_in_threadpool(jobs.submit, task)
     if wait:
         task = await wait_for(engine, task, settings.upload_wait_seconds)
-    if not task.finished:
+    if not (wait and task.finished):
         job = await run_in_threadpool(jobs.job, task.id)
         return FiniteJSONResponse(job | {"url": f"/api/jobs/{task.id}"}, status_code=202)
     if task.state == queue.FAILED:

@@ -204,3 +204,13 @@ def test_queue_state_counts_and_the_oldest_wait(engine):
     state = queue.queue_state(engine)
     assert (state.running, state.queued) == (1, 2)
     assert 89 < state.oldest_queued_seconds < 120
+
+
+def test_the_lane_for_small_tasks_takes_only_the_kinds_and_sizes_it_is_given(engine):
+    queue.enqueue(engine, "ingest", {}, size_hint=5_000_000, priority=1)
+    queue.enqueue(engine, "models", {}, size_hint=900_000)
+    draft = queue.enqueue(engine, "ingest", {}, size_hint=2_000, priority=1)
+    report = queue.enqueue(engine, "models", {}, size_hint=300)
+    small = {"ingest": 256 * 1024, "models": 50_000}
+    assert [queue.claim_next(engine, "small", small).id for _ in range(2)] == [draft.id, report.id]
+    assert queue.claim_next(engine, "small", small) is None
