@@ -190,9 +190,12 @@ def run(
         try:
             if task.kind == INGEST:
                 corpus_id = _run_ingest(engine, task, work_dir, progress)
+                # The corpus is stored: its report is queued before the job says done, so that the job
+                # never shows a corpus without the state of its models.
+                priority = DEMO_PRIORITY if task.priority < 0 else NEW_REPORT_PRIORITY
+                report = queue_models(engine, corpus_id, priority)
                 if queue.finish(engine, task, corpus_id):
-                    priority = DEMO_PRIORITY if task.priority < 0 else NEW_REPORT_PRIORITY
-                    after(queue_models(engine, corpus_id, priority))
+                    after(report)
             elif task.kind == MODELS:
                 progress.stage("fitting models")
                 modelling.compute_model_report(engine, int(task.params["corpus_id"]))

@@ -10,7 +10,7 @@ import numpy as np
 from sqlalchemy.engine import Engine
 
 from app.core import planning
-from app.services import modelling
+from app.services import memo, modelling
 from app.services.memo import RecentResults
 from app.store import corpora as store
 from app.store.tables import Corpus
@@ -165,7 +165,7 @@ def model_section(
                 for name in ("recommended", *report["fitted"])
             },
         }
-        for n in sizes
+        for n in memo.checked(sizes)  # each size costs every model's prediction: stop for nobody
     ]
     return {
         "models_error": None,
@@ -267,6 +267,7 @@ def _derived_context(
     dense = dict(pairs)
     sizes = parse_sizes(sizes_text, tokens)
     planned = plan_section(engine, corpus_id, target, plan_model)
+    memo.checkpoint()  # between the sections: stop if everyone who asked for this page has gone
     horizon = int(max(tokens * horizon_factor, tokens + 1))
     marker = None
     if planned["plan"]:
@@ -275,8 +276,10 @@ def _derived_context(
         if answer <= horizon:
             marker = (answer, f"target reached: {answer:,.0f} tokens")
     models = model_section(engine, corpus_id, tokens, horizon, sizes)
+    memo.checkpoint()
     text_order = store.growth_points(engine, corpus_id)
     random_order = modelling.random_order_growth(engine, corpus_id)["points"]
+    memo.checkpoint()
     common = common_size or min(tokens, 10_000)
     total_words, word_rows = store.word_counts(
         engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
