@@ -435,9 +435,11 @@ def _beat(lease: Lease, stop: threading.Event, every: float) -> None:
 
 
 @contextmanager
-def holding(engine: Engine, task: TaskView, every: float = HEARTBEAT_EVERY) -> Iterator[Lease]:
+def holding(engine: Engine, task: TaskView, every: float | None = None) -> Iterator[Lease]:
     """Run ``task`` (claimed by this process) in this thread: its lease is renewed every ``every`` seconds
-    by a thread of its own for as long as the block lasts, and ``confirm_in`` knows it."""
+    (by default ``HEARTBEAT_EVERY``) by a thread of its own for as long as the block lasts, and
+    ``confirm_in`` knows it."""
+    every = HEARTBEAT_EVERY if every is None else every
     lease = Lease(engine, task)
     stop = threading.Event()
     beat = threading.Thread(target=_beat, args=(lease, stop, every), name=f"lease-{task.id}", daemon=True)
