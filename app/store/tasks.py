@@ -218,6 +218,8 @@ def claim(engine: Engine, task_id: str, process: str) -> TaskView | None:
 
 def _next_candidate(session: Session, max_sizes: dict[str, int] | None) -> str | None:
     """The queued task to claim next (see the module's docstring for the order)."""
+    if session.exec(select(BackgroundTask.id).where(BackgroundTask.state == QUEUED).limit(1)).first() is None:
+        return None  # the usual answer of an idle worker's look, by the index on state alone
     recent = (
         select(
             BackgroundTask.member.label("member"),
