@@ -204,7 +204,9 @@ def run(
                 queue.fail(engine, task, f"unknown task kind {task.kind!r}")
         except queue.LeaseLost:
             log.warning(
-                "task %s (%s) was taken from this process; it stopped and stored nothing", task.id, task.kind
+                "task %s (%s) was taken from this process; it stopped, its outcome is its new owner's",
+                task.id,
+                task.kind,
             )
         except ValueError as exc:  # input that cannot become a corpus (unreadable file, no words...): as is
             queue.fail(engine, task, str(exc))

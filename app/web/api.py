@@ -118,7 +118,7 @@ async def upload_corpus(
         raise
     task = await run_in_threadpool(jobs.submit, task)
     if wait:
-        task = await wait_for(engine, task, settings.upload_wait_seconds)
+        task = await wait_for(request, engine, task, settings.upload_wait_seconds)
     if not (wait and task.finished):
         job = await run_in_threadpool(jobs.job, task.id)
         return FiniteJSONResponse(job | {"url": f"/api/jobs/{task.id}"}, status_code=202)
@@ -128,12 +128,13 @@ async def upload_corpus(
     return with_warnings(store.summary(corpus))
 
 
-async def wait_for(engine: Engine, task: queue.TaskView, seconds: float) -> queue.TaskView:
-    """The task once finished, or as it stands after ``seconds``; looks at it every ``WAIT_POLL_SECONDS``
-    at first, less often as it takes longer (at most every ``WAIT_POLL_MAX_SECONDS``)."""
+async def wait_for(request: Request, engine: Engine, task: queue.TaskView, seconds: float) -> queue.TaskView:
+    """The task once finished, or as it stands after ``seconds`` or when the client has gone (the task goes
+    on); looks at it every ``WAIT_POLL_SECONDS`` at first, less often as it takes longer (at most every
+    ``WAIT_POLL_MAX_SECONDS``)."""
     deadline = time.monotonic() + seconds
     pause = WAIT_POLL_SECONDS
-    while not task.finished and time.monotonic() < deadline:
+    while not task.finished and time.monotonic() < deadline and not await request.is_disconnected():
         await asyncio.sleep(min(pause, max(0.0, deadline - time.monotonic())))
         pause = min(pause * 1.5, WAIT_POLL_MAX_SECONDS)
         task = await run_in_threadpool(queue.get, engine, task.id) or task
