@@ -162,6 +162,9 @@ class TaskWorker:
         self.process: multiprocessing.process.BaseProcess | None = None
         self.started = 0.0
         self.restarts = 0
+        self._backoff = RESTART_BACKOFF[0]
+        self._restart_at: float | None = None
+        self._last_recovery = time.monotonic()
         self.stopping = threading.Event()
         self.supervisor = threading.Thread(target=self._supervise, name="task-supervisor", daemon=True)
 
@@ -190,32 +193,40 @@ class TaskWorker:
             log.warning("recovered %d tasks of ended processes", len(recovered))
 
     def _supervise(self) -> None:
-        backoff = RESTART_BACKOFF[0]
-        restart_at: float | None = None
-        last_recovery = time.monotonic()
         while not self.stopping.wait(SUPERVISE_EVERY):
-            now = time.monotonic()
-            if self.process is not None and not self.process.is_alive() and restart_at is None:
-                lived = now - self.started
-                log.error(
-                    "the task worker (pid %s) ended with code %s after %.0f s; starting a new one in %.0f s",
-                    self.process.pid,
-                    self.process.exitcode,
-                    lived,
-                    backoff,
-                )
-                self._recover()  # its tasks: its pid is gone, so they are taken back at once
-                last_recovery = now
-                scratch.remove_orphans(self.work_dir)
-                restart_at = now + backoff
-                backoff = min(RESTART_BACKOFF[1], backoff * 2) if lived < YOUNG_DEATH else RESTART_BACKOFF[0]
-            if restart_at is not None and now >= restart_at and not self.stopping.is_set():
-                restart_at = None
-                self.restarts += 1
-                self._start_process()
-            if now - last_recovery >= RECOVER_EVERY:
-                self._recover()
-                last_recovery = now
+            try:
+                self._look()
+            except Exception:  # noqa: BLE001 - the supervisor must outlive any one failure (a full disk...)
+                log.exception("supervising the task worker failed; trying again")
+
+    def _look(self) -> None:
+        """One look at the worker: note its death (its tasks are recovered at once) and start a new one
+        after the back-off; recover abandoned tasks when due."""
+        now = time.monotonic()
+        process = self.process
+        if process is not None and not process.is_alive() and self._restart_at is None:
+            lived = now - self.started
+            log.error(
+                "the task worker (pid %s) ended with code %s after %.0f s; starting a new one in %.0f s",
+                process.pid,
+                process.exitcode,
+                lived,
+                self._backoff,
+            )
+            self._restart_at = now + self._backoff
+            self._backoff = (
+                min(RESTART_BACKOFF[1], self._backoff * 2) if lived < YOUNG_DEATH else RESTART_BACKOFF[0]
+            )
+            self._last_recovery = now
+            self._recover()  # its tasks: its pid is gone, so they are taken back at once
+            scratch.remove_orphans(self.work_dir)
+        if self._restart_at is not None and now >= self._restart_at and not self.stopping.is_set():
+            self._restart_at = None
+            self.restarts += 1
+            self._start_process()
+        if now - self._last_recovery >= RECOVER_EVERY:
+            self._last_recovery = now
+            self._recover()
 
     def state(self) -> WorkerState:
         process = self.process
