@@ -23,7 +23,7 @@ except PackageNotFoundError:  # running from a source tree that was not installe
 
 class Settings(BaseSettings):
     """Environment: LEXIGROWTH_DATA_DIR, LEXIGROWTH_DATABASE_URL, LEXIGROWTH_MAX_UPLOAD_MB, LEXIGROWTH_LOAD_DEMO,
-    LEXIGROWTH_TASK_WORKER,
+    LEXIGROWTH_TASK_WORKER, LEXIGROWTH_UPLOAD_WAIT_SECONDS,
     LEXIGROWTH_ALLOWED_HOSTS, LEXIGROWTH_TRUSTED_PROXIES,
     and for lab mode LEXIGROWTH_MODE, LEXIGROWTH_SECRET_KEY (see app.web.security)."""
 
@@ -36,6 +36,8 @@ class Settings(BaseSettings):
     # Run background tasks (counting uploads, fitting models) in a worker process of each server process;
     # off: in the thread that asks for them (tests, embedded use), so a request waits for them.
     task_worker: bool = True
+    # Seconds an upload with ?wait=1 waits for its corpus before answering 202 with the job to poll.
+    upload_wait_seconds: float = Field(default=60.0, gt=0)
     # "auto": lab mode (sign-in required) as soon as the store has an account; "lab": always lab mode.
     mode: Literal["auto", "lab"] = "auto"
     # Key that signs session cookies; empty: a random key kept in <data_dir>/secret_key (mode 0600).

@@ -42,8 +42,9 @@ def create_app(settings: Settings | None = None) -> FastAPI:
         worker = (
             None
             if not settings.task_worker
-            else TaskWorker(settings.resolved_database_url, settings.work_dir)
+            else TaskWorker(settings.resolved_database_url, settings.work_dir, app.state.engine)
         )
+        app.state.worker = worker  # supervised: restarted when it dies (see /api/health)
         if worker is not None:
             worker.start()
         if settings.load_demo:
@@ -67,6 +68,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
     app.state.settings = settings
     app.state.engine = make_engine(settings.resolved_database_url)
     app.state.jobs = Dispatcher(app.state.engine, settings.work_dir, inline=not settings.task_worker)
+    app.state.worker = None
     app.state.guard = security.Guard(settings, app.state.engine)
     # Outermost first: HEAD as GET, then the viewer and security headers, then entity tags, then the body
     # limits.

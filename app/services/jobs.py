@@ -9,9 +9,14 @@ from typing import Any
 from sqlalchemy.engine import Engine
 
 from app.services import modelling, tasks
+from app.services.worker import TaskWorker
 from app.store import tasks as queue
 
-STAGES = ("queued", "starting", "reading", "counting", "text-order statistics", "storing", "exact statistics")
+QUEUE_STALL_SECONDS = 30.0
+"""A queued task that has waited this long while no task runs anywhere means nothing is being processed."""
+WORKER_SILENT_SECONDS = 30.0
+"""A worker that has given no sign of life for this long (or none this long after its start) is stuck."""
+STAGES = ("queued", "starting", "reading", "counting", "text-order statistics", "exact statistics", "storing")
 """The stages of an ingestion in order (then "done" or "failed"); the model report follows as its own task."""
 
 
@@ -56,7 +61,7 @@ class Dispatcher:
         earlier version, a task lost with its process)."""
         task = tasks.queue_models(self.engine, corpus_id)
         if task.state == queue.DONE and not modelling.has_model_report(self.engine, corpus_id):
-            queue.requeue(self.engine, task.id, task.params)  # its report was replaced or removed since
+            queue.requeue_ended(self.engine, task.id, task.params)  # its report was replaced or removed since
             task = queue.get(self.engine, task.id) or task
         return self.submit(task)
 
@@ -80,3 +85,40 @@ class Dispatcher:
             as_job(task) | {"name": task.params.get("name")}
             for task in queue.unfinished(self.engine, tasks.INGEST)
         ]
+
+    def health(self, worker: TaskWorker | None) -> dict[str, Any]:
+        """``{"status": "ok"}`` when tasks are processed, else ``"degraded"`` with ``problems`` in words; with
+        the state of this server process's task worker (``None`` when tasks run in the requesting thread)
+        and of the store's queue (shared by every server process)."""
+        problems = []
+        worker_state = None
+        if worker is not None:
+            state = worker.state()
+            worker_state = {
+                "scope": "this server process",
+                "alive": state.alive,
+                "pid": state.pid,
+                "restarts": state.restarts,
+                "last_seen_seconds": state.last_seen_seconds,
+            }
+            silent = state.last_seen_seconds if state.last_seen_seconds is not None else state.running_seconds
+            if not state.alive:
+                problems.append(
+                    "the task worker of this server process is not running; it is being restarted"
+                )
+            elif silent > WORKER_SILENT_SECONDS:
+                problems.append(f"the task worker of this server process has not answered for {silent:.0f} s")
+        standing = queue.queue_state(self.engine)
+        waited = standing.oldest_queued_seconds
+        if waited is not None and waited > QUEUE_STALL_SECONDS and standing.running == 0:
+            problems.append(f"the oldest queued task has waited {waited:.0f} s and no task is running")
+        return {
+            "status": "degraded" if problems else "ok",
+            "problems": problems,
+            "worker": worker_state,
+            "queue": {
+                "running": standing.running,
+                "queued": standing.queued,
+                "oldest_queued_seconds": None if waited is None else round(waited, 1),
+            },
+        }

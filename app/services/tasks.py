@@ -28,13 +28,20 @@ from app.ingest.readers import TextSource
 from app.services import exchange, ingestion, modelling
 from app.store import accounts
 from app.store import tasks as queue
-from app.store.corpora import count_corpora
+from app.store.corpora import count_corpora, get_corpus
 
 INGEST = "ingest"
 MODELS = "models"
 UPLOAD_PRIORITY = 1
 """A member's upload is counted before queued model reports of other corpora and before the demo corpora."""
+NEW_REPORT_PRIORITY = 2
+"""The model report of a member's new corpus comes before that member's next upload (other members' tasks
+are interleaved by fair shares, ``app.store.tasks.claim_next``)."""
 DEMO_PRIORITY = -1
+ANONYMOUS = "anonymous"
+DEMO = "demo"
+"""The members of tasks without a lab member: the anonymous user (one member for fair shares) and the
+demo corpora (background work, after everyone's)."""
 MODEL_ATTEMPTS = 2
 """Times a model report is started before a crash of its process counts as its failure."""
 PROGRESS_EVERY = 0.25
@@ -45,6 +52,12 @@ log = logging.getLogger("lexigrowth.tasks")
 
 def models_key(corpus_id: int) -> str:
     return f"{MODELS}:{corpus_id}:{modelling.CACHE_KEY}"
+
+
+def member_of(owner_id: int | None) -> str:
+    """Whom a task works for, for fair shares of the queue: a lab member, or the anonymous user (personal
+    mode, the command line), who then counts as one member."""
+    return ANONYMOUS if owner_id is None else f"member {owner_id}"
 
 
 def ingest_params(
@@ -71,15 +84,34 @@ def ingest_params(
     }
 
 
+def queue_upload(engine: Engine, params: dict[str, Any], size_bytes: int) -> queue.TaskView:
+    """The ``ingest`` task of a member's upload (``params`` from ``ingest_params``)."""
+    return queue.enqueue(
+        engine,
+        INGEST,
+        params,
+        size_hint=size_bytes,
+        priority=UPLOAD_PRIORITY,
+        member=member_of(params.get("owner_id")),
+    )
+
+
 def queue_models(engine: Engine, corpus_id: int, priority: int = 0) -> queue.TaskView:
-    """The model-report task of a corpus (queued now unless one exists for this code, ``modelling.CACHE_KEY``)."""
+    """The model-report task of a corpus (queued now unless one exists for this code, ``modelling.CACHE_KEY``), for the
+    corpus's owner, with its tokens as size hint (small corpora's reports are claimed first)."""
+    existing = models_task(engine, corpus_id)
+    if existing is not None:
+        return existing  # a read only, as in queue.enqueue
+    corpus = get_corpus(engine, corpus_id)
     return queue.enqueue(
         engine,
         MODELS,
         {"corpus_id": corpus_id},
         dedupe_key=models_key(corpus_id),
         corpus_id=corpus_id,
+        size_hint=corpus.tokens,
         priority=priority,
+        member=DEMO if priority < 0 else member_of(corpus.owner_id),
     )
 
 
@@ -89,20 +121,23 @@ def models_task(engine: Engine, corpus_id: int) -> queue.TaskView | None:
 
 class _Progress:
     """Writes (stage, done, total) to the task row, counting progress at most every ``PROGRESS_EVERY``
-    seconds; the stages after counting keep the counted bytes (done = total)."""
+    seconds; the stages after counting keep the counted bytes (done = total). Raises ``LeaseLost`` as soon
+    as the task is no longer this process's, which stops the work."""
 
-    def __init__(self, engine: Engine, task_id: str) -> None:
-        self.engine, self.task_id, self.last = engine, task_id, 0.0
+    def __init__(self, lease: queue.Lease) -> None:
+        self.lease, self.last = lease, 0.0
         self.done = self.total = 0
 
     def stage(self, name: str) -> None:
-        queue.report(self.engine, self.task_id, name, self.done, self.total)
+        self.lease.report(name, self.done, self.total)
         self.last = time.monotonic()
 
     def bytes(self, done: int, total: int) -> None:
         self.done, self.total = done, total
         if time.monotonic() - self.last >= PROGRESS_EVERY or done >= total:
             self.stage("counting")
+        else:
+            self.lease.check()
 
 
 def _run_ingest(engine: Engine, task: queue.TaskView, work_dir: Path, progress: _Progress) -> int:
@@ -143,26 +178,43 @@ def run(
     engine: Engine, task: queue.TaskView, work_dir: Path, after: Callable[[queue.TaskView], None]
 ) -> None:
     """Run a claimed task to its end and record the outcome; ``after`` receives each task queued by it
-    (the model report of a new corpus)."""
-    progress = _Progress(engine, task.id)
-    try:
-        if task.kind == INGEST:
-            corpus_id = _run_ingest(engine, task, work_dir, progress)
-            queue.finish(engine, task.id, corpus_id)
-            after(queue_models(engine, corpus_id, min(task.priority, 0)))  # a demo's report waits its turn
-        elif task.kind == MODELS:
-            progress.stage("fitting models")
-            modelling.compute_model_report(engine, int(task.params["corpus_id"]))
-            queue.finish(engine, task.id)
-        else:
-            queue.fail(engine, task.id, f"unknown task kind {task.kind!r}")
-    except ValueError as exc:  # input that cannot become a corpus (unreadable file, no words...): said as is
-        queue.fail(engine, task.id, str(exc))
-    except Exception as exc:  # noqa: BLE001 - recorded for the user; the worker goes on
-        log.exception("task %s (%s) failed", task.id, task.kind)
-        queue.fail(engine, task.id, f"{exc.__class__.__name__}: {exc}")
-    finally:
-        remove_scratch(task)
+    (the model report of a new corpus).
+
+    The task's lease is renewed by a heartbeat thread for as long as it runs. A run whose task was taken
+    from this process meanwhile (taken for abandoned) stops at its next progress report and records
+    nothing: a new corpus is stored only while the task is still ours (``app.store.tasks.confirm_in``, in
+    the storing transaction), and a model report computed anyway is the same report of the same corpus
+    (stored under its key, whoever computes it), while the task row keeps its new owner's outcome."""
+    with queue.holding(engine, task) as lease:
+        progress = _Progress(lease)
+        try:
+            if task.kind == INGEST:
+                corpus_id = _run_ingest(engine, task, work_dir, progress)
+                # The corpus is stored: its report is queued before the job says done, so that the job
+                # never shows a corpus without the state of its models.
+                priority = DEMO_PRIORITY if task.priority < 0 else NEW_REPORT_PRIORITY
+                report = queue_models(engine, corpus_id, priority)
+                if queue.finish(engine, task, corpus_id):
+                    after(report)
+            elif task.kind == MODELS:
+                progress.stage("fitting models")
+                modelling.compute_model_report(engine, int(task.params["corpus_id"]))
+                queue.finish(engine, task)
+            else:
+                queue.fail(engine, task, f"unknown task kind {task.kind!r}")
+        except queue.LeaseLost:
+            log.warning(
+                "task %s (%s) was taken from this process; it stopped, its outcome is its new owner's",
+                task.id,
+                task.kind,
+            )
+        except ValueError as exc:  # input that cannot become a corpus (unreadable file, no words...): as is
+            queue.fail(engine, task, str(exc))
+        except Exception as exc:  # noqa: BLE001 - recorded for the user; the worker goes on
+            log.exception("task %s (%s) failed", task.id, task.kind)
+            queue.fail(engine, task, f"{exc.__class__.__name__}: {exc}")
+        finally:
+            remove_scratch(task)
 
 
 def remove_scratch(task: queue.TaskView) -> None:
@@ -172,10 +224,10 @@ def remove_scratch(task: queue.TaskView) -> None:
 
 def run_now(engine: Engine, task: queue.TaskView, work_dir: Path) -> queue.TaskView:
     """Claim and run ``task`` (and what it queues) in this thread; the task as it ended."""
-    owner = queue.process_name()
+    process = queue.process_name()
     pending = [task]
     while pending:
-        current = queue.claim(engine, pending.pop(0).id, owner)
+        current = queue.claim(engine, pending.pop(0).id, process)
         if current is not None:
             run(engine, current, work_dir, pending.append)
     ended = queue.get(engine, task.id)
@@ -183,15 +235,28 @@ def run_now(engine: Engine, task: queue.TaskView, work_dir: Path) -> queue.TaskV
     return ended
 
 
+INTERRUPTED = (
+    "interrupted: the process running this task stopped before it finished; nothing was stored, try again"
+)
+
+
 def recover(engine: Engine) -> list[queue.TaskView]:
-    """Fail the tasks of processes that died while running them and remove their scratch; a model report
-    (the corpus itself is stored) goes back to the queue, up to ``MODEL_ATTEMPTS`` times in all."""
-    dead = queue.interrupted(engine)
-    for task in dead:
-        remove_scratch(task)
-        if task.kind == MODELS and task.params.get("attempt", 1) < MODEL_ATTEMPTS:
-            queue.requeue(engine, task.id, task.params | {"attempt": task.params.get("attempt", 1) + 1})
-    return dead
+    """Take back the tasks of processes that died (or froze) while running them and remove their scratch:
+    an upload fails with a message, a model report (the corpus itself is stored) goes back to the queue,
+    up to ``MODEL_ATTEMPTS`` times in all. Safe to run in several processes at once, as often as wanted:
+    each abandoned task is recovered by exactly one of them (``queue.reclaim``). Returns those this call
+    recovered."""
+    recovered = []
+    for task in queue.abandoned(engine):
+        attempt = task.params.get("attempt", 1)
+        if task.kind == MODELS and attempt < MODEL_ATTEMPTS:
+            taken = queue.reclaim(engine, task, params=task.params | {"attempt": attempt + 1})
+        else:
+            taken = queue.reclaim(engine, task, message=INTERRUPTED)
+        if taken:
+            remove_scratch(task)
+            recovered.append(task)
+    return recovered
 
 
 def queue_demo_corpora(engine: Engine, demo_dir: Path = DEMO_DIR) -> list[queue.TaskView]:
@@ -213,6 +278,7 @@ def queue_demo_corpora(engine: Engine, demo_dir: Path = DEMO_DIR) -> list[queue.
             dedupe_key=f"demo:{entry['file']}",
             size_hint=(demo_dir / entry["file"]).stat().st_size,
             priority=DEMO_PRIORITY,
+            member=DEMO,
         )
         for entry in json.loads(manifest.read_text(encoding="utf-8"))["corpora"]
     ]

@@ -16,6 +16,7 @@ from sqlalchemy.engine import Engine
 from sqlalchemy.exc import DBAPIError
 from sqlmodel import Session, SQLModel
 
+from app.store import tasks
 from app.store.db import transaction
 from app.store.tables import (
     BackgroundTask,
@@ -198,7 +199,8 @@ def save_corpus(
     engine: Engine, record: CorpusRecord, results: dict[str, dict] | None = None, results_version: str = ""
 ) -> int:
     """Store a corpus with its counts, spectrum, growth and prefix spectra, and the ``results`` already
-    computed from them (kind -> payload, cached under ``results_version``), in one transaction."""
+    computed from them (kind -> payload, cached under ``results_version``), in one transaction; run by a
+    task, only while the task is still this process's (``app.store.tasks.confirm_in``)."""
     with transaction(engine) as session:
         corpus = Corpus(
             id=_issue_corpus_id(session),
@@ -241,6 +243,7 @@ def save_corpus(
                     payload_json=json.dumps(payload),
                 )
             )
+        tasks.confirm_in(session)  # a task that lost its lease meanwhile stores nothing (rolled back)
         return int(cid)
 
 

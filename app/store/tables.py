@@ -153,7 +153,8 @@ class BackgroundTask(SQLModel, table=True):
     ``total`` its progress (bytes while counting). ``dedupe_key`` makes enqueuing idempotent (one model
     report per corpus and program version, one load per demo file). ``owner`` is "host:pid" of the process
     running it and ``heartbeat_at`` its last sign of life, so a task left by a crashed process can be told
-    apart from one still running."""
+    apart from one still running. ``member`` is whom the task works for (fair shares between members) and
+    ``claimed_at`` when it was last taken (see ``app.store.tasks.claim_next``)."""
 
     id: str = Field(primary_key=True)
     kind: str = Field(index=True)
@@ -171,6 +172,8 @@ class BackgroundTask(SQLModel, table=True):
     created_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
     updated_at: datetime = Field(default_factory=_utcnow, sa_type=UTCDateTime)
     heartbeat_at: datetime | None = Field(default=None, sa_type=UTCDateTime)
+    member: str | None = Field(default=None)
+    claimed_at: datetime | None = Field(default=None, sa_type=UTCDateTime, index=True)
 
 
 class LabSession(SQLModel, table=True):

@@ -2,12 +2,14 @@
 
 from __future__ import annotations
 
+import asyncio
 import time
 from typing import Annotated
 
 from fastapi import APIRouter, Depends, File, Form, HTTPException, Path, Query, Request, Response, UploadFile
 from pydantic import BaseModel, Field, field_validator
 from sqlalchemy.engine import Engine
+from starlette.concurrency import run_in_threadpool
 
 from app.config import Settings
 from app.core import planning
@@ -32,11 +34,18 @@ MAX_CORPUS_ID = 2**31 - 1
 the database driver fails (OverflowError on SQLite), so it is refused as input (422) instead of a 500."""
 CorpusId = Annotated[int, Path(ge=1, le=MAX_CORPUS_ID, description="corpus id")]
 WAIT_POLL_SECONDS = 0.05
+WAIT_POLL_MAX_SECONDS = 0.5
 
 
 @router.get("/health")
-def health() -> dict:
-    return {"status": "ok"}
+def health(request: Request, jobs: Annotated[Dispatcher, Depends(jobs_of)]) -> dict:
+    """``{"status": "ok"}`` while tasks are being processed; ``"degraded"`` with ``problems`` (in words)
+    when this server process's task worker is dead or stuck, or the oldest queued task has waited more
+    than 30 s while no task runs. Also: ``worker`` (alive, pid, restarts, seconds since its last sign of
+    life: this server process's own worker; each process of a multi-process server has one) and ``queue``
+    (running, queued, the oldest queued task's wait in seconds: the whole store). The HTTP status stays 200:
+    pages are still served."""
+    return jobs.health(request.app.state.worker)
 
 
 @router.get("/profiles")
@@ -56,7 +65,7 @@ PASTED_TEXT_PART_BYTES = 1 << 40
 
 
 @router.post("/corpora", status_code=201, form_limits={"max_part_size": PASTED_TEXT_PART_BYTES})
-def upload_corpus(
+async def upload_corpus(
     request: Request,
     engine: EngineDep,
     settings: Annotated[Settings, Depends(settings_of)],
@@ -70,11 +79,15 @@ def upload_corpus(
     wait: bool = False,
 ):
     """Ingest files (and/or pasted ``text``) as one corpus. With ``wait=1`` answer 201 with the summary once
-    stored; otherwise 202 with a job to poll at ``/api/jobs/{id}``.
+    stored, or 202 with the job if that takes longer than ``LEXIGROWTH_UPLOAD_WAIT_SECONDS`` (default 60);
+    otherwise 202 at once with a job to poll at ``/api/jobs/{id}``.
 
     ``kind`` says what the files hold: ``text`` (default), ``word-counts`` (CSV/TSV rows word, count),
     ``spectrum`` (rows frequency, types) or ``bundle`` (a file from ``/api/corpora/{id}/bundle``; its own
-    name is kept when ``name`` is empty)."""
+    name is kept when ``name`` is empty).
+
+    The route is a coroutine: copying the files and every store access run in the thread pool, and while
+    it waits for the task it holds no thread (``asyncio.sleep`` between two looks at the job)."""
     try:
         source_kind = exchange.check_kind(kind)
         if source_kind != "bundle" or name:
@@ -82,39 +95,50 @@ def upload_corpus(
         label_map = ingestion.parse_labels(labels)
         chosen = parse_profile(profile)
         describe = TextSource.from_path if source_kind == "text" else plain_file
-        upload = receive(files or [], text, settings.work_dir, settings.max_upload_mb, describe)
+        upload = await run_in_threadpool(
+            receive, files or [], text, settings.work_dir, settings.max_upload_mb, describe
+        )
     except INPUT_ERRORS as exc:
         raise input_error(exc) from exc
 
     member = request.state.viewer.member  # in lab mode, the uploader owns the corpus
+    params = tasks.ingest_params(
+        [(s.path, s.name) for s in upload.sources],
+        name,
+        label_map,
+        chosen,
+        scratch=upload.directory,
+        owner_id=member.id if member is not None else None,
+        source_kind=source_kind,
+    )
     try:
-        task = queue.enqueue(
-            engine,
-            tasks.INGEST,
-            tasks.ingest_params(
-                [(s.path, s.name) for s in upload.sources],
-                name,
-                label_map,
-                chosen,
-                scratch=upload.directory,
-                owner_id=member.id if member is not None else None,
-                source_kind=source_kind,
-            ),
-            size_hint=upload.total_bytes,
-            priority=tasks.UPLOAD_PRIORITY,
-        )
+        task = await run_in_threadpool(tasks.queue_upload, engine, params, upload.total_bytes)
     except BaseException:
         upload.cleanup()
         raise
-    task = jobs.submit(task)
-    if not wait:
-        return FiniteJSONResponse(jobs.job(task.id) | {"url": f"/api/jobs/{task.id}"}, status_code=202)
-    while not task.finished:
-        time.sleep(WAIT_POLL_SECONDS)
-        task = queue.get(engine, task.id)
+    task = await run_in_threadpool(jobs.submit, task)
+    if wait:
+        task = await wait_for(request, engine, task, settings.upload_wait_seconds)
+    if not (wait and task.finished):
+        job = await run_in_threadpool(jobs.job, task.id)
+        return FiniteJSONResponse(job | {"url": f"/api/jobs/{task.id}"}, status_code=202)
     if task.state == queue.FAILED:
         raise HTTPException(status_code=422, detail=task.message)
-    return with_warnings(store.summary(store.get_corpus(engine, task.corpus_id)))
+    corpus = await run_in_threadpool(store.get_corpus, engine, task.corpus_id)
+    return with_warnings(store.summary(corpus))
+
+
+async def wait_for(request: Request, engine: Engine, task: queue.TaskView, seconds: float) -> queue.TaskView:
+    """The task once finished, or as it stands after ``seconds`` or when the client has gone (the task goes
+    on); looks at it every ``WAIT_POLL_SECONDS`` at first, less often as it takes longer (at most every
+    ``WAIT_POLL_MAX_SECONDS``)."""
+    deadline = time.monotonic() + seconds
+    pause = WAIT_POLL_SECONDS
+    while not task.finished and time.monotonic() < deadline and not await request.is_disconnected():
+        await asyncio.sleep(min(pause, max(0.0, deadline - time.monotonic())))
+        pause = min(pause * 1.5, WAIT_POLL_MAX_SECONDS)
+        task = await run_in_threadpool(queue.get, engine, task.id) or task
+    return task
 
 
 @router.get("/jobs")

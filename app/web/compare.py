@@ -20,6 +20,7 @@ from pydantic import BaseModel, ConfigDict, Field
 from sqlalchemy.engine import Engine
 
 from app.services import comparisons as service
+from app.services import memo
 from app.store.comparisons import ComparisonNotFoundError
 from app.store.corpora import CorpusNotFoundError
 from app.web.api import MAX_CORPUS_ID
@@ -224,6 +225,7 @@ def _page(
 
     def build_context() -> dict[str, Any]:
         shown = snapshot()
+        memo.checkpoint()  # the figures are for nobody if everyone who asked has gone
         return {
             "snapshot": shown,
             "saved": slug is not None,

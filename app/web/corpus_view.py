@@ -12,7 +12,7 @@ from sqlalchemy.engine import Engine
 
 from app.core import planning
 from app.core.spectrum import Spectrum
-from app.services import modelling
+from app.services import memo, modelling
 from app.services.memo import RecentResults
 from app.store import corpora as store
 from app.store.tables import Corpus
@@ -178,7 +178,7 @@ def model_section(
                 for name in ("recommended", *report["fitted"])
             },
         }
-        for n in sizes
+        for n in memo.checked(sizes)  # each size costs every model's prediction: stop for nobody
     ]
     return {
         "models_error": None,
@@ -265,7 +265,8 @@ def corpus_context(
 
 def _section(damaged: dict[str, str], name: str, compute: Callable[[], Any], fallback: Any) -> Any:
     """``compute()``, or ``fallback`` with the reason recorded in ``damaged[name]`` when the stored data it
-    reads is damaged (``STORED_DATA_ERRORS``)."""
+    reads is damaged (``STORED_DATA_ERRORS``). Before it: stop if everyone who asked for this page has gone."""
+    memo.checkpoint()
     try:
         return compute()
     except STORED_DATA_ERRORS as exc:
@@ -291,6 +292,7 @@ def _derived_context(
     pairs = store.spectrum_pairs(engine, corpus_id)
     sizes = parse_sizes(sizes_text, tokens)
     planned = plan_section(engine, corpus_id, target, plan_model)
+    memo.checkpoint()  # between the sections: stop if everyone who asked for this page has gone
     horizon = int(max(tokens * horizon_factor, tokens + 1))
     marker = None
     if planned["plan"]:
@@ -299,6 +301,7 @@ def _derived_context(
         if answer <= horizon:
             marker = (answer, f"target reached: {answer:,.0f} tokens")
     models = model_section(engine, corpus_id, tokens, horizon, sizes)
+    memo.checkpoint()
 
     def spectrum_section() -> dict[str, Any]:
         dense = dict(Spectrum.from_pairs(pairs).pairs())

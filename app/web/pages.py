@@ -3,9 +3,11 @@
 from __future__ import annotations
 
 import gzip
+import logging
 from collections.abc import Callable, Hashable
 from typing import Annotated, Any
 
+from anyio import from_thread
 from fastapi import APIRouter, Depends, Request
 from fastapi.responses import HTMLResponse, Response
 from sqlalchemy.engine import Engine
@@ -13,7 +15,7 @@ from sqlalchemy.engine import Engine
 from app.config import TEMPLATES_DIR
 from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import estimator, library, modelling
+from app.services import estimator, library, memo, modelling
 from app.services.jobs import Dispatcher
 from app.services.memo import RecentResults
 from app.store import corpora as store
@@ -25,6 +27,7 @@ from app.web.glossary import GLOSSARY
 from app.web.templating import make_templates
 
 router = APIRouter(include_in_schema=False)
+log = logging.getLogger("lexigrowth.pages")
 templates = make_templates(TEMPLATES_DIR)
 templates.env.globals["glossary"] = GLOSSARY
 templates.env.globals["plotly_map_style_id"] = assets.plotly_assets()[2]
@@ -40,19 +43,45 @@ RENDERED_PAGES: RecentResults[bytes] = RecentResults(256)
 they show (see ``render_kept``)."""
 
 
+CLIENT_GONE = 499
+"""The status of a request whose client closed the connection before its page was computed (what nginx
+logs in that case; no client receives it)."""
+
+
+def client_gone(request: Request) -> memo.Gone:
+    """Whether the client of ``request`` has closed its connection, asked from the route's thread (the
+    server's event loop is asked, as ``Request.is_disconnected`` needs)."""
+
+    def gone() -> bool:
+        try:
+            return from_thread.run(request.is_disconnected)
+        except RuntimeError:  # not in a thread of the server's pool: nobody to ask
+            return False
+
+    return gone
+
+
 def render_kept(
     request: Request, name: str, version: Hashable, build_context: Callable[[], dict[str, Any]]
 ) -> Response:
     """A page rendered (and compressed) once per address, viewer (``Viewer.page_key``) and ``version``:
     the caller's key of everything else the page depends on (corpus counts, model-report stamps, names
-    and labels...). The page's context is built only when the page is rendered."""
+    and labels...). The page's context is built only when the page is rendered, and not at all (or not to
+    its end) when the client has gone (``app.services.memo``)."""
     key = (name, str(request.url), request.state.viewer.page_key(), version)
 
     def rendered() -> bytes:
-        html = templates.get_template(name).render({"request": request, **build_context()})
+        context = build_context()
+        memo.checkpoint()  # computed for nobody if every request that asked for it has gone meanwhile
+        html = templates.get_template(name).render({"request": request, **context})
         return gzip.compress(html.encode(), GZIP_LEVEL, mtime=0)
 
-    page = RENDERED_PAGES.get(key, rendered)
+    try:
+        with memo.for_client(client_gone(request)):
+            page = RENDERED_PAGES.get(key, rendered)
+    except memo.ClientGone:
+        log.info("%s: its client had gone; not computed (or not to its end)", request.url.path)
+        return Response(status_code=CLIENT_GONE)  # nobody reads it
     if "gzip" in request.headers.get("accept-encoding", ""):
         # already compressed: the gzip middleware passes an answer with a content-encoding through
         headers = {"content-encoding": "gzip", "vary": "Accept-Encoding"}

@@ -66,7 +66,7 @@ def start_server(data_dir: Path, extra_env: dict[str, str] | None = None):
     deadline = time.monotonic() + 90
     while True:
         try:
-            if get_json(f"{base}/api/health") == {"status": "ok"}:
+            if get_json(f"{base}/api/health")["status"] == "ok":
                 return process, base
         except OSError:
             if process.poll() is not None or time.monotonic() > deadline:

@@ -2,13 +2,16 @@
 
 Against the real server (``lexigrowth serve`` with its task worker): forty page requests that each need
 computing, all given up by their clients after 0.2 s, leave the server answering at once; the page of a
-corpus without hapax legomena shows the reason its models failed without trying them again.
+corpus without hapax legomena shows the reason its models failed without trying them again; pages whose
+clients have gone are not computed to their end (the server's CPU time tells).
 """
 
 from __future__ import annotations
 
+import os
 import time
 from concurrent.futures import ThreadPoolExecutor
+from pathlib import Path
 
 import httpx
 import pytest
@@ -82,3 +85,59 @@ def test_abandoned_page_requests_and_an_unfittable_corpus_leave_the_server_answe
         form, seconds = timed_get(f"{server.base_url}/upload")
         assert form.status_code == 200 and seconds < ANSWER_SECONDS, seconds
     assert "Traceback" not in server.log()
+
+
+ABANDONED_PAGES = 8
+CLOCK_TICKS = os.sysconf("SC_CLK_TCK") if hasattr(os, "sysconf") else 100
+
+
+def cpu_seconds(pid: int) -> float:
+    """User and system CPU time of process ``pid``: fields 14 and 15 of /proc/PID/stat, in clock ticks
+    (proc(5))."""
+    fields = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()
+    return (int(fields[11]) + int(fields[12])) / CLOCK_TICKS
+
+
+def heavy_page(base_url: str, corpus_id: int, variant: int) -> str:
+    """A corpus page with a prediction table at 29 sizes (every model at each): its own settings, so that
+    no kept page answers it."""
+    sizes = ",".join(str(1000 * k + variant) for k in range(1, 30))
+    return f"{base_url}/corpora/{corpus_id}?horizon={3 + variant}&sizes={sizes}"
+
+
+@pytest.mark.slow
+@pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc (Linux)")
+def test_pages_whose_clients_have_gone_are_not_computed_to_their_end(tmp_path):
+    text = write_text(tmp_path / "text.txt", 300_000, new_word_every=3, min_letters=4, random_state=3)
+    with (
+        running_server(tmp_path / "data") as server,
+        httpx.Client(base_url=server.base_url, timeout=120) as http,
+    ):
+        with text.path.open("rb") as f:
+            stored = http.post("/api/corpora?wait=1", data={"name": "medium"}, files={"files": ("m.txt", f)})
+        assert stored.status_code == 201, stored.text
+        corpus_id = stored.json()["id"]
+        assert models_status(http, corpus_id) == "ready"
+        http.get(f"/corpora/{corpus_id}")  # the page's shared parts (random-order band...) are computed
+        pid = server.process.pid
+
+        before = cpu_seconds(pid)
+        assert httpx.get(heavy_page(server.base_url, corpus_id, 0), timeout=120).status_code == 200
+        one_page = cpu_seconds(pid) - before
+
+        def abandon(variant: int) -> bool:
+            try:
+                httpx.get(heavy_page(server.base_url, corpus_id, variant), timeout=0.1)
+            except httpx.TimeoutException:
+                return True
+            return False
+
+        before = cpu_seconds(pid)
+        with ThreadPoolExecutor(ABANDONED_PAGES) as pool:
+            given_up = sum(pool.map(abandon, range(1, ABANDONED_PAGES + 1)))
+        time.sleep(5 + 2 * one_page)  # long enough for the pages to be computed, had they been
+        spent = cpu_seconds(pid) - before
+    print(f"one page {one_page:.2f} s of CPU; {given_up} abandoned pages then cost {spent:.2f} s")
+    assert given_up == ABANDONED_PAGES
+    # computed to their end they would cost about ABANDONED_PAGES * one_page (8 x 0.6-1.5 s here)
+    assert spent < 0.25 * ABANDONED_PAGES * one_page, (spent, one_page)

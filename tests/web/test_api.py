@@ -25,7 +25,10 @@ def upload(client, name: str, content: bytes, filename: str = "speech.txt", **fo
 
 
 def test_health(client):
-    assert client.get("/api/health").json() == {"status": "ok"}
+    health = client.get("/api/health").json()
+    # tasks run in the requesting thread here (no worker process): nothing queued, nothing waiting
+    assert health["status"] == "ok" and health["problems"] == [] and health["worker"] is None
+    assert health["queue"] == {"running": 0, "queued": 0, "oldest_queued_seconds": None}
 
 
 def test_upload_summary_spectrum_growth_round_trip(client):
