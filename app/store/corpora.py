@@ -235,14 +235,7 @@ def save_corpus(
             ((cid, share, m, v, n) for share, (n, pairs) in record.prefix_spectra.items() for m, v in pairs),
         )
         for kind, payload in (results or {}).items():
-            session.add(
-                CachedResult(
-                    corpus_id=cid,
-                    kind=kind,
-                    program_version=results_version,
-                    payload_json=json.dumps(payload),
-                )
-            )
+            session.add(_cached_result(cid, kind, results_version, payload))
         tasks.confirm_in(session)  # a task that lost its lease meanwhile stores nothing (rolled back)
         return int(cid)
 
@@ -416,14 +409,14 @@ def store_cached_result(
         session.execute(
             delete(CachedResult).where(CachedResult.corpus_id == corpus_id, CachedResult.kind == kind)
         )
-        session.add(
-            CachedResult(
-                corpus_id=corpus_id,
-                kind=kind,
-                program_version=program_version,
-                payload_json=json.dumps(payload),
-            )
-        )
+        session.add(_cached_result(corpus_id, kind, program_version, payload))
+
+
+def _cached_result(corpus_id: int, kind: str, program_version: str, payload: dict) -> CachedResult:
+    """The row keeping one computed result of a corpus (``payload`` as JSON) under the code that made it."""
+    return CachedResult(
+        corpus_id=corpus_id, kind=kind, program_version=program_version, payload_json=json.dumps(payload)
+    )
 
 
 def update_corpus(

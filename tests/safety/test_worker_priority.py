@@ -65,7 +65,8 @@ def test_every_thread_of_the_task_worker_runs_at_a_lower_cpu_priority_than_its_s
                 threads = thread_niceness(health["pid"])
                 break
             time.sleep(0.1)
-        # main thread, two lanes and the threads of the numerical libraries (at least one on 2 cores)
-        assert len(threads) >= 4, threads
+        # main thread and two lanes at least; the numerical libraries add theirs on a machine with several
+        # cores (none on one core), and each is read too
+        assert len(threads) >= 3, threads
         assert set(threads.values()) == {expected}, (server_nice, threads)
         assert thread_niceness(server.process.pid)[server.process.pid] == server_nice  # the server: as it was

@@ -113,14 +113,22 @@ def sectioned(started: threading.Event, release: threading.Event, sections: list
     return compute
 
 
-def test_a_shared_computation_is_abandoned_when_all_its_requests_have_gone():
+def two_requests_for_one_page(pool: ThreadPoolExecutor, sections: list[str]):
+    """The first request starts the page's sectioned computation, a second one waits for it; (first
+    client, second client, release, first's future, second's future)."""
     results: RecentResults[int] = RecentResults(4)
-    started, release, sections = threading.Event(), threading.Event(), []
+    started, release = threading.Event(), threading.Event()
     first, second = Client(), Client()
+    computing = pool.submit(ask, results, "page", sectioned(started, release, sections), first)
+    assert started.wait(10)
+    waiting = pool.submit(ask, results, "page", sectioned(started, release, sections), second)
+    return results, first, second, release, computing, waiting
+
+
+def test_a_shared_computation_is_abandoned_when_all_its_requests_have_gone():
+    sections: list[str] = []
     with ThreadPoolExecutor(2) as pool:
-        computing = pool.submit(ask, results, "page", sectioned(started, release, sections), first)
-        assert started.wait(10)
-        waiting = pool.submit(ask, results, "page", sectioned(started, release, sections), second)
+        results, first, second, release, computing, waiting = two_requests_for_one_page(pool, sections)
         second.leave()
         with pytest.raises(ClientGone):  # the waiting request stops waiting without the result
             waiting.result(timeout=memo.WAIT_SLICE * 4)
@@ -133,13 +141,9 @@ def test_a_shared_computation_is_abandoned_when_all_its_requests_have_gone():
 
 
 def test_a_shared_computation_goes_on_while_one_of_its_requests_waits():
-    results: RecentResults[int] = RecentResults(4)
-    started, release, sections = threading.Event(), threading.Event(), []
-    first, second = Client(), Client()
+    sections: list[str] = []
     with ThreadPoolExecutor(2) as pool:
-        computing = pool.submit(ask, results, "page", sectioned(started, release, sections), first)
-        assert started.wait(10)
-        waiting = pool.submit(ask, results, "page", sectioned(started, release, sections), second)
+        _, first, _, release, computing, waiting = two_requests_for_one_page(pool, sections)
         time.sleep(0.1)  # the second request waits for the first one's computation
         first.leave()
         release.set()
