@@ -11,8 +11,9 @@ Scaling types and legomena by the same factor keeps the model's shares V_k / V, 
 coherent. The range is the exact random-sample standard deviation (+-Z90 sd) at or below N and the
 model's ``ErrorBand`` above.
 
-Coherence: any spectrum has V_1 + ... + V_k <= V for every k. ``incoherence`` says where a prediction
-breaks that, so that it is refused instead of shown.
+Coherence: any spectrum has V_1 + ... + V_k <= V for every k. ``incoherence`` (one of the rules of
+``app.core.validity``, imported here) says where a prediction breaks that, so that it is refused instead of
+shown.
 """
 
 from __future__ import annotations
@@ -25,26 +26,9 @@ import numpy as np
 from app.core.interpolation import expected_spectrum, expected_types, variance_types
 from app.core.models.base import Z90, ArrayLike, Predictor, as_output
 from app.core.spectrum import Spectrum
+from app.core.validity import incoherence
 
-COHERENCE_TOLERANCE = 1e-9
-"""Relative rounding allowed before a spectrum is called incoherent."""
-
-
-def incoherence(types: float, legomena: np.ndarray) -> str | None:
-    """The reason why (V, V_1..V_K) cannot be a spectrum, or None: every value finite and non-negative,
-    and V_1 + ... + V_k <= V for every k."""
-    values = np.concatenate(([types], np.asarray(legomena, dtype=float)))
-    if not np.all(np.isfinite(values)) or np.any(values < 0):
-        return "it gives negative or non-finite expectations"
-    partial = np.cumsum(legomena)
-    over = np.flatnonzero(partial > types * (1 + COHERENCE_TOLERANCE) + COHERENCE_TOLERANCE)
-    if over.size:
-        k = int(over[0]) + 1
-        return (
-            f"it predicts more legomena than types (V_1 + ... + V_{k} = {partial[k - 1]:,.1f} > "
-            f"V = {types:,.1f})"
-        )
-    return None
+__all__ = ["Anchored", "incoherence"]
 
 
 def _between_whole_sizes(f, n: float) -> float:
