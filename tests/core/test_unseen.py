@@ -75,7 +75,7 @@ def euler_transform_written_out(spectrum: Spectrum, t: float, terms: int) -> flo
     )
 
 
-@pytest.mark.parametrize(("t", "terms"), [(0.5, 4), (1.0, 10), (2.0, 10), (5.0, 7)])
+@pytest.mark.parametrize(("t", "terms"), [(0.5, 4), (1.0, 10), (2.0, 10), (4.5, 7)])
 def test_efron_thisted_is_the_truncated_euler_transform(t: float, terms: int) -> None:
     # Efron & Thisted (1976): Euler's transformation of the Good-Toulmin series, written out independently
     reference = euler_transform_written_out(BUTTERFLIES, t, terms)
@@ -122,16 +122,24 @@ def relative_rmse(errors: list[float], truths: list[float]) -> float:
     return math.sqrt(np.mean(np.square(errors))) / np.mean(truths)
 
 
+def plain_series(spectrum: Spectrum, t: float) -> float:
+    """U(t) = -sum_m (-t)^m V_m (Good & Toulmin 1956), written out term by term."""
+    return -sum((-t) ** int(m) * int(v) for m, v in zip(spectrum.m, spectrum.vm, strict=True))
+
+
 def test_smoothed_good_toulmin_beats_plain_on_simulated_population(simulated_samples) -> None:
     # Orlitsky, Suresh & Wu (2016): at t = 3 plain Good-Toulmin explodes while both smoothings stay within
-    # a few percent of the truth (relative RMSE bound 15%: common practice for "accurate" here)
+    # a few percent of the truth (relative RMSE bound 15%: common practice for "accurate" here); t = 3 lies
+    # within log_10 N = 3.7, so the smoothed estimates are given, and beyond t = 1, so the plain one is not
     samples, t, _ = simulated_samples
     truths = [truth for _, truth in samples]
     for kind in ("binomial", "poisson"):
         errors = [smoothed_good_toulmin(s, t, kind).value - truth for s, truth in samples]
         assert relative_rmse(errors, truths) < 0.15
-    plain = np.array([good_toulmin(s, t).value - truth for s, truth in samples])
+    plain = np.array([plain_series(s, t) - truth for s, truth in samples])
     assert np.median(np.abs(plain)) > 100 * np.mean(truths)
+    refused = [good_toulmin(s, t) for s, _ in samples]
+    assert all(e.value is None and "t <= 1 (Good & Toulmin 1956)" in e.not_applicable for e in refused)
 
 
 def test_binomial_truncation_recalled_from_memory_is_near_optimal(simulated_samples) -> None:
@@ -163,8 +171,16 @@ def test_summary_lists_every_estimator_with_its_validity() -> None:
         "Good-Toulmin",
     ]
     assert len(rows) == 8
-    assert all(row.validity and math.isfinite(row.value) for row in rows)
+    # each row is a finite number or, exclusively, the reason it is not applicable
+    assert all(row.validity and ((row.value is None) != (row.not_applicable is None)) for row in rows)
+    assert all(row.value is None or math.isfinite(row.value) for row in rows)
     assert {row.t for row in rows if row.t is not None} == {1.0, 2.0, 5.0}
+    # N = 3306: smoothed Good-Toulmin reaches t = log_10 3306 = 3.52 (Orlitsky, Suresh & Wu 2016, with our
+    # constant), the Euler transformation t < 5 (Good & Toulmin 1956): at t = 5 both are not applicable
+    at_five = {row.method.split(" (")[0]: row for row in rows if row.t == 5.0}
+    assert "log_10 N = 3.52" in at_five["smoothed Good-Toulmin"].not_applicable
+    assert "t < 5" in at_five["Efron-Thisted"].not_applicable
+    assert all(row.value is not None for row in rows if row.t in (None, 1.0, 2.0))
 
 
 def test_rejects_bad_arguments() -> None:
