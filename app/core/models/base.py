@@ -44,6 +44,7 @@ from app.core.models.goodness import (
     whitening,
 )
 from app.core.spectrum import Spectrum
+from app.core.validity import first_problem, parameter_problem
 
 Params = dict[str, Any]
 """Named parameters: numbers, or sequences of numbers for a model described by a histogram."""
@@ -58,6 +59,12 @@ to: on fewer the spectrum holds a handful of classes, the fit does not identify 
 costs much of the time a draft's report may take (a choice of ours)."""
 GROWTH_CHECK_FACTOR = 100
 """Fitted parameters are checked for sound expectations up to this many times the corpus size."""
+EDGE_SHARE = 1e-3
+"""A parameter whose domain ends are limiting cases of its model (``VocabularyModel.edge_parameters``) has
+ended at the edge when it lies within this share of its domain's width from an end. The least-squares fit
+runs in logit coordinates, where such an end is at infinity: a fit beyond |logit| = 6.9 has drifted towards
+the limit instead of finding an interior minimum (a choice of ours; the fits of the demo corpora and of real
+text in the tests end either well inside, at most 0.99 of the way, or within 1e-6 of the end)."""
 
 
 def _minimise(residuals: Callable[[np.ndarray], np.ndarray], starts: list[np.ndarray]) -> np.ndarray | None:
@@ -245,7 +252,16 @@ class FittedModel(BandedPredictions):
         """E[V_k(n)] for k = 1..k_max (index 0 holds k = 1)."""
         return np.asarray(self.model.expected_spectrum(n, np.arange(1, k_max + 1), self.params), dtype=float)
 
+    @cached_property
+    def degenerate(self) -> str | None:
+        """Why these parameters are no result although the fit ended (``VocabularyModel.degeneracy``), or
+        None. A degenerate fit predicts nothing beyond the corpus size and shows no parameters; the
+        recommendation gives it no weight."""
+        return self.model.degeneracy(self.params, self.tokens)
+
     def as_dict(self) -> dict[str, Any]:
+        """The fit as JSON. ``params`` and ``arrays`` are where the fit ended, kept so that the predictor can
+        be rebuilt; when ``degenerate`` holds a reason they are no result, and pages show the reason."""
         return {
             "model": self.model.name,
             "title": self.model.title,
@@ -254,6 +270,7 @@ class FittedModel(BandedPredictions):
                 k: np.asarray(v, dtype=float).tolist() for k, v in self.params.items() if np.ndim(v) > 0
             },
             "tokens": self.tokens,
+            "degenerate": self.degenerate,
             "goodness_of_fit": self.goodness_of_fit.as_dict(),
             "band": None if self.band is None else self.band.as_dict(),
         }
@@ -262,9 +279,10 @@ class FittedModel(BandedPredictions):
 class VocabularyModel(ABC):
     """A vocabulary model: a formula for E[V(n)] and E[V_m(n)] with named parameters.
 
-    Subclasses set ``name`` (API name), ``title`` (human name), ``parameter_names`` and ``bounds`` (open
-    interval of each parameter), and implement ``expected_types``, ``expected_spectrum`` and, when they use
-    the shared fit, ``initial_guesses``. Sizes ``n`` and frequencies ``m`` broadcast like NumPy arrays.
+    Subclasses set ``name`` (API name), ``title`` (human name), ``parameter_names`` and ``bounds`` (the
+    domain of each parameter: an open interval; the shared fit maps it to the real line), and implement
+    ``expected_types``, ``expected_spectrum`` and, when they use the shared fit, ``initial_guesses``. Sizes
+    ``n`` and frequencies ``m`` broadcast like NumPy arrays.
     """
 
     name: ClassVar[str]
@@ -274,6 +292,10 @@ class VocabularyModel(ABC):
     formula: ClassVar[str] = ""
     finite_population: ClassVar[bool] = False
     bounds: ClassVar[dict[str, tuple[float, float]]] = {}
+    edge_parameters: ClassVar[tuple[str, ...]] = ()
+    """Parameters whose domain ends are limiting cases the fit can run to (an exponent at 0 or 1, a shape at
+    -1 or 0): a fit ending within EDGE_SHARE of such an end is degenerate. Other ends (a probability near 0)
+    are ordinary values."""
     min_tokens: ClassVar[int] = 0
     """Fewest tokens the model is fitted to (its parameters are not identified on fewer)."""
 
@@ -288,6 +310,41 @@ class VocabularyModel(ABC):
     def population_size(self, params: Mapping[str, float]) -> float | None:
         """S, the number of types in the whole population, or None when the model's population is infinite
         (vocabulary grows without bound)."""
+        return None
+
+    def degeneracy(self, params: Mapping[str, Any], tokens: int) -> str | None:
+        """Why ``params`` fitted at ``tokens`` tokens are no result, or None. In order:
+
+        1. every parameter finite and inside its open domain ``bounds``, and no edge parameter within
+           EDGE_SHARE of an end of its domain (``app.core.validity.parameter_problem``);
+        2. a finite population holds at least one type and at least the E[V(N)] types expected at the
+           fitted size (E[V(n)] rises towards the population as n grows);
+        3. the model's own impossibilities (``derived_problem``), such as a probability above 1.
+        """
+        problem = first_problem(
+            parameter_problem(
+                key, params[key], self.bounds[key], EDGE_SHARE if key in self.edge_parameters else None
+            )
+            for key in self.parameter_names
+        )
+        if problem:
+            return problem
+        if self.finite_population:
+            with np.errstate(all="ignore"):
+                population = self.population_size(params)
+                expected = float(self.expected_types(float(tokens), params))
+            if population is None or not math.isfinite(population) or population < 1:
+                return f"its population of {population} types is not a finite number of at least one type"
+            if population < expected * (1 - 1e-6):
+                return (
+                    f"its population of {population:,.1f} types is smaller than the {expected:,.1f} types it "
+                    f"expects in {tokens:,} tokens"
+                )
+        return self.derived_problem(params, tokens)
+
+    def derived_problem(self, params: Mapping[str, Any], tokens: int) -> str | None:
+        """A quantity derived from the parameters that no population can have (for a model to override),
+        or None."""
         return None
 
     def initial_guesses(self, spectrum: Spectrum) -> list[Params]:

@@ -48,6 +48,16 @@ class FiniteZipfMandelbrot(VocabularyModel):
         "max_probability": "B: the probability of the most frequent type",
     }
     finite_population = True
+    bounds = {"exponent": (0.0, 1.0), "min_probability": (0.0, 1.0), "max_probability": (0.0, 1.0)}
+    """The domain (its own coordinates fit a, B and A / B; see ``to_unconstrained``)."""
+    edge_parameters = ("exponent",)
+
+    def derived_problem(self, params: Mapping[str, float], tokens: int) -> str | None:
+        """The rarest type cannot be more probable than the most frequent one: A < B."""
+        a, A, B = self._abc(params)
+        if not A < B:
+            return f"its min probability {A:.4g} is not below its max probability {B:.4g}"
+        return None
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
         a, A, B = self._abc(params)

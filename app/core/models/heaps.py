@@ -47,6 +47,9 @@ class Heaps(VocabularyModel):
         "scale": "K: the number of types at n = 1 on the fitted line",
         "exponent": "beta, 0 < beta < 1: the slope of log types against log tokens (also the hapax share)",
     }
+    bounds = {"scale": (0.0, np.inf), "exponent": (0.0, 1.0)}
+    """beta <= 0 would let the types fall or stay, beta >= 1 grow faster than the tokens; the legomena's
+    Gamma(1 - beta) needs beta < 1."""
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
         return as_output(params["scale"] * np.asarray(n, dtype=float) ** params["exponent"], n)

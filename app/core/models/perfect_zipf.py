@@ -135,6 +135,18 @@ class PerfectZipf(VocabularyModel):
     }
     bounds = {"zipf_size": (0.0, np.inf), "zipf_types": (0.0, np.inf)}  # used by the minimum chi-square
 
+    def derived_problem(self, params: Mapping[str, float], tokens: int) -> str | None:
+        """At the Zipf size Z the corpus holds W / 2 hapax legomena (V_1 = W / (1 x 2)), one token each, so
+        Z >= W / 2. A smaller Z (a hapax share near 0, as in a saturated vocabulary, sends Z towards 0) is
+        a corpus with fewer tokens than its own hapax legomena."""
+        size, types = params["zipf_size"], params["zipf_types"]
+        if size < types / 2:
+            return (
+                f"its Zipf size of {size:.3g} tokens is smaller than the {types / 2:,.1f} hapax legomena its "
+                "own spectrum holds at that size"
+            )
+        return None
+
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
         return as_output(
             params["zipf_types"] * growth_factor(np.asarray(n, dtype=float) / params["zipf_size"]), n

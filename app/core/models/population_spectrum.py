@@ -150,6 +150,21 @@ class PopulationSpectrum(VocabularyModel):
         "discrepancy": "the weighted distance between the observed and the recovered spectrum (the fit's minimum)",
     }
     finite_population = True
+    bounds = {"lower_types": (0.0, np.inf), "upper_types": (0.0, np.inf), "discrepancy": (-np.inf, np.inf)}
+    """Type counts are positive; the discrepancy, a weighted sum of absolute values, is checked for being
+    >= 0 in ``derived_problem`` (0 is a perfect fit, not the edge of an open domain)."""
+
+    def derived_problem(self, params: Mapping[str, Any], tokens: int) -> str | None:
+        """The fewest types consistent with the spectrum cannot exceed the most; the discrepancy is >= 0;
+        every type count of the histogram is >= 0."""
+        if not params["lower_types"] <= params["upper_types"] * (1 + 1e-9):
+            return f"its lower population {params['lower_types']:,.1f} exceeds its upper {params['upper_types']:,.1f}"
+        if params["discrepancy"] < 0:
+            return f"its discrepancy {params['discrepancy']:.4g} is negative"
+        histogram = np.concatenate([params["lower"], params["upper"], params["frequent_types"]])
+        if np.any(np.asarray(histogram, dtype=float) < -1e-9 * max(params["upper_types"], 1.0)):
+            return "its histogram holds a negative number of types"
+        return None
 
     def estimate(self, spectrum: Spectrum, m_max: int = 15) -> Params:
         """Three linear programs (``recover``) instead of the shared least squares."""

@@ -93,7 +93,8 @@ class ZipfMandelbrot(VocabularyModel):
         "exponent": "a, 0 < a < 1: how fast the number of types grows as probabilities fall (larger = more rare types)",
         "max_probability": "B: the probability of the most frequent type, where the power law ends",
     }
-    bounds = {"exponent": (0.0, 1.0), "max_probability": (0.0, np.inf)}
+    bounds = {"exponent": (0.0, 1.0), "max_probability": (0.0, 1.0)}
+    edge_parameters = ("exponent",)
 
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
         return power_law_types(n, params["exponent"], 0.0, params["max_probability"])
