@@ -29,6 +29,7 @@ from app.core.interpolation import Z95, expected_spectrum, types_band
 from app.core.models import Predictor
 from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
+from app.core.validity import checked_prediction, range_within_possible
 from app.services import modelling
 from app.services.export import table_text
 from app.services.memo import RecentResults
@@ -80,6 +81,7 @@ TABLE_COLUMNS = (
     "hd_d",
     "mtld",
     "yule_k",
+    "not_applicable",
 )
 UNTESTED_REASON = {
     "model-based": "model-based value: its range is a backtest error, not a sampling spread",
@@ -256,6 +258,7 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
         "mtld": _num(member.text_order.get("mtld")),
         "yule_k": _num(richness.yule_k(spectrum)),
         "extrapolation_factor": n0 / corpus.tokens,
+        "not_applicable": None,
     }
     if n0 <= corpus.tokens:
         matched = size_matched([spectrum], n0)[0]
@@ -274,21 +277,24 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
             "ttr_sd": _num(matched.sd_population / n0),
             "legomena": _nums(legomena),
         }
-    predictor = member.predictor
-    values = None
-    if predictor is not None:
-        values = (predictor.types(n0), predictor.types_low(n0), predictor.types_high(n0))
-        legomena = predictor.spectrum(n0, LEGOMENA_K)
-    if values is None or not math.isfinite(values[0]):
+    # beyond N the checked prediction of the core (app.core.validity), as the corpus page shows it
+    checked = None if member.predictor is None else checked_prediction(member.predictor, n0, LEGOMENA_K)
+    if checked is None or checked.not_applicable:
+        reason = (
+            f"no model could extrapolate this corpus: {member.model_failure or 'no finite value'}"
+            if checked is None
+            else f"the recommended model's prediction is not applicable: {checked.not_applicable}"
+        )
         return row | {
             "basis": "unavailable",
-            "method": f"no model could extrapolate this corpus: {member.model_failure or 'no finite value'}",
+            "method": reason,
+            "not_applicable": reason,
             **dict.fromkeys(
                 ("types", "types_sd", "types_sd_random", "types_low", "types_high", "hapaxes"), None
             ),
             **dict.fromkeys(("dis_legomena", "ttr", "ttr_sd", "legomena"), None),
         }
-    types, low, high = values
+    types, low, high, legomena = checked.types, checked.types_low, checked.types_high, checked.legomena
     return row | {
         "basis": "model-based",
         "method": "recommended model, extrapolated and anchored at the corpus's own types; nominal 90% range",
@@ -402,12 +408,16 @@ def _growth(engine: Engine, member: _Member, horizon: int, random_order: dict[st
     model = None
     if member.predictor is not None and horizon > corpus.tokens:
         sizes = np.unique(np.rint(np.geomspace(corpus.tokens, horizon, MODEL_POINTS))).astype(float)
+        low, high = member.predictor.types_low(sizes), member.predictor.types_high(sizes)
+        # ends kept within the types the sizes can hold (app.core.validity); an upper end without limit
+        # stays missing rather than reaching the bound of one new type per token, which flattens the plot
+        inside_low, inside_high = range_within_possible(sizes, low, high, corpus.tokens, corpus.types)
         model = {
             "name": modelling.RECOMMENDED,
             "tokens": sizes.astype(np.int64).tolist(),
             "types": _nums(member.predictor.types(sizes)),
-            "low": _nums(member.predictor.types_low(sizes)),
-            "high": _nums(member.predictor.types_high(sizes)),
+            "low": _nums(inside_low),
+            "high": _nums(np.where(np.isfinite(high), inside_high, np.nan)),
         }
     return {
         "corpus_id": corpus.id,

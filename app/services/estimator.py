@@ -10,6 +10,7 @@ from app.core import planning
 from app.core.models import fit_from_totals
 from app.core.models.perfect_zipf import PerfectZipf
 from app.core.uniform import uniform_expected_types_closed_form, uniform_expected_types_exact
+from app.core.validity import first_problem, incoherence, types_problem
 
 LEGOMENA_SHOWN = 10
 CURVE_POINTS = 50
@@ -31,33 +32,54 @@ def estimate_from_totals(
     tokens: int, types: int, hapaxes: int | None, sizes: list[int], target: planning.Target | None = None
 ) -> dict[str, Any]:
     """Predicted legomena at the given size and type growth at ``sizes`` by the perfect-Zipf model; with a
-    ``target`` also the size at which the model reaches it (planning)."""
+    ``target`` also the size at which the model reaches it (planning).
+
+    Numbers pass the rules of ``app.core.validity``: when the fit is degenerate (``FittedModel.degenerate``,
+    e.g. a hapax share so small that the Zipf size falls below one token) the result holds the reason in
+    ``not_applicable`` and no numbers; a row whose types or legomena are impossible at its size (the formula
+    is a fitted curve that can give more types than tokens at tiny sizes) holds its own ``not_applicable``."""
     if types > tokens:
         raise ValueError("types cannot exceed tokens")
     if hapaxes is not None and not 0 < hapaxes < types:
         raise ValueError("hapax legomena must be more than 0 and fewer than the types")
     fitted = fit_from_totals(tokens, types, hapaxes)
-    rows = [
-        {
-            "tokens": n,
-            "types": float(fitted.types(n)),
-            "legomena": {str(k): float(v) for k, v in enumerate(fitted.spectrum(n, LEGOMENA_SHOWN), start=1)},
-            "extrapolated": n > tokens,
-        }
-        for n in sorted({tokens, *sizes})
-    ]
-    curve = np.unique(np.geomspace(max(1, tokens / 100), max([10 * tokens, *sizes]), CURVE_POINTS).round())
-    return {
+    out = {
         "input": {"tokens": tokens, "types": types, "hapaxes": hapaxes},
-        "curve": {"tokens": curve.tolist(), "types": np.asarray(fitted.types(curve), dtype=float).tolist()},
         "model": fitted.model.name,
-        "params": {k: float(v) for k, v in fitted.params.items()},
-        "zipf_size": float(fitted.params["zipf_size"]),
         "assumption": ASSUMPTION_WITH_HAPAXES
         if isinstance(fitted.model, PerfectZipf)
         else ASSUMPTION_TOTALS_ONLY,
-        "predictions": rows,
+        "not_applicable": None,
+    }
+    if fitted.degenerate:
+        reason = f"the perfect-Zipf fit to these totals is degenerate: {fitted.degenerate}"
+        empty = {"params": None, "zipf_size": None, "curve": None, "predictions": [], "plan": None}
+        return out | {"not_applicable": reason} | empty
+    curve = np.unique(np.geomspace(max(1, tokens / 100), max([10 * tokens, *sizes]), CURVE_POINTS).round())
+    curve_types = [  # a point whose types are impossible at its size is left out (null)
+        None if types_problem(n, v, tokens, types) else v
+        for n, v in zip(curve.tolist(), np.asarray(fitted.types(curve), dtype=float).tolist(), strict=True)
+    ]
+    return out | {
+        "curve": {"tokens": curve.tolist(), "types": curve_types},
+        "params": {k: float(v) for k, v in fitted.params.items()},
+        "zipf_size": float(fitted.params["zipf_size"]),
+        "predictions": [_row(fitted, n, tokens, types) for n in sorted({tokens, *sizes})],
         "plan": None if target is None else _plan(fitted, target),
+    }
+
+
+def _row(fitted, n: int, tokens: int, types: int) -> dict[str, Any]:
+    """One row of predictions at n tokens, or its reason for being not applicable."""
+    expected = float(fitted.types(n))
+    legomena = fitted.spectrum(n, LEGOMENA_SHOWN)
+    problem = first_problem((types_problem(n, expected, tokens, types), incoherence(expected, legomena)))
+    return {
+        "tokens": n,
+        "types": None if problem else expected,
+        "legomena": None if problem else {str(k): float(v) for k, v in enumerate(legomena, start=1)},
+        "extrapolated": n > tokens,
+        "not_applicable": problem,
     }
 
 

@@ -22,13 +22,14 @@ from app import core as core_package
 from app.config import PROGRAM_VERSION
 from app.core import planning, unseen
 from app.core import richness as richness_core
-from app.core.anchored import Anchored, incoherence
+from app.core.anchored import Anchored
 from app.core.backtest import Ensemble, backtest
 from app.core.interpolation import expected_spectrum, growth_band, types_band
 from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
 from app.core.models.base import RANGE_LEVEL, RANGE_METHOD
 from app.core.models.goodness import spectrum_misfit
 from app.core.spectrum import Spectrum
+from app.core.validity import RANGE_BOUNDS, checked_prediction
 from app.ingest import counts
 from app.store import corpora as store
 from app.store.tables import Corpus
@@ -325,7 +326,9 @@ def predict(
     At or below the corpus size N every model answers with the exact random-sample interpolation
     (hypergeometric; the corpus itself is the best model of its own samples), beyond N with the model
     anchored at the observed V (``app.core.anchored``); planning inverts exactly this. ``sample`` covers
-    n <= N only. A prediction that breaks V_1 + ... + V_k <= V is refused with the reason.
+    n <= N only. Every prediction passes the rules of ``app.core.validity.checked_prediction``: one that
+    breaks them (a degenerate fit beyond N, fewer types than the corpus holds, more legomena than types...)
+    comes with ``not_applicable`` giving the reason and null numbers, else ``not_applicable`` is null.
     ``loaded`` saves reloading the corpus's models when a page asks for many predictions.
     """
     if model not in MODEL_NAMES:
@@ -340,27 +343,23 @@ def predict(
             "choose a model to extrapolate"
         )
     anchored = _anchored(engine, corpus_id, model, spectrum, loaded)
-    types = float(anchored.types(tokens))
-    legomena = anchored.spectrum(tokens, LEGOMENA_SHOWN)
-    problem = incoherence(types, legomena)
-    if problem is not None:
-        raise PredictionError(f"model {model!r} cannot predict {tokens:,} tokens coherently: {problem}")
-    low, high = anchored.types_low(tokens), anchored.types_high(tokens)
-    sd = anchored.types_sd(tokens)
+    checked = checked_prediction(anchored, tokens, LEGOMENA_SHOWN)
     out = {
         "tokens": tokens,
         "model": model,
         "method": INTERPOLATION_METHOD if not extrapolated else anchored.predictor.title,
         "extrapolated": extrapolated,
-        "types": types,
-        "types_low": low,
-        "types_high": high,
+        "types": checked.types,
+        "types_low": checked.types_low,
+        "types_high": checked.types_high,
         "range": {
             "level": RANGE_LEVEL,
-            "method": INTERPOLATION_RANGE if not extrapolated else RANGE_METHOD,
+            "method": f"{INTERPOLATION_RANGE if not extrapolated else RANGE_METHOD}; {RANGE_BOUNDS}",
         },
-        "legomena": _legomena(legomena),
+        "legomena": None if checked.legomena is None else _legomena(checked.legomena),
+        "not_applicable": checked.not_applicable,
     }
+    sd = anchored.types_sd(tokens)
     if sd is not None:
         out["types_sd"] = sd
     return out
@@ -466,7 +465,9 @@ def random_sample_spectrum(engine: Engine, corpus_id: int, tokens: int, random_s
 
 def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = RECOMMENDED) -> dict[str, Any]:
     """The corpus size at which ``model`` reaches ``target``, with the range given by every other fitted
-    model and by the recommended model's backtest band (types targets)."""
+    model and by the recommended model's backtest band (types targets). A degenerate fit
+    (``FittedModel.degenerate``) answers only at or below the corpus size, where the exact interpolation
+    answers for it; beyond, its answer is the reason instead of a number."""
     corpus = store.get_corpus(engine, corpus_id)
     if model not in PLAN_MODELS:
         raise PredictionError(f"unknown model {model!r}; known: {', '.join(PLAN_MODELS)}")
@@ -477,32 +478,44 @@ def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = R
     # Planning inverts the prediction: exact interpolation up to N, the anchored model beyond.
     fitted = {name: Anchored(p, spectrum) for name, p in fitted_models.items()}
 
+    def degenerate(name: str) -> str | None:
+        reason = getattr(fitted_models[name], "degenerate", None)
+        return None if reason is None else f"its fit is degenerate: {reason}"
+
     def population(name: str) -> float | None:
-        if name == RECOMMENDED:
+        if name == RECOMMENDED or degenerate(name):
             return None
         p = fitted_models[name]
         size = p.model.population_size(p.params)
         # anchoring scales the model's types, and so its population, by V / E[V(N)]
         return None if size is None else size * fitted[name].scale()
 
+    def planned(name: str) -> float:
+        answer = planning.plan(fitted[name], target, population(name))
+        if answer > spectrum.tokens and degenerate(name):
+            raise PredictionError(degenerate(name))
+        return answer
+
     chao1 = unseen.chao1(spectrum).value
     try:
-        tokens = planning.plan(fitted[model], target, population(model))
+        tokens = planned(model)
     except planning.UnreachableTargetError as exc:
         extra = (
             f" (Chao1's lower bound of the total vocabulary: {chao1:,.0f} types)"
             if target.kind == "share"
             else ""
         )
-        raise planning.UnreachableTargetError(f"{exc}{extra}") from exc
+        raise planning.UnreachableTargetError(f"{degenerate(model) or exc}{extra}") from exc
+    except PredictionError as exc:
+        raise PredictionError(f"model {model!r} cannot plan beyond the corpus size: {exc}") from exc
     by_model: dict[str, Any] = {}
     for name in fitted:
         if name in ("perfect_zipf_totals",):
             continue
         try:
-            by_model[name] = planning.plan(fitted[name], target, population(name))
+            by_model[name] = planned(name)
         except (planning.UnreachableTargetError, ValueError, ArithmeticError) as exc:
-            by_model[name] = str(exc)
+            by_model[name] = degenerate(name) or str(exc)
     band: dict[str, float] = {}
     rec = fitted[RECOMMENDED]
     if target.kind == "types" and model == RECOMMENDED:

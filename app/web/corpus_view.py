@@ -12,6 +12,7 @@ from sqlalchemy.engine import Engine
 
 from app.core import planning
 from app.core.spectrum import Spectrum
+from app.core.validity import range_within_possible
 from app.services import memo, modelling
 from app.services.memo import RecentResults
 from app.store import corpora as store
@@ -137,11 +138,14 @@ def model_section(
     backtests, backtest_tips = _backtest_table(report)
     weights = report["recommended"]["weights"]
     misfit = modelling.misfits(loaded)
+    # Parameters as checked by the core: a degenerate fit shows its reason instead of its end point.
+    degenerate = {name: predictors[name].degenerate for name in report["fitted"]}
     rows = [
         {
             "name": name,
             "title": data["title"],
-            "params": data["params"],
+            "params": None if degenerate[name] else data["params"],
+            "not_applicable": degenerate[name] and f"degenerate fit: {degenerate[name]}",
             "gof": data["goodness_of_fit"],
             "backtests": backtests.get(name, {}),
             "weight": weights.get(name, {}).get("types"),
@@ -151,13 +155,13 @@ def model_section(
     ]
     columns = list(dict.fromkeys(label for row in rows for label in row["backtests"]))
     curve_x = np.unique(np.geomspace(max(1, tokens // 100), horizon, CURVE_POINTS).astype(np.int64))
+    shown = [n for n in predictors if n != "perfect_zipf_totals" and not degenerate.get(n)]
     curves = {
         name: (
             curve_x.tolist(),
-            np.asarray(p.types(curve_x.astype(float)), dtype=float).tolist(),
+            np.asarray(predictors[name].types(curve_x.astype(float)), dtype=float).tolist(),
         )
-        for name, p in predictors.items()
-        if name != "perfect_zipf_totals"
+        for name in shown
     }
     rec = predictors["recommended"]
     beyond = curve_x[curve_x >= tokens].astype(float)
@@ -166,8 +170,11 @@ def model_section(
         np.asarray(rec.types_high(beyond), dtype=float),
     )
     # The band's upper edge is unbounded once the backtest error reaches 100% (ErrorBand.limits): far out,
-    # e.g. at 600x a small corpus, the band ends there instead of reaching to infinity.
+    # e.g. at 600x a small corpus, the band ends there instead of reaching to infinity (or to its bound, one
+    # new type per token, which would flatten the plot). Its ends are kept within the types n tokens can
+    # hold (the core's rule: at least the corpus's own types).
     bounded = np.isfinite(low) & np.isfinite(high)
+    low, high = range_within_possible(beyond, low, high, tokens, loaded.spectrum.types)
     rec_band = (beyond[bounded].tolist(), low[bounded].tolist(), high[bounded].tolist())
     predictions = [
         {
@@ -192,11 +199,7 @@ def model_section(
         "recommended_band": report["recommended"]["band"],
         "curves": curves,
         "recommended_curve_band": rec_band,
-        "expected_at_corpus_size": {
-            name: p.spectrum(tokens, 20).tolist()
-            for name, p in predictors.items()
-            if name != "perfect_zipf_totals"
-        },
+        "expected_at_corpus_size": {name: predictors[name].spectrum(tokens, 20).tolist() for name in shown},
         "predictions": predictions,
     }
 

@@ -264,7 +264,7 @@ def estimate_page(request: Request):
         form=form,
         totals_errors=form.errors_of(*totals_fields),
         uniform_errors=form.errors_of("uniform_types", "repeats", "draws"),
-        growth_figure=estimate_figure(result) if result else None,
+        growth_figure=estimate_figure(result) if result and not result["not_applicable"] else None,
         json_url="/docs#/api/estimate_api_estimate_post",
     )
 
@@ -283,8 +283,8 @@ def estimate_figure(result: dict) -> dict:
         line={"color": style.colour, "width": 2, "dash": style.dash},
     )
     points = figures.line(
-        [r["tokens"] for r in rows],
-        [r["types"] for r in rows],
+        [r["tokens"] for r in rows if r["types"] is not None],
+        [r["types"] for r in rows if r["types"] is not None],
         "sizes of the table",
         figures.OBSERVED,
         mode="markers",

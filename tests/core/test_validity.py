@@ -179,6 +179,11 @@ def test_gigp_mass_above_one_is_the_density_integrated(b, c, g):
     below, _ = quad(lambda x: x * density(x), 0.0, 1.0, limit=200, points=[1e-6, 1e-4, 1e-2])
     assert mass_above_one(b, c, g) == pytest.approx(above, rel=1e-6, abs=1e-12)
     assert below + above == pytest.approx(1.0, rel=1e-6)
+    # a fit giving more than 1% of its tokens to types of probability above 1 is degenerate
+    fitted = FittedModel(MODELS["sichel"], {"rare_cutoff": b, "frequent_scale": c, "shape": g}, 50_000)
+    assert (fitted.degenerate is not None) == (above > 0.01)
+    if above > 0.01:
+        assert "probability would exceed 1" in fitted.degenerate
 
 
 def test_chao1_is_a_lower_bound_of_a_closed_population():
