@@ -221,3 +221,64 @@ def test_a_corpus_without_hapax_legomena_fails_its_models_once_with_a_reason(cli
     assert page.status_code == 200 and "no hapax legomena" in page.text
     exact = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 100, "model": "sample"})
     assert exact.status_code == 200
+
+
+def test_a_saturating_vocabulary_shows_no_impossible_number(client):
+    """A closed population of 600 types read until nearly every type is seen (V_1 < V_2, as in controlled
+    vocabularies and word lists): every number the API, the CSV and the page give is possible, or "not
+    applicable" with its reason (the rules of app.core.validity)."""
+    p = 1 / np.arange(1, 601)
+    counts = np.random.default_rng(1984).multinomial(12_600, p / p.sum())
+    spectrum = sorted(Counter(counts[counts > 0].tolist()).items())
+    content = "\n".join(f"{m}\t{v}" for m, v in spectrum).encode()
+    response = client.post(
+        "/api/corpora?wait=1",
+        data={"kind": "spectrum", "name": "saturating"},
+        files={"files": ("spectrum.tsv", content)},
+    )
+    assert response.status_code == 201, response.text
+    cid, N, V = response.json()["id"], response.json()["tokens"], response.json()["types"]
+    hapaxes = dict(spectrum)[1]
+    assert hapaxes < dict(spectrum)[2]
+
+    unseen = client.get(f"/api/corpora/{cid}/unseen").json()
+    for row in unseen:
+        assert (row["value"] is None) != (row["not_applicable"] is None), row
+        if row["value"] is not None and row["quantity"].startswith("new types"):
+            assert 0 <= row["value"] <= row["t"] * hapaxes  # E[U(t)] <= t E[V_1] (Poisson sampling)
+    assert any(row["not_applicable"] for row in unseen)
+
+    report = client.get(f"/api/corpora/{cid}/models").json()
+    assert all("degenerate" in fit for fit in report["fitted"].values())
+    assert "Zipf size" in report["fitted"]["perfect_zipf"]["degenerate"]
+    beyond = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 10 * N, "model": "perfect_zipf"})
+    assert beyond.status_code == 200
+    assert beyond.json()["types"] is None and "degenerate" in beyond.json()["not_applicable"]
+    within = client.get(
+        f"/api/corpora/{cid}/predict", params={"tokens": N // 2, "model": "perfect_zipf"}
+    ).json()
+    assert within["not_applicable"] is None and within["types_low"] <= within["types"] <= V
+    for model in ("recommended", "population_spectrum", "heaps"):
+        body = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 3 * N, "model": model}).json()
+        if body["not_applicable"] is None:  # beyond N: V <= low <= types <= high <= V + (n - N)
+            assert V <= body["types_low"] <= body["types"] <= body["types_high"] <= V + 2 * N, model
+
+    page = client.get(f"/corpora/{cid}").text
+    assert "not applicable — " in page and "degenerate fit: " in page
+    assert not re.search(r'<td class="num">-\d', page)  # no negative number in any table cell
+
+
+def test_estimator_refuses_a_degenerate_perfect_zipf_fit_with_its_reason(client):
+    # the review's totals: 270,457 tokens, 5,563 types and a hapax share of 0.4% put the Zipf size below
+    # one token (V_1 = W / 2 needs Z >= W / 2): no numbers, the reason instead
+    body = client.post("/api/estimate", json={"tokens": 270_457, "types": 5_563, "hapaxes": 20}).json()
+    assert body["params"] is None and body["predictions"] == [] and "Zipf size" in body["not_applicable"]
+    page = client.get("/estimate", params={"tokens": 270_457, "types": 5_563, "hapaxes": 20})
+    assert page.status_code == 200 and "not applicable — the perfect-Zipf fit" in page.text
+    # a sound fit gives numbers, and a size too small for its curve (more types than tokens) says why
+    sound = client.post(
+        "/api/estimate", json={"tokens": 100_000, "types": 20_000, "hapaxes": 10_000, "sizes": [10]}
+    ).json()
+    assert sound["not_applicable"] is None and sound["params"]["zipf_size"] > 0
+    tiny = next(row for row in sound["predictions"] if row["tokens"] == 10)
+    assert tiny["types"] is None and "more types" in tiny["not_applicable"]
