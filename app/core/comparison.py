@@ -40,7 +40,7 @@ from app.core.interpolation import (
     types_band,
 )
 from app.core.spectrum import Spectrum
-from app.core.unseen import good_toulmin
+from app.core.unseen import good_toulmin_series
 
 
 @dataclass(frozen=True)
@@ -61,7 +61,7 @@ def _population_expected_types(spectrum: Spectrum, x: float) -> float:
     n = spectrum.tokens
     if x <= n:
         return expected_types_binomial(spectrum, x)
-    return spectrum.types + good_toulmin(spectrum, x / n - 1).value
+    return spectrum.types + good_toulmin_series(spectrum, x / n - 1)
 
 
 def population_variance_types(spectrum: Spectrum, n0: int) -> float:

@@ -123,14 +123,20 @@ def _check_kind(kind: str) -> None:
         raise ValueError(f"unknown truncation kind {kind!r} (use one of {TRUNCATIONS})")
 
 
+def good_toulmin_series(spectrum: Spectrum, t: float) -> float:
+    """U(t) = -sum_{m>=1} (-t)^m V_m itself, unchecked: a term inside other formulas (the population variance
+    of ``app.core.comparison``), never a number to show; ``good_toulmin`` is the checked estimate."""
+    _check_t(t)
+    return _alternating_series(spectrum, t, np.ones(spectrum.m.size))
+
+
 def good_toulmin(spectrum: Spectrum, t: float = 1.0) -> UnseenEstimate:
     """U(t) = -sum_{m>=1} (-t)^m V_m (Good & Toulmin 1956).
 
     Unbiased under Poisson sampling for every t, but for t > 1 the terms t^m V_m grow geometrically and the
     estimate swings wildly (it may even overflow to +-inf): not applicable beyond t = 1 (module docstring).
     """
-    _check_t(t)
-    value = _alternating_series(spectrum, t, np.ones(spectrum.m.size))
+    value = good_toulmin_series(spectrum, t)
     problem = first_problem(
         (
             _beyond(t, t <= GOOD_TOULMIN_MAX_T, "t <= 1 (Good & Toulmin 1956)"),
