@@ -110,7 +110,8 @@ def test_degenerate_texts_are_stored_and_pages_still_work(client, text):
     far = client.get(f"/api/corpora/{cid}/predict", params={"tokens": 10**6})
     # Either a model extrapolates (at least the one type seen) or the answer says why none can.
     if far.status_code == 200:
-        assert far.json()["types"] >= 1
+        body = far.json()
+        assert body["types"] >= 1 if body["not_applicable"] is None else body["types"] is None
     else:
         assert far.status_code == 422 and far.json()["detail"]
     planned = client.get(f"/api/corpora/{cid}/plan", params={"types": 5})
