@@ -219,8 +219,11 @@ def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
     predictor = failure = None
     if largest_size > corpus.tokens:
         try:
-            # beyond N the service's prediction: the recommended model anchored at the observed types
-            predictor = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
+            # beyond N the service's prediction: the recommended model continued from the corpus; its growth
+            # factor is computed here, so that a model that cannot be continued is a failure like any other
+            anchored = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
+            anchored.growth_factor()
+            predictor = anchored
         except MODEL_ERRORS as exc:
             failure = str(exc) or type(exc).__name__
     return _Member(corpus, spectrum, *modelling.stored_text_order(corpus), predictor, failure)

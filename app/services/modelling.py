@@ -482,8 +482,8 @@ def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = R
             return None
         p = fitted_models[name]
         size = p.model.population_size(p.params)
-        # anchoring scales the model's types, and so its population, by V / E[V(N)]
-        return None if size is None else size * fitted[name].scale()
+        # beyond N the model's growth is continued from V by the factor C: V + C (S - E(N)) types in all
+        return None if size is None else fitted[name].population(size)
 
     chao1 = unseen.chao1(spectrum).value
     try:
