@@ -25,8 +25,9 @@ from app.config import PROGRAM_VERSION
 from app.core import richness
 from app.core.anchored import Anchored
 from app.core.comparison import distinctive_words, pairwise_z_tests, size_matched
-from app.core.interpolation import Z95, expected_spectrum, types_band
+from app.core.interpolation import expected_spectrum, types_band
 from app.core.models import Predictor
+from app.core.models.base import RANGE_LEVEL, Z90
 from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
 from app.services import modelling
@@ -269,8 +270,8 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
             "types": _num(matched.types),
             "types_sd": _num(matched.sd_population),
             "types_sd_random": _num(matched.sd),
-            "types_low": _num(matched.types - Z95 * matched.sd_population),
-            "types_high": _num(matched.types + Z95 * matched.sd_population),
+            "types_low": _num(matched.types - Z90 * matched.sd_population),
+            "types_high": _num(matched.types + Z90 * matched.sd_population),
             "hapaxes": _num(matched.hapaxes),
             "dis_legomena": _num(matched.dis_legomena),
             "ttr": _num(matched.types / n0),
@@ -294,7 +295,7 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
     types, low, high = values
     return row | {
         "basis": "model-based",
-        "method": "recommended model, extrapolated and anchored at the corpus's own types; nominal 90% range",
+        "method": "recommended model, continued from the corpus's own types and new-type rate beyond its size",
         "types": _num(types),
         "types_sd": None,
         "types_sd_random": None,
@@ -610,6 +611,7 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "computed_at": datetime.now(UTC).isoformat(),
         "settings": settings.as_dict(),
         "caution": CAUTION,
+        "range_level": RANGE_LEVEL,
         "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
         "warnings": _warnings(members, rows, n0, horizon)
         + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage],

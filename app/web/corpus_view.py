@@ -30,7 +30,6 @@ DAMAGED = (
 
 
 WORDS_PER_PAGE = 50
-CURVE_POINTS = 60
 INDEX_NAMES = {
     "ttr": "TTR (V/N)",
     "guiraud_r": "Guiraud's R",
@@ -150,32 +149,31 @@ def model_section(
         for name, data in report["fitted"].items()
     ]
     columns = list(dict.fromkeys(label for row in rows for label in row["backtests"]))
-    curve_x = np.unique(np.geomspace(max(1, tokens // 100), horizon, CURVE_POINTS).astype(np.int64))
+    continued, not_continued = modelling.continuations(loaded, horizon)
     curves = {
-        name: (
-            curve_x.tolist(),
-            np.asarray(p.types(curve_x.astype(float)), dtype=float).tolist(),
-        )
-        for name, p in predictors.items()
+        name: (curve["tokens"], curve["types"])
+        for name, curve in continued.items()
         if name != "perfect_zipf_totals"
     }
-    rec = predictors["recommended"]
-    beyond = curve_x[curve_x >= tokens].astype(float)
-    low, high = (
-        np.asarray(rec.types_low(beyond), dtype=float),
-        np.asarray(rec.types_high(beyond), dtype=float),
-    )
-    # The band's upper edge is unbounded once the backtest error reaches 100% (ErrorBand.limits): far out,
-    # e.g. at 600x a small corpus, the band ends there instead of reaching to infinity.
-    bounded = np.isfinite(low) & np.isfinite(high)
-    rec_band = (beyond[bounded].tolist(), low[bounded].tolist(), high[bounded].tolist())
+    rec = continued.get("recommended")
+    rec_band = None
+    if rec:
+        # The band's upper edge is unbounded once the backtest error reaches 100% (ErrorBand.limits): far
+        # out, e.g. at 600x a small corpus, the band ends there instead of reaching to infinity.
+        bounded = [
+            (n, low, high)
+            for n, low, high in zip(rec["tokens"], rec["types_low"], rec["types_high"], strict=True)
+            if np.isfinite(low) and np.isfinite(high)
+        ]
+        rec_band = tuple(list(column) for column in zip(*bounded, strict=True)) if bounded else None
     predictions = [
         {
             "tokens": n,
             "extrapolated": n > tokens,
+            # at or below N every model predicts the exact interpolation: it is computed once
             "models": {
-                name: modelling.predict(engine, corpus_id, n, name, loaded)
-                for name in ("recommended", *report["fitted"])
+                name: _prediction(engine, corpus_id, n, name, loaded)
+                for name in ("recommended", *(report["fitted"] if n > tokens else ()))
             },
         }
         for n in memo.checked(sizes)  # each size costs every model's prediction: stop for nobody
@@ -191,6 +189,7 @@ def model_section(
         "failures": report["failures"],
         "recommended_band": report["recommended"]["band"],
         "curves": curves,
+        "not_continued": not_continued,
         "recommended_curve_band": rec_band,
         "expected_at_corpus_size": {
             name: p.spectrum(tokens, 20).tolist()
@@ -199,6 +198,17 @@ def model_section(
         },
         "predictions": predictions,
     }
+
+
+def _prediction(
+    engine: Engine, corpus_id: int, tokens: int, model: str, loaded: modelling.LoadedModels
+) -> dict[str, Any]:
+    """``modelling.predict``, or {"refused": reason} for a prediction the service refuses (incoherent, or a
+    model that cannot be continued from the corpus): the table shows the reason in that cell."""
+    try:
+        return modelling.predict(engine, corpus_id, tokens, model, loaded)
+    except (ValueError, ArithmeticError) as exc:  # PredictionError is a ValueError
+        return {"refused": str(exc) or type(exc).__name__}
 
 
 PLAN_LABELS = {
