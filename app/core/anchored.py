@@ -27,7 +27,8 @@ Every model of ``app.core.models`` obeys it, so for them C = V_1 / E_1(N): the m
 scaled by the ratio of observed to expected hapaxes, and V_1(n) = C E_1(n) is the model's own hapax curve
 under the same ratio. The identity is kept by construction for any predictor (the recommended ensemble
 weights types and legomena differently and does not obey it exactly): the hapaxes beyond N are n times the
-slope of the continued curve, so the new-type rate V_1(n) / n that planning uses is dV/dn itself. The
+slope of the continued curve, so the new-type rate V_1(n) / n that planning uses is dV/dn itself (the
+ensemble's hapaxes beyond N therefore follow its types weights; its V_2, V_3, ... its legomena weights). The
 former anchoring, V E(n) / E(N), matched V at N but scaled the slope by V / E(N) instead of V_1 / E_1(N),
 so that the new-type rate jumped at N by the ratio of the two, and planning answered a target inside that
 jump with a size below N. E'(n) is a five-point central difference in log n (``growth_slope``), so no

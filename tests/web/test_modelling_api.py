@@ -274,3 +274,23 @@ def test_the_predictions_table_and_the_growth_plot_agree_below_the_corpus_size(d
     assert all(min(t["x"]) == N for t in dashed)
     assert page.count("every model: the exact interpolation") == 1
     assert page.count("nominal 90% range") == 1 and "95%" not in page
+
+
+def test_a_target_just_beyond_the_corpus_is_planned_beyond_it_by_every_model(docstring_corpus):
+    """V + 1 types, or a new-type rate just below V_1 / N (Good 1953: the chance that the next token is new),
+    are first reached after the corpus size, by every model; one type less, before it."""
+    client, cid, _ = docstring_corpus
+    summary = client.get(f"/api/corpora/{cid}").json()
+    N, V, rate = summary["tokens"], summary["types"], summary["hapaxes"] / summary["tokens"]
+    models = [
+        m for m in client.get(f"/api/corpora/{cid}/models").json()["fitted"] if m != "perfect_zipf_totals"
+    ]
+    for model in ["recommended", *models]:
+        for params, beyond in (
+            ({"types": V + 1}, True),
+            ({"types": V - 1}, False),
+            ({"new_type_rate": rate * 0.999}, True),
+            ({"new_type_rate": rate * 1.001}, False),
+        ):
+            body = client.get(f"/api/corpora/{cid}/plan", params=params | {"model": model}).json()
+            assert (body["tokens"] > N) is beyond and body["already_reached"] is not beyond, (model, params)
