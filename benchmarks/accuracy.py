@@ -13,7 +13,7 @@ fraction F:
      Generator per random state 1..K), and on
    - the first round(F N) tokens of the text (the text-order prefix),
    and every predictor predicts V and V_1 at the full size N (an extrapolation by the factor 1 / F), as the
-   service does beyond the corpus size (anchored at the sample's V, ``app.core.anchored``). Errors are
+   service does beyond the corpus size (continued from the sample, ``app.core.anchored``). Errors are
    signed, 100 (predicted - observed) / observed in percent. Per text: the bias (mean signed error over
    the K samples) and how many of the K nominal 90% ranges of V hold the observed V. Summary per
    predictor: median absolute error over every sample of every text, the largest per-text |bias|, the

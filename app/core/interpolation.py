@@ -22,8 +22,6 @@ from scipy.special import gammaln
 
 from app.core.spectrum import Spectrum
 
-Z95 = 1.959963984540054  # standard normal 97.5% quantile
-
 
 def _log_choose(a: np.ndarray, b: np.ndarray) -> np.ndarray:
     """log C(a, b) for arrays, -inf where b < 0 or b > a."""
@@ -266,19 +264,16 @@ def variance_types_binomial(spectrum: Spectrum, n: float) -> float:
 
 @dataclass(frozen=True)
 class TypesBand:
-    """E[V(n)] with its standard deviation and a normal-approximation 95% band."""
+    """E[V(n)] with its exact standard deviation over random samples of n tokens."""
 
     tokens: int
     types: float
     sd: float
 
-    @property
-    def low(self) -> float:
-        return max(0.0, self.types - Z95 * self.sd)
-
-    @property
-    def high(self) -> float:
-        return self.types + Z95 * self.sd
+    def limits(self, z: float) -> tuple[float, float]:
+        """The normal-approximation range E[V(n)] -+ z sd (its lower end at least 0); the product's level
+        is ``app.core.models.base.Z90``."""
+        return max(0.0, self.types - z * self.sd), self.types + z * self.sd
 
 
 def types_band(spectrum: Spectrum, n: int) -> TypesBand:
@@ -287,7 +282,7 @@ def types_band(spectrum: Spectrum, n: int) -> TypesBand:
 
 
 def growth_band(spectrum: Spectrum, sizes: np.ndarray) -> list[TypesBand]:
-    """Random-order expected type growth with its 95% band at each size."""
+    """Random-order expected type growth with its exact standard deviation at each size."""
     N = spectrum.tokens
     bands = []
     for n in (int(x) for x in sizes):

@@ -217,16 +217,20 @@ class CheckedPrediction:
 
 def checked_prediction(anchored: PredictorOnBothSides, n: float, k_max: int = 20) -> CheckedPrediction:
     """The prediction of ``anchored`` at n after the rules of the module docstring: beyond N a degenerate
-    fit (``FittedModel.degenerate``) is not applicable; E[V(n)] must lie in ``possible_types`` and
+    fit (``FittedModel.degenerate``) or a predictor that raises ValueError (a model that cannot be continued
+    from the corpus) is not applicable; E[V(n)] must lie in ``possible_types`` and
     (V, V_1..V_k) be a spectrum (``incoherence``); the range's ends are brought inside ``possible_types``
     (the one exception of the module docstring)."""
     N, V = anchored.corpus.tokens, anchored.corpus.types
     degenerate = getattr(anchored.predictor, "degenerate", None) if n > N else None
     if degenerate:
         return CheckedPrediction.refused(n, f"its fit is degenerate: {degenerate}")
-    with np.errstate(all="ignore"):
-        types = float(anchored.types(n))
-        legomena = np.asarray(anchored.spectrum(n, k_max), dtype=float)
+    try:
+        with np.errstate(all="ignore"):
+            types = float(anchored.types(n))
+            legomena = np.asarray(anchored.spectrum(n, k_max), dtype=float)
+    except (ValueError, ArithmeticError) as exc:  # e.g. a model that cannot be continued from the corpus
+        return CheckedPrediction.refused(n, str(exc) or type(exc).__name__)
     problem = first_problem((types_problem(n, types, N, V), incoherence(types, legomena)))
     if problem:
         return CheckedPrediction.refused(n, problem)

@@ -25,11 +25,12 @@ from app.config import PROGRAM_VERSION
 from app.core import richness
 from app.core.anchored import Anchored
 from app.core.comparison import distinctive_words, pairwise_z_tests, size_matched
-from app.core.interpolation import Z95, expected_spectrum, types_band
+from app.core.interpolation import expected_spectrum, types_band
 from app.core.models import Predictor
+from app.core.models.base import RANGE_LEVEL, Z90
 from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
-from app.core.validity import checked_prediction, range_within_possible
+from app.core.validity import checked_prediction
 from app.services import modelling
 from app.services.export import table_text
 from app.services.memo import RecentResults
@@ -221,8 +222,11 @@ def _member(engine: Engine, corpus: Corpus, largest_size: int) -> _Member:
     predictor = failure = None
     if largest_size > corpus.tokens:
         try:
-            # beyond N the service's prediction: the recommended model anchored at the observed types
-            predictor = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
+            # beyond N the service's prediction: the recommended model continued from the corpus; its growth
+            # factor is computed here, so that a model that cannot be continued is a failure like any other
+            anchored = Anchored(modelling.predictors(engine, corpus.id)[modelling.RECOMMENDED], spectrum)
+            anchored.growth_factor()
+            predictor = anchored
         except MODEL_ERRORS as exc:
             failure = str(exc) or type(exc).__name__
     return _Member(corpus, spectrum, *modelling.stored_text_order(corpus), predictor, failure)
@@ -269,8 +273,8 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
             "types": _num(matched.types),
             "types_sd": _num(matched.sd_population),
             "types_sd_random": _num(matched.sd),
-            "types_low": _num(matched.types - Z95 * matched.sd_population),
-            "types_high": _num(matched.types + Z95 * matched.sd_population),
+            "types_low": _num(matched.types - Z90 * matched.sd_population),
+            "types_high": _num(matched.types + Z90 * matched.sd_population),
             "hapaxes": _num(matched.hapaxes),
             "dis_legomena": _num(matched.dis_legomena),
             "ttr": _num(matched.types / n0),
@@ -297,7 +301,7 @@ def _size_matched_row(member: _Member, n0: int) -> dict[str, Any]:
     types, low, high, legomena = checked.types, checked.types_low, checked.types_high, checked.legomena
     return row | {
         "basis": "model-based",
-        "method": "recommended model, extrapolated and anchored at the corpus's own types; nominal 90% range",
+        "method": "recommended model, continued from the corpus's own types and new-type rate beyond its size",
         "types": _num(types),
         "types_sd": None,
         "types_sd_random": None,
@@ -408,16 +412,12 @@ def _growth(engine: Engine, member: _Member, horizon: int, random_order: dict[st
     model = None
     if member.predictor is not None and horizon > corpus.tokens:
         sizes = np.unique(np.rint(np.geomspace(corpus.tokens, horizon, MODEL_POINTS))).astype(float)
-        low, high = member.predictor.types_low(sizes), member.predictor.types_high(sizes)
-        # ends kept within the types the sizes can hold (app.core.validity); an upper end without limit
-        # stays missing rather than reaching the bound of one new type per token, which flattens the plot
-        inside_low, inside_high = range_within_possible(sizes, low, high, corpus.tokens, corpus.types)
         model = {
             "name": modelling.RECOMMENDED,
             "tokens": sizes.astype(np.int64).tolist(),
             "types": _nums(member.predictor.types(sizes)),
-            "low": _nums(inside_low),
-            "high": _nums(np.where(np.isfinite(high), inside_high, np.nan)),
+            "low": _nums(member.predictor.types_low(sizes)),
+            "high": _nums(member.predictor.types_high(sizes)),
         }
     return {
         "corpus_id": corpus.id,
@@ -617,6 +617,7 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "computed_at": datetime.now(UTC).isoformat(),
         "settings": settings.as_dict(),
         "caution": CAUTION,
+        "range_level": RANGE_LEVEL,
         "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
         "warnings": _warnings(members, rows, n0, horizon)
         + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage],

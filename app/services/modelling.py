@@ -26,7 +26,7 @@ from app.core.anchored import Anchored
 from app.core.backtest import Ensemble, backtest
 from app.core.interpolation import expected_spectrum, growth_band, types_band
 from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
-from app.core.models.base import RANGE_LEVEL, RANGE_METHOD
+from app.core.models.base import RANGE_LEVEL, RANGE_METHOD, Z90
 from app.core.models.goodness import spectrum_misfit
 from app.core.spectrum import Spectrum
 from app.core.validity import RANGE_BOUNDS, checked_prediction
@@ -112,14 +112,16 @@ RANDOM_ORDER_GROWTH = "random_order_growth"
 
 
 def random_order_growth_of(spectrum: Spectrum) -> dict:
-    """Expected type growth of random samples with its 95% band (exact hypergeometric) of a spectrum."""
-    bands = growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS))
+    """Expected type growth of random samples with its nominal 90% range (exact hypergeometric) of a
+    spectrum: the exact interpolation, which ``predict`` gives for every model up to the corpus size."""
+    points = []
+    for band in growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS)):
+        low, high = band.limits(Z90)
+        points.append({"tokens": band.tokens, "types": band.types, "sd": band.sd, "low": low, "high": high})
     return {
-        "method": "exact hypergeometric expectation over random samples without replacement; "
-        "band = expectation +- 1.96 exact standard deviations",
-        "points": [
-            {"tokens": b.tokens, "types": b.types, "sd": b.sd, "low": b.low, "high": b.high} for b in bands
-        ],
+        "method": "exact hypergeometric expectation over random samples without replacement",
+        "range": {"level": RANGE_LEVEL, "method": INTERPOLATION_RANGE},
+        "points": points,
     }
 
 
@@ -365,6 +367,39 @@ def predict(
     return out
 
 
+CONTINUATION_POINTS = 60
+"""Sizes from the corpus size to the horizon at which ``continuations`` gives every model's prediction."""
+
+
+def continuations(loaded: LoadedModels, horizon: int) -> tuple[dict[str, dict[str, list]], dict[str, str]]:
+    """Every model's prediction as ``predict`` serves it (the model continued from the corpus:
+    ``app.core.anchored``) at CONTINUATION_POINTS log-spaced sizes from the corpus size N to ``horizon``:
+    model -> {"tokens", "types", "types_low", "types_high"} (the nominal 90% range), and the reason for each
+    model that cannot be continued (a degenerate fit among them: ``FittedModel.degenerate``). The growth plot
+    draws the models there only: at or below N every model predicts the exact random-sample interpolation,
+    which is drawn once, as the random-order expectation."""
+    N = loaded.tokens
+    sizes = np.unique(np.rint(np.geomspace(N, max(horizon, N + 1), CONTINUATION_POINTS)).astype(np.int64))
+    x = sizes.astype(float)
+    curves: dict[str, dict[str, list]] = {}
+    failures: dict[str, str] = {}
+    for name, predictor in loaded.predictors.items():
+        if degenerate := getattr(predictor, "degenerate", None):
+            failures[name] = f"its fit is degenerate: {degenerate}"
+            continue
+        anchored = Anchored(predictor, loaded.spectrum)
+        try:
+            values = (anchored.types(x), anchored.types_low(x), anchored.types_high(x))
+        except (ValueError, ArithmeticError) as exc:
+            failures[name] = str(exc) or type(exc).__name__
+            continue
+        curves[name] = {"tokens": sizes.tolist()} | {
+            key: np.asarray(v, dtype=float).tolist()
+            for key, v in zip(("types", "types_low", "types_high"), values, strict=True)
+        }
+    return curves, failures
+
+
 INTERPOLATION_METHOD = "exact random-sample interpolation (hypergeometric)"
 INTERPOLATION_RANGE = (
     "nominal 90% range of random samples of this size: E[V(n)] +- 1.645 exact standard deviations"
@@ -487,8 +522,8 @@ def plan(engine: Engine, corpus_id: int, target: planning.Target, model: str = R
             return None
         p = fitted_models[name]
         size = p.model.population_size(p.params)
-        # anchoring scales the model's types, and so its population, by V / E[V(N)]
-        return None if size is None else size * fitted[name].scale()
+        # beyond N the model's growth is continued from V by the factor C: V + C (S - E(N)) types in all
+        return None if size is None else fitted[name].population(size)
 
     def planned(name: str) -> float:
         answer = planning.plan(fitted[name], target, population(name))

@@ -221,12 +221,34 @@ def spectrum(
 
 
 @router.get("/corpora/{corpus_id}/growth")
-def growth(corpus_id: CorpusId, engine: EngineDep) -> dict:
-    """Exact text-order type growth and the random-order expectation with its 95% band."""
-    source = store.source(corpus_or_404(engine, corpus_id))
+def growth(
+    corpus_id: CorpusId,
+    engine: EngineDep,
+    horizon: Annotated[
+        float, Query(ge=1, le=1000, description="how far the models reach, x corpus size")
+    ] = 10,
+) -> dict:
+    """The type-growth plot of the Corpus page: exact text-order type growth; the random-order expectation
+    (the exact interpolation, every model's prediction up to the corpus size) with its nominal 90% range;
+    and ``models``: each model's prediction from the corpus size to ``horizon`` times it, as
+    ``/predict`` serves it, with its nominal 90% range (``status`` pending or failed while there is none)."""
+    corpus = corpus_or_404(engine, corpus_id)
+    source = store.source(corpus)
+    try:
+        loaded = modelling.load_models(engine, corpus_id)
+    except modelling.ModelsPendingError:
+        models: dict = {"status": "pending"}
+    except modelling.ModelsFailedError as exc:
+        models = {"status": "failed", "reason": exc.reason}
+    else:
+        curves, failures = modelling.continuations(
+            loaded, int(max(corpus.tokens * horizon, corpus.tokens + 1))
+        )
+        models = {"status": "ready", "curves": curves, "failures": failures}
     return {
         "text_order": [{"tokens": n, "types": v} for n, v in store.growth_points(engine, corpus_id)],
         "random_order": modelling.random_order_growth(engine, corpus_id),
+        "models": models,
     } | ({} if source["text_order"] else {"text_order_note": no_text_order(source)})
 
 

@@ -122,7 +122,7 @@ def _marker(x: float, label: str) -> tuple[dict, dict]:
 
 
 def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[str, Any]:
-    """Type growth of every corpus: text order (solid), random order (dotted, 95% band) and the recommended
+    """Type growth of every corpus: text order (solid), random order (dotted, with its range) and the recommended
     model beyond the corpus size (dashed, backtest band); x in tokens, or as a share of each corpus's size."""
     styles = _styles(snapshot)
     sizes = {c["id"]: c["tokens"] for c in snapshot["corpora"]}
@@ -341,9 +341,9 @@ def comparison_figures(snapshot: dict[str, Any]) -> list[ComparisonFigure]:
     horizon = snapshot["settings"]["horizon"]
     growth_caption = (
         "Solid: types seen when reading each text from the start (text order){against}. Dotted, with a band in "
-        "the same colour: expected types of random samples of that size and their 95% range (exact "
+        "the same colour: expected types of random samples of that size and their range (exact "
         "hypergeometric). Dashed, with a lighter band: the recommended model beyond each corpus's own size, up "
-        f"to the horizon of {horizon:,} tokens, with its backtest error band. Shaded background: extrapolated "
+        f"to the horizon of {horizon:,} tokens, with its error band. Shaded background: extrapolated "
         "range. One colour per corpus; click a name in the legend to hide or show all its curves."
     )
     return [

@@ -7,12 +7,10 @@ from collections.abc import Callable
 from datetime import datetime
 from typing import Any, NamedTuple
 
-import numpy as np
 from sqlalchemy.engine import Engine
 
 from app.core import planning
 from app.core.spectrum import Spectrum
-from app.core.validity import range_within_possible
 from app.services import memo, modelling
 from app.services.memo import RecentResults
 from app.store import corpora as store
@@ -31,7 +29,6 @@ DAMAGED = (
 
 
 WORDS_PER_PAGE = 50
-CURVE_POINTS = 60
 INDEX_NAMES = {
     "ttr": "TTR (V/N)",
     "guiraud_r": "Guiraud's R",
@@ -154,35 +151,23 @@ def model_section(
         for name, data in report["fitted"].items()
     ]
     columns = list(dict.fromkeys(label for row in rows for label in row["backtests"]))
-    curve_x = np.unique(np.geomspace(max(1, tokens // 100), horizon, CURVE_POINTS).astype(np.int64))
     shown = [n for n in predictors if n != "perfect_zipf_totals" and not degenerate.get(n)]
+    continued, not_continued = modelling.continuations(loaded, horizon)
     curves = {
-        name: (
-            curve_x.tolist(),
-            np.asarray(predictors[name].types(curve_x.astype(float)), dtype=float).tolist(),
-        )
-        for name in shown
+        name: (curve["tokens"], curve["types"])
+        for name, curve in continued.items()
+        if name != "perfect_zipf_totals"
     }
-    rec = predictors["recommended"]
-    beyond = curve_x[curve_x >= tokens].astype(float)
-    low, high = (
-        np.asarray(rec.types_low(beyond), dtype=float),
-        np.asarray(rec.types_high(beyond), dtype=float),
-    )
-    # The band's upper edge is unbounded once the backtest error reaches 100% (ErrorBand.limits): far out,
-    # e.g. at 600x a small corpus, the band ends there instead of reaching to infinity (or to its bound, one
-    # new type per token, which would flatten the plot). Its ends are kept within the types n tokens can
-    # hold (the core's rule: at least the corpus's own types).
-    bounded = np.isfinite(low) & np.isfinite(high)
-    low, high = range_within_possible(beyond, low, high, tokens, loaded.spectrum.types)
-    rec_band = (beyond[bounded].tolist(), low[bounded].tolist(), high[bounded].tolist())
+    rec = continued.get("recommended")
+    rec_band = (rec["tokens"], rec["types_low"], rec["types_high"]) if rec else None
     predictions = [
         {
             "tokens": n,
             "extrapolated": n > tokens,
+            # at or below N every model predicts the exact interpolation: it is computed once
             "models": {
                 name: modelling.predict(engine, corpus_id, n, name, loaded)
-                for name in ("recommended", *report["fitted"])
+                for name in ("recommended", *(report["fitted"] if n > tokens else ()))
             },
         }
         for n in memo.checked(sizes)  # each size costs every model's prediction: stop for nobody
@@ -198,6 +183,7 @@ def model_section(
         "failures": report["failures"],
         "recommended_band": report["recommended"]["band"],
         "curves": curves,
+        "not_continued": not_continued,
         "recommended_curve_band": rec_band,
         "expected_at_corpus_size": {name: predictors[name].spectrum(tokens, 20).tolist() for name in shown},
         "predictions": predictions,

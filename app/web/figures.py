@@ -310,8 +310,10 @@ def growth_lines(
     corpus_tokens: int | None = None,
     marker: tuple[float, str] | None = None,
 ) -> dict[str, Any]:
-    """Text-order type growth (solid), the random-order expectation (dotted) with its 95% band, and model
-    curves (dashed) reaching into a shaded extrapolated range beyond the corpus size.
+    """Text-order type growth (solid), the exact random-sample interpolation (dotted; the random-order
+    expectation) with its range, and the models (dashed) from the corpus size on, into a shaded extrapolated
+    range: at or below the corpus size every model's prediction is the interpolation, drawn once
+    (``modelling.continuations``).
 
     The figure opens on the observed range (0 to N); the page's switch shows the extrapolation (layout.meta
     holds both views)."""
@@ -330,7 +332,7 @@ def growth_lines(
         line(
             xs,
             [p["types"] for p in random_order],
-            "random order (95% band)",
+            "exact interpolation (random order)",
             RANDOM_ORDER,
             legendgroup="random order",
             line={"color": RANDOM_ORDER, "width": 2, "dash": "dot"},

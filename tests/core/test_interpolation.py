@@ -12,7 +12,7 @@ from functools import lru_cache
 
 import numpy as np
 import pytest
-from scipy.stats import hypergeom
+from scipy.stats import hypergeom, norm
 
 from app.core.interpolation import (
     LOG_FLOOR,
@@ -26,6 +26,7 @@ from app.core.interpolation import (
     types_band,
     variance_types,
 )
+from app.core.models.base import Z90
 from app.core.spectrum import Spectrum
 from tests.conftest import stdlib_docstrings
 
@@ -130,16 +131,18 @@ def test_random_samples_of_real_text_match_expected_types(docstring_ids: np.ndar
     assert abs(np.mean(samples) - band.types) < 3 * band.sd / np.sqrt(30)
 
 
-def test_95_percent_band_covers_about_95_percent_of_samples(docstring_ids: np.ndarray) -> None:
-    # the normal 95% band around E[V(n)] must cover 90-99% of 200 random 20% samples (binomial noise of
-    # 200 draws at 95% has a standard deviation of 1.5 points)
+def test_90_percent_band_covers_about_90_percent_of_samples(docstring_ids: np.ndarray) -> None:
+    # the normal 90% band around E[V(n)] (+-1.645 sd, scipy.stats.norm.ppf(0.95)) must cover 84-96% of 200
+    # random 20% samples (binomial noise of 200 draws at 90% has a standard deviation of 2.1 points)
     rng = np.random.default_rng(99)
     spectrum = spectrum_of_ids(docstring_ids)
     n = spectrum.tokens // 5
     (band,) = growth_band(spectrum, np.array([n]))
+    low, high = band.limits(Z90)
+    assert Z90 == pytest.approx(norm.ppf(0.95), rel=1e-12)
     samples = np.array([np.unique(rng.choice(docstring_ids, n, replace=False)).size for _ in range(200)])
-    coverage = np.mean((samples >= band.low) & (samples <= band.high))
-    assert 0.90 <= coverage <= 0.99
+    coverage = np.mean((samples >= low) & (samples <= high))
+    assert 0.84 <= coverage <= 0.96
 
 
 def test_rejects_sizes_beyond_the_corpus() -> None:

@@ -90,7 +90,5 @@ def test_every_prediction_is_a_coherent_spectrum(frequencies, log_factor):
     for predictor in (*report.fitted.values(), report.recommended):
         anchored = Anchored(predictor, spectrum)
         types, legomena = float(anchored.types(n)), anchored.spectrum(n, 20)
-        if predictor.name == "heaps" and incoherence(types, legomena) is not None:
-            continue  # Heaps' legomena are an assumption; the service refuses them when incoherent
         assert incoherence(types, legomena) is None, predictor.name
         assert legomena[0] <= types * (1 + 1e-9) and legomena.sum() <= types * (1 + 1e-9)

@@ -12,7 +12,7 @@ import re
 import numpy as np
 import pytest
 from fastapi.testclient import TestClient
-from scipy.stats import hypergeom
+from scipy.stats import hypergeom, norm
 
 from app.config import Settings
 from app.main import create_app
@@ -74,7 +74,12 @@ def test_api_comparison_numbers_equal_the_hypergeometric_expectation(shared, tex
         f = np.array(list(expected_counts(text).values()))
         # reference: scipy.stats.hypergeom, the chance that each type is missed by a sample of n0 tokens
         assert row["types"] == pytest.approx(float(np.sum(1 - hypergeom.pmf(0, f.sum(), f, n0))), rel=1e-9)
-    assert saved["caution"] == CAUTION
+        # the range is the product's nominal 90%: +-1.645 sd (scipy.stats.norm.ppf(0.95)), as everywhere
+        half = norm.ppf(0.95) * row["types_sd"]
+        assert (row["types_low"], row["types_high"]) == pytest.approx(
+            (row["types"] - half, row["types"] + half), rel=1e-12
+        )
+    assert saved["caution"] == CAUTION and saved["range_level"] == 0.9
     live = client.get("/api/compare", params={"corpus": two}).json()
     assert live["size_matched"] == saved["size_matched"]
 
@@ -95,6 +100,7 @@ def test_live_page_shows_caution_figures_table_and_saves_a_permalink(shared, tex
     assert page.status_code == 200
     text = page.text
     assert html.escape(CAUTION, quote=False) in text.replace("&#39;", "'")
+    assert text.count("nominal 90% range") == 1 and "95%" not in text  # one level, said once
     figures = figures_of(text)
     assert set(figures) == {"growth-plot", "growth-share-plot", "legomena-plot", "rank-plot"}
     observed = [t for t in figures["growth-plot"]["data"] if t.get("meta", {}).get("role") == "observed"]
@@ -258,3 +264,24 @@ def test_distinctive_words_follow_the_chosen_pair_and_threshold(shared, texts):
     assert data["tested"] == sum(1 for w in c1.keys() | c2.keys() if c1[w] + c2[w] >= 10)
     for word in data["words"]:
         assert (word["count1"], word["count2"]) == (c1[word["word"]], c2[word["word"]])
+
+
+def test_a_comparison_saved_before_one_level_says_which_levels_its_numbers_have(shared):
+    """A permalink keeps the numbers it showed: one saved while random-order bands were 95% ranges (its
+    snapshot has no ``range_level``) says so instead of claiming 90%."""
+    from sqlmodel import Session
+
+    from app.store.tables import SavedComparison
+
+    client, two = shared
+    slug = save(client, {"corpora": two}).json()["slug"]
+    with Session(client.app.state.engine) as session:
+        row = session.get(SavedComparison, slug)
+        snapshot = json.loads(row.snapshot_json)
+        del snapshot["range_level"]
+        row.snapshot_json = json.dumps(snapshot)
+        session.add(row)
+        session.commit()
+    text = client.get(f"/compare/{slug}").text
+    assert "nominal 90% range" not in text
+    assert "are 95% ranges, the model-based ranges 90% ranges" in text

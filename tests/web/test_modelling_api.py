@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import json
 import re
 from collections import Counter
 
@@ -282,3 +283,75 @@ def test_estimator_refuses_a_degenerate_perfect_zipf_fit_with_its_reason(client)
     assert sound["not_applicable"] is None and sound["params"]["zipf_size"] > 0
     tiny = next(row for row in sound["predictions"] if row["tokens"] == 10)
     assert tiny["types"] is None and "more types" in tiny["not_applicable"]
+
+
+FIGURE_JSON = re.compile(r'<script type="application/json" id="([^"]+)-data">(.*?)</script>', re.S)
+
+
+def test_the_predictions_table_and_the_growth_plot_agree_below_the_corpus_size(docstring_corpus):
+    """Up to the corpus size N the plot's random-order curve (/growth) and every model's prediction
+    (/predict, the table's twin) are one number: the exact interpolation, here checked against
+    scipy.stats.hypergeom type by type, with the same nominal 90% range (E +- 1.645 exact sd,
+    scipy.stats.norm.ppf(0.95)). Beyond N the plot draws each model as /predict serves it, from (N, V) on."""
+    from scipy.stats import norm
+
+    client, cid, _ = docstring_corpus
+    summary = client.get(f"/api/corpora/{cid}").json()
+    N, V = summary["tokens"], summary["types"]
+    rows = client.get(f"/api/corpora/{cid}/words.csv").text.strip().splitlines()[1:]
+    counts = np.array([int(line.rsplit(",", 1)[1]) for line in rows])
+    growth = client.get(f"/api/corpora/{cid}/growth", params={"horizon": 20}).json()
+    assert growth["random_order"]["range"]["level"] == 0.9
+    curves = growth["models"]["curves"]
+    assert growth["models"]["status"] == "ready" and {"recommended", "sichel", "heaps"} <= set(curves)
+    points = growth["random_order"]["points"]
+    for point in points[5 :: len(points) // 4]:
+        n = point["tokens"]
+        assert n < N
+        exact = float(np.sum(1 - hypergeom.pmf(0, N, counts, n)))
+        assert point["types"] == pytest.approx(exact, rel=1e-9)
+        half = norm.ppf(0.95) * point["sd"]
+        assert (point["low"], point["high"]) == pytest.approx((exact - half, exact + half), rel=1e-9)
+        for model in curves:
+            body = client.get(f"/api/corpora/{cid}/predict", params={"tokens": n, "model": model}).json()
+            assert body["method"] == "exact random-sample interpolation (hypergeometric)", model
+            assert body["types"] == pytest.approx(point["types"], rel=1e-12), model
+            assert (body["types_low"], body["types_high"]) == pytest.approx(
+                (point["low"], point["high"]), rel=1e-12
+            ), model
+    for model, curve in curves.items():
+        assert curve["tokens"][0] == N and curve["types"][0] == pytest.approx(V, rel=1e-12), model
+        assert curve["tokens"][-1] == 20 * N
+        for i in (1, len(curve["tokens"]) // 2, -1):
+            n = curve["tokens"][i]
+            body = client.get(f"/api/corpora/{cid}/predict", params={"tokens": n, "model": model}).json()
+            assert body["extrapolated"] and body["types"] == pytest.approx(curve["types"][i], rel=1e-12)
+            assert body["types_low"] == pytest.approx(curve["types_low"][i], rel=1e-12)
+    # The page: model curves start at N, and the table shows one exact value for every model below N.
+    page = client.get(f"/corpora/{cid}", params={"sizes": f"{N // 3}, 10x", "horizon": 20}).text
+    figure = json.loads(dict(FIGURE_JSON.findall(page))["growth-plot"])
+    dashed = [t for t in figure["data"] if t.get("legendgroup") in curves and t.get("showlegend", True)]
+    assert len(dashed) == len(curves) - 1  # perfect Zipf from totals is not drawn
+    assert all(min(t["x"]) == N for t in dashed)
+    assert page.count("every model: the exact interpolation") == 1
+    assert page.count("nominal 90% range") == 1 and "95%" not in page
+
+
+def test_a_target_just_beyond_the_corpus_is_planned_beyond_it_by_every_model(docstring_corpus):
+    """V + 1 types, or a new-type rate just below V_1 / N (Good 1953: the chance that the next token is new),
+    are first reached after the corpus size, by every model; one type less, before it."""
+    client, cid, _ = docstring_corpus
+    summary = client.get(f"/api/corpora/{cid}").json()
+    N, V, rate = summary["tokens"], summary["types"], summary["hapaxes"] / summary["tokens"]
+    models = [
+        m for m in client.get(f"/api/corpora/{cid}/models").json()["fitted"] if m != "perfect_zipf_totals"
+    ]
+    for model in ["recommended", *models]:
+        for params, beyond in (
+            ({"types": V + 1}, True),
+            ({"types": V - 1}, False),
+            ({"new_type_rate": rate * 0.999}, True),
+            ({"new_type_rate": rate * 1.001}, False),
+        ):
+            body = client.get(f"/api/corpora/{cid}/plan", params=params | {"model": model}).json()
+            assert (body["tokens"] > N) is beyond and body["already_reached"] is not beyond, (model, params)
