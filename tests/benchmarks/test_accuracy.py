@@ -209,6 +209,6 @@ def test_targets_compare_the_recommendation_with_the_best_single_model():
     # outside 85-95%); one impossible output in all.
     assert checks["V"].cell() == "3.00 met"
     assert checks["V vs best"].met is False and checks["V vs best"].shown.startswith("+2.00")
-    assert checks["coverage"].cell() == "67% **missed**"
+    assert checks["coverage"].met is False and checks["coverage"].shown.startswith("67% (2/3;")
     assert checks["impossible"].shown == "1 / 1" and checks["impossible"].met is False
     assert checks["half-width"].cell() == "5.00 met"
