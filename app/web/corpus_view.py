@@ -145,6 +145,7 @@ def model_section(
             "gof": data["goodness_of_fit"],
             "backtests": backtests.get(name, {}),
             "weight": weights.get(name, {}).get("types"),
+            "legomena_weight": weights.get(name, {}).get("legomena"),
             "misfit": misfit.get(name),
         }
         for name, data in report["fitted"].items()
@@ -190,6 +191,7 @@ def model_section(
         "model_titles": modelling.model_titles(),
         "failures": report["failures"],
         "recommended_band": report["recommended"]["band"],
+        "weight_rule": report["recommended"]["rule"],
         "curves": curves,
         "recommended_curve_band": rec_band,
         "expected_at_corpus_size": {
