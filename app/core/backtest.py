@@ -8,14 +8,15 @@
 2. Text-order backtest. The same from the spectra of the first 10%, 25%, 50% of the text (saved when the
    corpus is read): how far a model fitted on the beginning of a text misses its end, which includes the
    clustering of words by topic that no random-sampling model represents.
-3. Recommend: ``Ensemble``, the average of perfect Zipf and the recovered population spectrum unless the
-   random backtests show other models clearly more accurate (then an inverse-error weighted average), with
-   a nominal 90% range from a parametric bootstrap and the bias of its own backtests.
+3. Recommend: ``Ensemble``, a weighted average of the usable models whose weights are chosen by the random
+   backtests of this corpus (inverse expected squared error at 10x, shrunk toward equal weights and trimmed,
+   separately for V and for the legomena); no model is favoured by construction.
+4. Ranges: every model's (and the ensemble's) own parametric bootstrap spread, widened by its own backtest
+   bias (``ErrorBand``).
 """
 
 from __future__ import annotations
 
-import warnings
 from collections.abc import Mapping, Sequence
 from dataclasses import dataclass, replace
 from typing import Any, ClassVar
@@ -37,13 +38,33 @@ from app.core.spectrum import Spectrum
 RANDOM = "random"
 TEXT_ORDER = "text_order"
 LEGOMENA = 5  # V_1..V_5 are checked
-WEIGHT_FLOOR = 0.02  # relative error below which a backtest cannot rank models (see Ensemble)
-ANCHOR = ("perfect_zipf", "population_spectrum")  # averaged unless the backtests clearly favour others
-EVIDENCE_Z = 3.0  # paired z a model needs against the anchor to join the ensemble (see Ensemble)
-RANDOM_STATES = tuple(range(1, 5))  # random streams of the random backtests: 4 thinnings per fraction
-BOOTSTRAP_REPLICATES = (
-    8  # parametric bootstrap replicates of the recommended prediction (see bootstrap_spread)
-)
+FRACTIONS = (0.1, 0.25, 0.5)  # kept shares of the random backtests: extrapolations by 10x, 4x and 2x
+RANDOM_STATES = tuple(range(1, 7))
+"""Random streams of the random backtests: 6 thinnings per fraction, 18 runs. The runs at one fraction
+differ only by sampling, so they mainly measure a model's bias there; 6 per fraction put the standard error
+of a mean error at 1 / sqrt(6) = 0.41 of the run-to-run spread, enough to tell a model that errs by
+several of its own spreads (the differences that matter for the weights) at a cost of 18 fits per model."""
+TARGET_FACTOR = 10.0
+"""The extrapolation the weights are chosen for: the expected squared log error of a prediction 10x beyond
+the corpus (``expected_square_log_error``), the farthest factor the product's accuracy is measured at."""
+SHRINKAGE = 0.02**2
+"""Added to every model's expected squared log error before inverting it (``evidence_weights``): (2%)^2, the
+size of the run-to-run spread of backtest errors on texts of 20,000 to 200,000 tokens (a choice of ours).
+Models whose errors are both below 2% share the weight almost equally instead of the smaller error taking
+it all (shrinkage toward equal weights)."""
+TRIM_FACTOR = 4.0
+"""A model whose expected squared log error (plus SHRINKAGE) is more than 4 times the best model's gets
+weight 0: twice the best model's error in root-mean-square terms (trimming, chosen on the simulated
+populations and the 10% samples of books; see the README's accuracy section)."""
+MISFIT_TRIM = 3.0
+"""A model whose chi-square per degree of freedom on the whole corpus is more than 3 times the smallest
+among the models (or more than 3 when that is below 1) gets weight 0: a backtest from a tenth of the corpus
+cannot see a vocabulary that saturates, the fit to the whole spectrum can (an open model on a closed
+vocabulary misfits its spectrum by tens of chi-square units per degree of freedom)."""
+BOOTSTRAP_REPLICATES = 24
+"""Parametric bootstrap replicates per report (see ``bootstrap_spreads``). The relative standard error of a
+standard deviation estimated from R replicates is about 1 / sqrt(2 (R - 1)) (normal theory): 15% for 24,
+against 27% for 8; each replicate costs one fit of every model."""
 BOOTSTRAP_FACTORS = (2.0, 4.0, 10.0, 100.0)  # extrapolation factors the bootstrap spread is measured at
 BOOTSTRAP_STATE = 20261202  # random stream of the bootstrap
 
@@ -106,13 +127,16 @@ def _check(
 def _band(
     labels: np.ndarray, factors: np.ndarray, errors: np.ndarray, spread: tuple[tuple, tuple] = ((), ())
 ) -> ErrorBand | None:
-    """Mean factor, RMS and mean relative error (errors as fractions, NaN ignored) for each backtest label,
-    with the bootstrap spread (factors, relative sd)."""
+    """RMS and mean log error log(1 + e) for each backtest label at its mean factor (``errors`` are signed
+    relative errors e as fractions, NaN ignored), with a bootstrap spread (factors, sd of the log
+    prediction)."""
     points = []
+    with np.errstate(invalid="ignore", divide="ignore"):
+        log_errors = np.log1p(errors)
     for label in dict.fromkeys(labels):
-        here = (labels == label) & np.isfinite(errors)
+        here = (labels == label) & np.isfinite(log_errors)
         if here.any():
-            e = errors[here]
+            e = log_errors[here]
             points.append((float(np.mean(factors[here])), float(np.sqrt(np.mean(e**2))), float(np.mean(e))))
     points = sorted(p for p in points if p[0] > 1)
     if not points:
@@ -122,53 +146,28 @@ def _band(
 
 @dataclass(frozen=True)
 class Ensemble(BandedPredictions):
-    """The recommended predictor: the average of perfect Zipf and the recovered population spectrum, joined
-    by the models that the corpus's own backtests clearly show to be more accurate.
+    """The recommended predictor: a weighted average of the fitted models, the weights chosen by this
+    corpus's own random backtests.
 
         E_rec[V(n)]   = sum_j w_j E_j[V(n)],
         E_rec[V_k(n)] = E_rec[V(n)] * sum_j u_j E_j[V_k(n)] / sum_j u_j E_j[V(n)]
 
     (the legomena are the u-weighted mixture's shares of the types, so that V_1 + ... + V_k <= V at every
-    size whenever every member is coherent). Rule, applied separately to V (weights w) and to V_1..V_5
-    (weights u):
+    size whenever every member is coherent). The weights w (for V) and u (for V_1..V_5) are chosen
+    separately by ``evidence_weights`` from every usable model's random backtests on this corpus (each of
+    RANDOM_STATES thinnings at each of FRACTIONS, predicting the whole corpus): inverse expected squared log
+    error at TARGET_FACTOR, with shrinkage and trimming. Every model competes on the same terms: finite-
+    population models win the weight on a vocabulary that saturates (their backtests and their fits are the
+    ones that do not overshoot), open models on an open one. A model whose fit is degenerate (a parameter
+    on its domain's edge) or that fails on half of its backtests gets no weight.
 
-    1. Anchor: the equal average of perfect Zipf and the population spectrum (ANCHOR). Their errors are
-       complementary: perfect Zipf is stable but its bias grows with the size of the corpus (negative for
-       V and V_1 on large texts), the population spectrum (Valiant & Valiant 2017) is nearly unbiased but
-       noisier; averaging two forecasts with errors of opposite sign or little correlation lowers the error
-       (Bates & Granger 1969). When one of the two cannot be fitted, the other alone is the anchor; when
-       neither can, every usable model is a member.
-    2. Members: the anchor and each model that beats it clearly in the random backtests (RANDOM_STATES
-       thinnings at each of the fractions 0.1, 0.25, 0.5, pooled). Per run r, s_jr is model j's squared
-       relative error of V (of V_1..V_5: their mean); the anchor's error is the average of its two
-       models' signed errors. Model j joins when the paired one-sided statistic of
-       d_r = s_anchor,r - s_jr exceeds EVIDENCE_Z = 3:  mean(d) / (sd(d) / sqrt(R)) > 3  (Diebold &
-       Mariano 1995; the statistic is scipy.stats.ttest_rel's).
-    3. Weights among the members: proportional to 1 / (MSE + f^2), MSE = mean_r s_r, floor
-       f = WEIGHT_FLOOR = 2% (``inverse_error_weights``); the anchor's weight is shared equally by its two
-       models; the other models weigh 0.
-
-    Why these weights: backtests on thinnings ten times smaller than the corpus hardly tell which model
-    will extrapolate the corpus itself better (over public-domain books the correlation between a model's
-    backtest advantage and its real advantage was between -0.57 and +0.37), so they only let a model in
-    on strong evidence; the fixed pair is what the accuracy benchmark (``benchmarks/accuracy.py``, README
-    "Benchmarks") shows to be better than each model alone.
-
-    Measured with ``benchmarks/accuracy.py`` on 9 public-domain books (English, French, Dutch; 17,000 to
-    170,000 tokens), 5 random samples per book, median absolute % error over the 45 samples at 10x
-    (V / V_1): this rule 3.32 / 8.57, perfect Zipf 3.96 / 11.79, population spectrum 3.98 / 12.07, GIGP
-    4.99 / 10.99, finite Zipf-Mandelbrot 5.60 / 18.46; at 4x 1.07 / 2.37 against 1.61 / 6.08 for perfect
-    Zipf, the best single model there. The largest per-book bias of V at 10x is +6.9% (the smallest book).
-
-    The band (``ErrorBand``) combines the parametric bootstrap spread of this predictor (``bootstrap_spread``)
-    with the bias of its own random backtests; its 90% ranges held the truth in 93% of the samples above,
-    with a median half-width of 10% at 10x and 4% at 4x.
+    The band (``ErrorBand``) combines the ensemble's own parametric bootstrap spread (the same weights
+    applied to every member refitted on each replicate) with the bias of its own backtests.
     """
 
     name: ClassVar[str] = "recommended"
     title: ClassVar[str] = (
-        "recommended (average of perfect Zipf and the recovered population spectrum, unless the backtests "
-        "clearly prefer other models)"
+        "recommended (weighted average of the models, weights from this corpus's backtests)"
     )
 
     members: tuple[FittedModel, ...]
@@ -200,6 +199,7 @@ class Ensemble(BandedPredictions):
             "model": self.name,
             "title": self.title,
             "tokens": self.tokens,
+            "rule": WEIGHT_RULE,
             "weights": {
                 f.name: {"types": w, "legomena": u}
                 for f, w, u in zip(self.members, self.types_weights, self.legomena_weights, strict=True)
@@ -208,102 +208,188 @@ class Ensemble(BandedPredictions):
         }
 
 
-def run_squares(errors: np.ndarray) -> np.ndarray:
-    """Squared relative errors per run and model: ``errors`` is (runs, models) or (runs, models, k); over a
-    last axis k the finite squares are averaged. NaN where no error is finite."""
-    squares = np.asarray(errors, dtype=float) ** 2
-    if squares.ndim == 2:
-        return squares
-    finite = np.isfinite(squares)
+WEIGHT_RULE = (
+    f"weights chosen by this corpus's random backtests ({len(RANDOM_STATES)} random thinnings to each of "
+    f"{', '.join(f'{p:.0%}' for p in FRACTIONS)} of the tokens, every model predicting the whole): each "
+    "model's squared error is extrapolated to a prediction 10 times the corpus, weights are proportional to "
+    "1 / (that error + (2%)^2); a model whose error is more than 4 times the best one's, whose fit to the "
+    "corpus's spectrum is more than 3 times worse than the best fit (chi-square per degree of freedom), or "
+    "whose fit is degenerate gets weight 0; separately for the types and for V_1..V_5"
+)
+
+
+def expected_square_log_error(
+    errors: np.ndarray, factors: np.ndarray, target: float = TARGET_FACTOR
+) -> np.ndarray:
+    """Per model, the expected squared log error of a prediction ``target`` times beyond the corpus.
+
+    A backtest from a share 1/t of the corpus predicts t times its size. The log error y = log(1 + e) of an
+    extrapolation grows with the distance in log size, so per model y = c ln t + noise is fitted through the
+    origin (no error at t = 1) by least squares over every run (and every k of V_1..V_5 when ``errors`` is
+    (runs, models, k)): c = sum x y / sum x^2, x = ln t. The expected squared error at T is then
+    (ln T)^2 (c^2 + var c), var c = s^2 / sum x^2 with s^2 the residual variance (a prediction interval's
+    mean square for a regression through the origin; e.g. Draper & Smith, Applied Regression Analysis, ch.
+    1, from memory): bias and uncertainty of the error both count. Runs that failed (NaN) are left out; a
+    model with fewer than 2 runs gets infinity."""
+    e = np.asarray(errors, dtype=float)
+    if e.ndim == 2:
+        e = e[:, :, None]
     with np.errstate(invalid="ignore", divide="ignore"):
-        return np.where(finite, squares, 0).sum(axis=-1) / finite.sum(axis=-1)
+        y = np.log1p(e)
+    x = np.broadcast_to(np.log(np.asarray(factors, dtype=float))[:, None], e[:, 0, :].shape)
+    result = np.full(e.shape[1], np.inf)
+    for j in range(e.shape[1]):
+        ok = np.isfinite(y[:, j, :]) & np.isfinite(x) & (x > 0)
+        if ok.sum() < 2:
+            continue
+        xs, ys = x[ok], y[:, j, :][ok]
+        sxx = float(np.sum(xs**2))
+        slope = float(np.sum(xs * ys)) / sxx
+        slope_variance = float(np.sum((ys - slope * xs) ** 2)) / (ys.size - 1) / sxx
+        result[j] = np.log(target) ** 2 * (slope**2 + slope_variance)
+    return result
 
 
-def _mean_square(squares: np.ndarray) -> float:
-    """Mean of the finite squared errors; infinite when none is finite."""
-    finite = squares[np.isfinite(squares)]
-    return float(np.mean(finite)) if finite.size else np.inf
+def misfit_trimmed(misfit: np.ndarray, trim: float = MISFIT_TRIM) -> np.ndarray:
+    """True for the models whose chi-square per degree of freedom (NaN: none, never trimmed) is more than
+    ``trim`` times max(1, the smallest one): a misfit the model's own sampling noise cannot explain."""
+    misfit = np.asarray(misfit, dtype=float)
+    known = np.isfinite(misfit)
+    if not known.any():
+        return np.zeros(misfit.shape, dtype=bool)
+    return known & (misfit > trim * max(1.0, float(np.min(misfit[known]))))
 
 
-def inverse_error_weights(mean_squares: np.ndarray) -> np.ndarray:
-    """w_j = (1 / (MSE_j + f^2)) / sum_i (1 / (MSE_i + f^2)); equal weights when no MSE is finite."""
-    raw = 1 / (mean_squares + WEIGHT_FLOOR**2)
-    return raw / raw.sum() if raw.sum() > 0 else np.full(raw.shape, 1 / raw.size)
+def evidence_weights(
+    errors: np.ndarray,
+    factors: np.ndarray,
+    excluded: np.ndarray | None = None,
+    shrinkage: float = SHRINKAGE,
+    trim: float = TRIM_FACTOR,
+) -> np.ndarray:
+    """w_j proportional to 1 / (MSE_j + shrinkage), MSE_j = ``expected_square_log_error``; 0 for the models
+    ``excluded`` (misfit, degenerate) and for those with MSE_j + shrinkage > trim times the best one's.
+
+    Inverse mean-squared-error weights are the combination of Bates & Granger (1969) without the
+    covariances, the choice that forecast-combination studies find hard to beat (Stock & Watson 2004,
+    "Combination forecasts of output growth in a seven-country data set", which also trims the worst
+    forecasts; from memory); the shrinkage pulls models of similar accuracy toward equal weights (Smith &
+    Wallis 2009, the "forecast combination puzzle"). When every model is excluded, the exclusion is
+    ignored (the evidence then cannot tell them apart)."""
+    score = expected_square_log_error(errors, factors) + shrinkage
+    if excluded is not None and not np.all(excluded | ~np.isfinite(score)):
+        score = np.where(excluded, np.inf, score)
+    if not np.isfinite(score).any():
+        return np.full(score.shape, 1 / score.size)
+    weights = np.where(score <= trim * np.min(score), 1 / score, 0.0)
+    return weights / weights.sum()
 
 
-def clearly_better(anchor: np.ndarray, other: np.ndarray, z: float = EVIDENCE_Z) -> bool:
-    """Paired one-sided test that ``other`` has smaller squared errors than ``anchor`` (same runs):
-    d_r = anchor_r - other_r over the runs where both are finite; True when
-    mean(d) > z * sd(d) / sqrt(R) with the sample standard deviation (R - 1 degrees of freedom) and R >= 2."""
-    both = np.isfinite(anchor) & np.isfinite(other)
-    d = anchor[both] - other[both]
-    if d.size < 2:
-        return False
-    sd = float(np.std(d, ddof=1))
-    return bool(np.mean(d) > z * sd / np.sqrt(d.size)) if sd > 0 else bool(np.mean(d) > 0)
+def _misfit(fitted: FittedModel) -> float:
+    """Chi-square per degree of freedom of a fit (NaN when the model has no goodness-of-fit test)."""
+    g = fitted.goodness_of_fit
+    return g.statistic / g.df if g is not None and g.statistic is not None and g.df else float("nan")
 
 
-def anchored_weights(errors: np.ndarray, anchor: Sequence[int]) -> np.ndarray:
-    """Ensemble weights from signed relative errors (runs, models) or (runs, models, k): the anchor (the
-    equal average of the models ``anchor``, its error the average of theirs) and the models clearly better
-    than it share ``inverse_error_weights`` of their mean squares, the anchor's share split equally among
-    its models; the others get 0. Without an anchor every model is a member (see Ensemble)."""
-    errors = np.asarray(errors, dtype=float)
-    models = errors.shape[1]
-    squares = run_squares(errors)
-    if not anchor:
-        return inverse_error_weights(np.array([_mean_square(squares[:, j]) for j in range(models)]))
-    with np.errstate(invalid="ignore"), warnings.catch_warnings():
-        warnings.simplefilter("ignore", RuntimeWarning)  # runs where every anchor model failed: NaN
-        composite = run_squares(np.nanmean(errors[:, list(anchor)], axis=1, keepdims=True))[:, 0]
-    joiners = [j for j in range(models) if j not in anchor and clearly_better(composite, squares[:, j])]
-    shares = inverse_error_weights(
-        np.array([_mean_square(composite), *(_mean_square(squares[:, j]) for j in joiners)])
-    )
-    weights = np.zeros(models)
-    weights[list(anchor)] = shares[0] / len(anchor)
-    weights[joiners] = shares[1:]
-    return weights
+def combined_errors(errors: np.ndarray, weights: np.ndarray) -> np.ndarray:
+    """The ensemble's signed relative error in each run: sum_j w_j e_j, its weights renormalised over the
+    models that ran (NaN when none of weight > 0 did)."""
+    present = np.isfinite(errors)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return (np.where(present, errors, 0) @ weights) / (present @ weights)
 
 
-def bootstrap_spread(
+@dataclass(frozen=True)
+class BootstrapSpreads:
+    """The sd of the log prediction of V(t N) over parametric bootstrap replicates, at each factor t, for
+    every model (by name) and for the ensemble; a model absent from ``models`` could not be refitted on
+    enough replicates."""
+
+    factors: tuple[float, ...]
+    models: Mapping[str, tuple[float, ...]]
+    ensemble: tuple[float, ...]
+
+    def of(self, name: str) -> tuple[tuple, tuple]:
+        """(factors, sd) for ``ErrorBand``, or ((), ()) when there is none."""
+        sd = self.ensemble if name == Ensemble.name else self.models.get(name, ())
+        return (self.factors, sd) if sd else ((), ())
+
+
+def _weighted(ensemble: Ensemble) -> list[tuple[FittedModel, float, float]]:
+    """The members of weight > 0 (for V or for the legomena) with their two weights."""
+    members = zip(ensemble.members, ensemble.types_weights, ensemble.legomena_weights, strict=True)
+    return [(f, w, u) for f, w, u in members if w > 0 or u > 0]
+
+
+def between_models_sd(ensemble: Ensemble, factors: Sequence[float] = BOOTSTRAP_FACTORS) -> tuple[float, ...]:
+    """sqrt(sum_j w_j (log E_j[V(t N)] - log E_rec[V(t N)])^2) at each factor t: the weighted spread of the
+    members' predictions around the average (the between-model variance of a model average, Hoeting et
+    al. 1999), each member anchored at the corpus's V like the average."""
+    sizes = np.asarray(factors, dtype=float) * ensemble.tokens
+
+    def log_growth(predictor) -> np.ndarray:
+        return np.log(
+            np.asarray(predictor.types(sizes), dtype=float) / float(predictor.types(ensemble.tokens))
+        )
+
+    average = log_growth(ensemble)
+    squares = sum(w * (log_growth(f) - average) ** 2 for f, w, _ in _weighted(ensemble) if w > 0)
+    return tuple(map(float, np.sqrt(squares)))
+
+
+def _log_sd(predictions: list[np.ndarray]) -> tuple[float, ...]:
+    """Standard deviation (R - 1 degrees of freedom) of the log predictions at each factor; () for fewer
+    than 2 replicates."""
+    if len(predictions) < 2:
+        return ()
+    return tuple(map(float, np.std(np.log(np.array(predictions)), axis=0, ddof=1)))
+
+
+def bootstrap_spreads(
+    fitted: Mapping[str, FittedModel],
     recommended: Ensemble,
     population: FittedModel,
     spectrum: Spectrum,
     replicates: int = BOOTSTRAP_REPLICATES,
     factors: Sequence[float] = BOOTSTRAP_FACTORS,
-) -> tuple[tuple[float, ...], tuple[float, ...]]:
-    """Relative standard deviation of the recommended prediction of V(t N) at each factor t, by parametric
-    bootstrap (Efron & Tibshirani 1993, ch. 6): draw ``replicates`` spectra of N tokens from the recovered
-    population (``PopulationSpectrum.sample_spectrum``), refit every member of weight > 0 on each, and
-    predict with the same weights, anchored at the replicate's own V. Empty when no replicate could be
-    refitted."""
+) -> BootstrapSpreads:
+    """Each model's own sampling spread by parametric bootstrap (Efron & Tibshirani 1993, ch. 6): draw
+    ``replicates`` spectra of N tokens from the recovered population (``PopulationSpectrum.sample_spectrum``,
+    the least committal estimate of the population: a histogram, open or closed as the data say), refit
+    every model of ``fitted`` on each and predict V(t N) anchored at the replicate's own V; the ensemble
+    combines its members' replicate predictions with its own weights (replicates where a member of weight
+    > 0 failed are left out of its spread)."""
     rng = np.random.default_rng(BOOTSTRAP_STATE)
-    used = [
-        j
-        for j, (w, u) in enumerate(zip(recommended.types_weights, recommended.legomena_weights, strict=True))
-        if w > 0 or u > 0
-    ]
-    predictions = []
+    per_model: dict[str, list[np.ndarray]] = {name: [] for name in fitted}
+    combined: list[np.ndarray] = []
+    used = [(f.name, w, u) for f, w, u in _weighted(recommended)]
     for _ in range(replicates):
         replicate = population.model.sample_spectrum(spectrum.tokens, population.params, rng)
-        try:
-            members = [recommended.members[j].model.fit(replicate) for j in used]
-        except (ValueError, ArithmeticError, np.linalg.LinAlgError):
-            continue
-        ensemble = Ensemble(
-            tuple(members),
-            tuple(recommended.types_weights[j] for j in used),
-            tuple(recommended.legomena_weights[j] for j in used),
-            replicate.tokens,
-        )
         sizes = np.asarray(factors) * replicate.tokens
-        predictions.append(np.asarray(Anchored(ensemble, replicate).types(sizes), dtype=float))
-    if len(predictions) < 2:
-        return (), ()
-    values = np.array(predictions)
-    sd = np.std(values, axis=0, ddof=1) / np.mean(values, axis=0)
-    return tuple(map(float, factors)), tuple(map(float, sd))
+        refitted = {}
+        for name, model in fitted.items():
+            try:
+                with np.errstate(all="ignore"):
+                    refit = model.model.fit(replicate)
+                    values = np.asarray(Anchored(refit, replicate).types(sizes), dtype=float)
+            except (ValueError, ArithmeticError, np.linalg.LinAlgError):
+                continue
+            if np.all(np.isfinite(values)) and np.all(values > 0):
+                refitted[name] = refit
+                per_model[name].append(values)
+        if all(name in refitted for name, _, _ in used):
+            ensemble = Ensemble(
+                tuple(refitted[name] for name, _, _ in used),
+                tuple(w for _, w, _ in used),
+                tuple(u for _, _, u in used),
+                replicate.tokens,
+            )
+            combined.append(np.asarray(Anchored(ensemble, replicate).types(sizes), dtype=float))
+    return BootstrapSpreads(
+        tuple(map(float, factors)),
+        {name: sd for name, values in per_model.items() if (sd := _log_sd(values))},
+        _log_sd(combined),
+    )
 
 
 @dataclass(frozen=True)
@@ -355,15 +441,15 @@ def backtest(
     spectrum: Spectrum,
     prefix_spectra: Mapping[str, Spectrum] | None = None,
     random_states: Sequence[int] = RANDOM_STATES,
-    fractions: Sequence[float] = (0.1, 0.25, 0.5),
+    fractions: Sequence[float] = FRACTIONS,
     models: Mapping[str, VocabularyModel] = MODELS,
 ) -> BacktestReport:
     """Fit every model on the corpus and on its thinnings and prefixes, and build the recommended ensemble.
 
     ``random_states`` start one numpy Generator each (reproducible thinnings); every fraction is thinned
     once per state. A model is usable when it fits the full corpus and at least half of its random
-    backtests; the usable models are the ensemble's members, weighted by the rule of ``Ensemble`` (weight 0
-    for those the rule leaves out).
+    backtests; the usable models are the ensemble's members, weighted by ``evidence_weights`` (see
+    ``Ensemble``). Every fitted model gets its own band: its own bootstrap spread and backtest bias.
     """
     if spectrum.tokens and not spectrum.hapaxes:
         raise ValueError(
@@ -404,16 +490,11 @@ def backtest(
     usable = [j for j, name in enumerate(names) if name in fitted and ok[:, j].mean() >= 0.5]
     if not usable:
         raise ValueError("no model could be backtested on this corpus (too few tokens?)")
-    members = [names[j] for j in usable]
-    anchor = [members.index(name) for name in ANCHOR if name in members]
-    types_w = anchored_weights(types_err[:, usable], anchor)
-    legomena_w = anchored_weights(legomena_err[:, usable], anchor)
-
-    # The ensemble's own error in each random run: its weights renormalised over the models that ran.
-    member_err = types_err[:, usable]
-    present = np.isfinite(member_err)
-    with np.errstate(invalid="ignore", divide="ignore"):
-        ensemble_err = (np.where(present, member_err, 0) @ types_w) / (present @ types_w)
+    excluded = misfit_trimmed([_misfit(fitted[names[j]]) for j in usable]) | np.array(
+        [fitted[names[j]].degenerate is not None for j in usable]
+    )
+    types_w = evidence_weights(types_err[:, usable], factors, excluded)
+    legomena_w = evidence_weights(legomena_err[:, usable], factors, excluded)
     recommended = Ensemble(
         tuple(fitted[names[j]] for j in usable),
         tuple(map(float, types_w)),
@@ -421,12 +502,17 @@ def backtest(
         spectrum.tokens,
     )
     population = fitted.get("population_spectrum")
-    spread = bootstrap_spread(recommended, population, spectrum) if population is not None else ((), ())
-    for j in usable:
-        fitted[names[j]] = replace(fitted[names[j]], band=_band(labels, factors, types_err[:, j], spread))
-    recommended = replace(
-        recommended,
-        members=tuple(fitted[names[j]] for j in usable),
-        band=_band(labels, factors, ensemble_err, spread),
+    spreads = (
+        bootstrap_spreads(fitted, recommended, population, spectrum)
+        if population is not None
+        else BootstrapSpreads((), {}, ())
     )
+    for j, name in enumerate(names):
+        if name in fitted:
+            band = _band(labels, factors, types_err[:, j], spreads.of(name))
+            fitted[name] = replace(fitted[name], band=band)
+    band = _band(labels, factors, combined_errors(types_err[:, usable], types_w), spreads.of(Ensemble.name))
+    if band is not None:
+        band = replace(band, between_factors=BOOTSTRAP_FACTORS, between_sd=between_models_sd(recommended))
+    recommended = replace(recommended, members=tuple(fitted[names[j]] for j in usable), band=band)
     return BacktestReport(spectrum.tokens, fitted, failures, runs, recommended)

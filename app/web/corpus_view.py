@@ -146,6 +146,7 @@ def model_section(
             "gof": data["goodness_of_fit"],
             "backtests": backtests.get(name, {}),
             "weight": weights.get(name, {}).get("types"),
+            "legomena_weight": weights.get(name, {}).get("legomena"),
             "misfit": misfit.get(name),
         }
         for name, data in report["fitted"].items()
@@ -182,6 +183,7 @@ def model_section(
         "model_titles": modelling.model_titles(),
         "failures": report["failures"],
         "recommended_band": report["recommended"]["band"],
+        "weight_rule": report["recommended"]["rule"],
         "curves": curves,
         "not_continued": not_continued,
         "recommended_curve_band": rec_band,

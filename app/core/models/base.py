@@ -93,37 +93,45 @@ RANGE_LEVEL = 0.9
 """Nominal coverage of every prediction range."""
 Z90 = float(ndtri(0.5 + RANGE_LEVEL / 2))  # 1.645, the standard normal 95% quantile
 RANGE_METHOD = (
-    "nominal 90% range: +-1.645 x sqrt(s^2 + b^2) relative to the prediction, where s is the relative "
-    "standard deviation of the recommended prediction over parametric bootstrap replicates (samples of N "
-    "tokens drawn from the recovered population spectrum and refitted) and b is the model's mean signed "
-    "error in the random backtests at the same extrapolation factor (its bias)"
+    "nominal 90% range: the prediction times exp(-+1.645 sqrt(s^2 + b^2 [+ d^2])), where s is the standard deviation "
+    "of this model's own log prediction over parametric bootstrap replicates (samples of N tokens drawn "
+    "from the recovered population spectrum, each refitted) and b this model's mean log error in the random "
+    "backtests of this corpus at the same extrapolation factor (its bias); for the recommended average also "
+    "the weighted spread of its members' predictions; beyond N never below the types already observed"
 )
 
 
 def log_factor_curve(factors: tuple[float, ...], values: tuple[float, ...], t: ArrayLike) -> np.ndarray:
-    """A non-negative quantity known at extrapolation factors t_i > 1, as a function of t: linear in log t
-    from 0 at t = 1 through the points; beyond the largest factor in proportion to log t (an assumption:
-    each further tenfold extrapolation adds as much as the last); below 1 that of the reciprocal factor."""
+    """A non-negative error known at extrapolation factors t_i > 1 (ascending), as a function of t: linear in
+    log t from 0 at t = 1 through the running maximum of the values (a farther extrapolation is never
+    trusted more than a nearer one, even where its few backtests happened to err less); beyond the largest
+    factor in proportion to log t (an assumption: each further tenfold extrapolation adds as much as the
+    last); below 1 that of the reciprocal factor."""
     log_t = np.abs(np.log(np.asarray(t, dtype=float)))
     xs = np.concatenate(([0.0], np.log(factors)))
-    ys = np.concatenate(([0.0], values))
+    ys = np.maximum.accumulate(np.concatenate(([0.0], values)))
     inside = np.interp(log_t, xs, ys)
     return np.where(log_t > xs[-1], ys[-1] * log_t / xs[-1], inside)
 
 
 @dataclass(frozen=True)
 class ErrorBand:
-    """Relative error of a type-count prediction as a function of the extrapolation factor t = n / N_fit.
+    """Error of a type-count prediction as a function of the extrapolation factor t = n / N_fit, in log
+    units: the log error of a prediction is log(prediction / truth) (about its relative error when small).
 
     ``factors`` (ascending, > 1) are the factors a random backtest extrapolated over, ``rms`` the root mean
-    square and ``bias`` the mean of its signed relative errors there; ``sampling_factors`` and
-    ``sampling_sd`` the relative standard deviation of the prediction over parametric bootstrap replicates
-    (``app.core.backtest.bootstrap_spread``). Each curve is ``log_factor_curve``.
+    square and ``bias`` the mean of its log errors there; ``sampling_factors`` and ``sampling_sd`` the
+    standard deviation of the log prediction over parametric bootstrap replicates
+    (``app.core.backtest.bootstrap_spreads``). Each curve is ``log_factor_curve``.
 
-    The range is the nominal 90% range prediction / (1 + e) .. prediction / (1 - e), e = Z90 sqrt(s(t)^2 +
-    b(t)^2), the range of true values whose signed error e = (prediction - truth) / truth lies within +-e:
-    s the sampling spread of the data (bootstrap), b the model's own bias (backtests). Without a bootstrap
-    (a corpus too small for one) the backtest RMS stands in for both.
+    The range is the nominal 90% range prediction x exp(-e) .. prediction x exp(+e), e = Z90 sqrt(s(t)^2 +
+    b(t)^2 + d(t)^2): s the sampling spread of the data (bootstrap), b the model's own bias (backtests),
+    added as an independent error of unknown sign, and for an average of models d the weighted standard
+    deviation of its members' log predictions around it (``between_sd`` at ``between_factors``; the
+    between-model term of the variance of a model average, Hoeting, Madigan, Raftery & Volinsky 1999, eq.
+    2), 0 for a single model. Log units keep both ends positive and finite however large the error (a
+    relative range prediction / (1 -+ e) loses its upper end once e >= 1). Without a bootstrap (a corpus
+    too small for one) the backtest RMS stands in for s and b.
     """
 
     factors: tuple[float, ...]
@@ -131,47 +139,53 @@ class ErrorBand:
     bias: tuple[float, ...] = ()
     sampling_factors: tuple[float, ...] = ()
     sampling_sd: tuple[float, ...] = ()
+    between_factors: tuple[float, ...] = ()
+    between_sd: tuple[float, ...] = ()
 
-    def relative_error(self, t: ArrayLike) -> np.ndarray:
-        """The backtest RMS relative error at factor t."""
+    def log_error(self, t: ArrayLike) -> np.ndarray:
+        """The backtest RMS log error at factor t."""
         return log_factor_curve(self.factors, self.rms, t)
 
     def half_width(self, t: ArrayLike) -> np.ndarray:
         """e(t) of the class docstring."""
+        d = log_factor_curve(self.between_factors, self.between_sd, t) if self.between_factors else 0.0
         if not self.sampling_factors or not self.bias:
-            return Z90 * self.relative_error(t)
+            return Z90 * np.sqrt(self.log_error(t) ** 2 + d**2)
         s = log_factor_curve(self.sampling_factors, self.sampling_sd, t)
         b = log_factor_curve(self.factors, tuple(abs(v) for v in self.bias), t)
-        return Z90 * np.sqrt(s**2 + b**2)
+        return Z90 * np.sqrt(s**2 + b**2 + d**2)
 
     def limits(self, t: ArrayLike, prediction: ArrayLike) -> tuple[np.ndarray, np.ndarray]:
+        """prediction x exp(-e(t)) and prediction x exp(+e(t))."""
         e = self.half_width(t)
-        with np.errstate(divide="ignore"):
-            high = np.where(e < 1, np.asarray(prediction) / np.maximum(1 - e, 0.0), np.inf)
-        return np.asarray(prediction) / (1 + e), high
+        return np.asarray(prediction) * np.exp(-e), np.asarray(prediction) * np.exp(e)
 
     def as_dict(self) -> dict[str, Any]:
         return {
             "factors": list(self.factors),
-            "rms_relative_error": list(self.rms),
-            "mean_relative_error": list(self.bias),
-            "sampling": {"factors": list(self.sampling_factors), "relative_sd": list(self.sampling_sd)},
+            "rms_log_error": list(self.rms),
+            "mean_log_error": list(self.bias),
+            "sampling": {"factors": list(self.sampling_factors), "log_sd": list(self.sampling_sd)},
+            "between_models": {"factors": list(self.between_factors), "log_sd": list(self.between_sd)},
             "level": RANGE_LEVEL,
             "method": RANGE_METHOD,
         }
 
     @classmethod
     def from_dict(cls, data: Mapping[str, Any] | None) -> ErrorBand | None:
-        """Inverse of ``as_dict`` (also reads the older form with factors and RMS only)."""
+        """Inverse of ``as_dict``."""
         if not data:
             return None
         sampling = data.get("sampling") or {}
+        between = data.get("between_models") or {}
         return cls(
             tuple(data["factors"]),
-            tuple(data["rms_relative_error"]),
-            tuple(data.get("mean_relative_error", ())),
+            tuple(data["rms_log_error"]),
+            tuple(data.get("mean_log_error", ())),
             tuple(sampling.get("factors", ())),
-            tuple(sampling.get("relative_sd", ())),
+            tuple(sampling.get("log_sd", ())),
+            tuple(between.get("factors", ())),
+            tuple(between.get("log_sd", ())),
         )
 
 
