@@ -200,12 +200,13 @@ class Anchored:
     def _limits(self, n: float) -> tuple[float, float]:
         value = float(self.types(n))
         sd = self.types_sd(n)
-        if sd is not None:
-            return max(0.0, value - Z90 * sd), value + Z90 * sd
         band = getattr(self.predictor, "band", None)
-        if band is None:
+        if sd is not None:
+            low, high = value - Z90 * sd, value + Z90 * sd
+        elif band is not None:
+            low, high = band.limits(n / self.corpus.tokens, value)
+        else:
             return value, value
-        low, high = band.limits(n / self.corpus.tokens, value)
         low, high = range_within_possible(n, low, high, self.corpus.tokens, self.corpus.types)
         return float(low), float(high)
 

@@ -29,7 +29,7 @@ from app.core.models import MODELS, ErrorBand, FittedModel, Predictor
 from app.core.models.base import RANGE_LEVEL, RANGE_METHOD, Z90
 from app.core.models.goodness import spectrum_misfit
 from app.core.spectrum import Spectrum
-from app.core.validity import RANGE_BOUNDS, checked_prediction
+from app.core.validity import RANGE_BOUNDS, checked_prediction, range_within_possible
 from app.ingest import counts
 from app.store import corpora as store
 from app.store.tables import Corpus
@@ -113,11 +113,14 @@ RANDOM_ORDER_GROWTH = "random_order_growth"
 
 def random_order_growth_of(spectrum: Spectrum) -> dict:
     """Expected type growth of random samples with its nominal 90% range (exact hypergeometric) of a
-    spectrum: the exact interpolation, which ``predict`` gives for every model up to the corpus size."""
+    spectrum: the exact interpolation, which ``predict`` gives for every model up to the corpus size (the range
+    kept within the types a sample of n tokens can hold, as there)."""
     points = []
     for band in growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS)):
-        low, high = band.limits(Z90)
-        points.append({"tokens": band.tokens, "types": band.types, "sd": band.sd, "low": low, "high": high})
+        low, high = range_within_possible(band.tokens, *band.limits(Z90), spectrum.tokens, spectrum.types)
+        points.append(
+            {"tokens": band.tokens, "types": band.types, "sd": band.sd, "low": float(low), "high": float(high)}
+        )
     return {
         "method": "exact hypergeometric expectation over random samples without replacement",
         "range": {"level": RANGE_LEVEL, "method": INTERPOLATION_RANGE},

@@ -292,7 +292,7 @@ def test_the_predictions_table_and_the_growth_plot_agree_below_the_corpus_size(d
     """Up to the corpus size N the plot's random-order curve (/growth) and every model's prediction
     (/predict, the table's twin) are one number: the exact interpolation, here checked against
     scipy.stats.hypergeom type by type, with the same nominal 90% range (E +- 1.645 exact sd,
-    scipy.stats.norm.ppf(0.95)). Beyond N the plot draws each model as /predict serves it, from (N, V) on."""
+    scipy.stats.norm.ppf(0.95), its ends kept within the types a sample of n tokens can hold). Beyond N the plot draws each model as /predict serves it, from (N, V) on."""
     from scipy.stats import norm
 
     client, cid, _ = docstring_corpus
@@ -311,7 +311,10 @@ def test_the_predictions_table_and_the_growth_plot_agree_below_the_corpus_size(d
         exact = float(np.sum(1 - hypergeom.pmf(0, N, counts, n)))
         assert point["types"] == pytest.approx(exact, rel=1e-9)
         half = norm.ppf(0.95) * point["sd"]
-        assert (point["low"], point["high"]) == pytest.approx((exact - half, exact + half), rel=1e-9)
+        # a sample of n tokens holds at least max(1, V - (N - n)) and at most min(n, V) types
+        lowest, highest = max(1, V - (N - n)), min(n, V)
+        expected = (max(exact - half, lowest), min(exact + half, highest))
+        assert (point["low"], point["high"]) == pytest.approx(expected, rel=1e-9)
         for model in curves:
             body = client.get(f"/api/corpora/{cid}/predict", params={"tokens": n, "model": model}).json()
             assert body["method"] == "exact random-sample interpolation (hypergeometric)", model
