@@ -119,7 +119,13 @@ def random_order_growth_of(spectrum: Spectrum) -> dict:
     for band in growth_band(spectrum, growth_sizes(spectrum.tokens, RANDOM_GROWTH_POINTS)):
         low, high = range_within_possible(band.tokens, *band.limits(Z90), spectrum.tokens, spectrum.types)
         points.append(
-            {"tokens": band.tokens, "types": band.types, "sd": band.sd, "low": float(low), "high": float(high)}
+            {
+                "tokens": band.tokens,
+                "types": band.types,
+                "sd": band.sd,
+                "low": float(low),
+                "high": float(high),
+            }
         )
     return {
         "method": "exact hypergeometric expectation over random samples without replacement",
