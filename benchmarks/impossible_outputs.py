@@ -80,9 +80,12 @@ def prediction_problems(predictor: Any, sample_types: int, sizes: Iterable[float
 
 
 def unseen_problems(estimates: Sequence[UnseenEstimate]) -> Counter[str]:
-    """Negative new-type estimates and estimates that are not finite numbers."""
+    """Negative new-type estimates and estimates that are not finite numbers; an estimate withheld with its
+    reason (``value`` None) is an answer, not an impossible output."""
     problems: Counter[str] = Counter()
     for estimate in estimates:
+        if estimate.value is None:
+            continue
         if not np.isfinite(estimate.value):
             problems[UNSEEN_NOT_FINITE] += 1
         elif estimate.quantity == NEW_TYPES and estimate.value < 0:

@@ -95,3 +95,5 @@ def test_negative_and_non_finite_unseen_estimates_are_flagged():
     ]
     assert unseen_problems(estimates) == {NEGATIVE_NEW_TYPES: 1, UNSEEN_NOT_FINITE: 1}
     assert unseen_problems(estimates[1:2]) == {}
+    withheld = UnseenEstimate("Good-Toulmin", NEW_TYPES, None, "", 5.0, "beyond t = 1")
+    assert unseen_problems([withheld]) == {}
