@@ -263,18 +263,19 @@ def _strict(text: str):
 
 
 def test_far_horizon_gives_finite_figure_json(client, stdlib_text):
-    """The recommended model's backtest band has no upper edge once its error reaches 100% (far beyond
-    a small corpus): the growth figure must still be valid JSON."""
+    """Far beyond a small corpus (up to 10^6 times its size) the recommended model's range keeps both ends
+    finite and around its prediction (a band in log units, ``ErrorBand``), and the growth figure and the
+    JSON answers stay valid JSON (no NaN or Infinity, which a browser's JSON.parse refuses)."""
     from app.services import modelling
 
     words = re.findall(r"[a-z]+", stdlib_text.lower())
     corpus_id = upload(client, "small", content=" ".join(words[-3400:]).encode()).json()["id"]
     tokens = client.get(f"/api/corpora/{corpus_id}").json()["tokens"]
     recommended = modelling.load_models(client.app.state.engine, corpus_id).predictors["recommended"]
-    # The case this test is about: somewhere within the largest horizon the band loses its upper edge.
-    assert math.isinf(recommended.types_high(1000.0 * tokens)) or not np.all(
-        np.isfinite(recommended.types_high(np.geomspace(tokens, 1e6 * tokens, 50)))
-    )
+    sizes = np.geomspace(tokens, 1e6 * tokens, 50)
+    low, value, high = recommended.types_low(sizes), recommended.types(sizes), recommended.types_high(sizes)
+    assert np.all(np.isfinite(low) & np.isfinite(high)) and np.all((low <= value) & (value <= high))
+    assert np.all(low > 0)
     for horizon in (600, 1000):
         page = client.get(f"/corpora/{corpus_id}?horizon={horizon}")
         assert page.status_code == 200
