@@ -214,7 +214,8 @@ WEIGHT_RULE = (
     "model's squared error is extrapolated to a prediction 10 times the corpus, weights are proportional to "
     "1 / (that error + (2%)^2); a model whose error is more than 4 times the best one's, whose fit to the "
     "corpus's spectrum is more than 3 times worse than the best fit (chi-square per degree of freedom), or "
-    "whose fit is degenerate gets weight 0; separately for the types and for V_1..V_5"
+    "whose fit is degenerate gets weight 0, as does perfect Zipf from totals, which ignores the spectrum; "
+    "separately for the types and for V_1..V_5"
 )
 
 
@@ -268,7 +269,7 @@ def evidence_weights(
     trim: float = TRIM_FACTOR,
 ) -> np.ndarray:
     """w_j proportional to 1 / (MSE_j + shrinkage), MSE_j = ``expected_square_log_error``; 0 for the models
-    ``excluded`` (misfit, degenerate) and for those with MSE_j + shrinkage > trim times the best one's.
+    ``excluded`` (misfit, degenerate, fitted to totals alone) and for those with MSE_j + shrinkage > trim times the best one's.
 
     Inverse mean-squared-error weights are the combination of Bates & Granger (1969) without the
     covariances, the choice that forecast-combination studies find hard to beat (Stock & Watson 2004,
@@ -491,7 +492,7 @@ def backtest(
     if not usable:
         raise ValueError("no model could be backtested on this corpus (too few tokens?)")
     excluded = misfit_trimmed([_misfit(fitted[names[j]]) for j in usable]) | np.array(
-        [fitted[names[j]].degenerate is not None for j in usable]
+        [fitted[names[j]].degenerate is not None or not fitted[names[j]].model.reads_spectrum for j in usable]
     )
     types_w = evidence_weights(types_err[:, usable], factors, excluded)
     legomena_w = evidence_weights(legomena_err[:, usable], factors, excluded)

@@ -173,11 +173,15 @@ def test_weights_are_recomputed_from_the_recorded_backtests(report):
     for name in names:
         g = report.fitted[name].goodness_of_fit
         misfit.append(g.statistic / g.df if g.statistic is not None and g.df else np.nan)
-    excluded = misfit_trimmed(misfit) | np.array([report.fitted[n].degenerate is not None for n in names])
+    # the rule as the page states it: misfit, degenerate, or perfect Zipf from the totals alone
+    excluded = misfit_trimmed(misfit) | np.array(
+        [report.fitted[n].degenerate is not None or n == "perfect_zipf_totals" for n in names]
+    )
     for kind, weights in enumerate((ensemble.types_weights, ensemble.legomena_weights)):
         matrix = np.stack([errors[name][kind] for name in names], axis=1)
         np.testing.assert_allclose(weights, evidence_weights(matrix, factors, excluded), atol=1e-12)
         assert sum(weights) == pytest.approx(1.0)
+        assert weights[names.index("perfect_zipf_totals")] == 0
 
 
 def test_ensemble_rebuilt_from_its_dict_predicts_the_same(report, fzm_corpus):

@@ -313,6 +313,9 @@ class VocabularyModel(ABC):
     are ordinary values."""
     min_tokens: ClassVar[int] = 0
     """Fewest tokens the model is fitted to (its parameters are not identified on fewer)."""
+    reads_spectrum: ClassVar[bool] = True
+    """False for a model fitted to the totals alone: it ignores the spectrum a corpus has, so it is shown for
+    comparison but gets no weight in the recommendation (the same law fitted to the spectrum competes)."""
 
     @abstractmethod
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:

@@ -172,6 +172,7 @@ class PerfectZipfTotals(PerfectZipf):
 
     name = "perfect_zipf_totals"
     title = "perfect Zipf from totals (assumes x = 1)"
+    reads_spectrum = False
 
     def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:
         return FittedModel(
