@@ -68,6 +68,15 @@ def check_page(page, console, viewport: str) -> None:
     assert not console.problems(), console.problems()
 
 
+def in_view(page, selector: str) -> bool:
+    """Whether the element lies within the window as it is scrolled now."""
+    return page.evaluate(
+        "s => { const r = document.querySelector(s).getBoundingClientRect();"
+        " return r.top >= 0 && r.bottom <= window.innerHeight; }",
+        selector,
+    )
+
+
 @pytest.mark.parametrize("viewport", ["desktop", "phone"])
 def test_upload_pasted_tiny_text_warns_before_any_extrapolation(server, browser, screenshots, viewport):
     context, page, console = open_page(browser, VIEWPORTS[viewport])
@@ -341,11 +350,13 @@ def test_rename_relabel_and_delete_a_corpus_from_its_page(server, browser, scree
     page.wait_for_selector("#edit-saved")
     assert page.locator("h1").inner_text() == "Scratch, renamed"
     assert get_json(f"{server}/api/corpora/{cid}")["labels"] == {"author": "Cy", "register": "notes"}
-    # a label line that is not key=value: the problem beside the form, the text kept
-    page.fill("#edit-form textarea[name=labels]", "just words")
+    # a label without a key: the problem beside the form, in view, the text kept
+    page.fill("#edit-form textarea[name=labels]", "=just words")
     page.click("#edit-form button[type=submit]")
     page.wait_for_selector("#manage .error-box")
-    assert page.locator("#edit-form textarea[name=labels]").input_value() == "just words"
+    assert page.locator("#edit-form textarea[name=labels]").input_value() == "=just words"
+    page.wait_for_function("document.activeElement && document.activeElement.id === 'edit-error'")
+    assert page.locator("#edit-error").is_visible() and in_view(page, "#edit-error")
     console.messages.clear()  # that page answered 422, which Chromium logs
     check_page(page, console, "phone")
     shoot(page, screenshots, "corpus-manage", "phone")

@@ -210,6 +210,26 @@ def test_library_page_renames_and_saved_comparisons(corpus):
     assert client.get(f"/api/corpora/{other}").status_code == 404
 
 
+def test_one_label_reading_for_page_api_and_upload_keeps_lines_without_equals_as_a_note(corpus):
+    client, cid = corpus
+    typed = "author=Ada\nThis is a free text note\nnote=second thought\n\nregister = letters"
+    wanted = {"author": "Ada", "register": "letters", "note": "This is a free text note; second thought"}
+    answer = client.post(
+        f"/corpora/{cid}/edit", data={"name": "Docs renamed", "labels": typed}, follow_redirects=False
+    )
+    assert answer.status_code == 303
+    summary = client.get(f"/api/corpora/{cid}").json()
+    assert summary["name"] == "Docs renamed" and summary["labels"] == wanted
+    assert client.patch(f"/api/corpora/{cid}", json={"labels": typed}).json()["labels"] == wanted
+    uploaded = upload(client, "Speech", GETTYSBURG.encode(), labels=typed).json()
+    assert uploaded["labels"] == wanted
+    # a bad label changes nothing, the rename of the same submit included, and says so beside the form
+    answer = client.post(f"/corpora/{cid}/edit", data={"name": "Lost?", "labels": "=no key"})
+    assert answer.status_code == 422 and "Nothing was saved" in answer.text
+    assert 'value="Lost?"' in answer.text and "=no key</textarea>" in answer.text
+    assert client.get(f"/api/corpora/{cid}").json()["name"] == "Docs renamed"
+
+
 def test_in_lab_mode_only_the_owner_or_an_admin_changes_a_corpus_or_deletes_a_comparison(lab):  # noqa: F811
     client = lab.client()
     ben, cleo, ada = (bearer(lab.tokens[name]) for name in ("ben", "cleo", "ada"))
