@@ -307,13 +307,18 @@ def test_library_filters_and_comparison_settings(server, browser, corpora, scree
     assert "twice the largest corpus" in page.locator("#settings-form + .explain").inner_text()
     assert "not evidence of authorship or misconduct" in page.locator("#caution").inner_text()
 
-    # distinctive words say in words where each word is more frequent
+    # distinctive words say in words where each word is more frequent, or that it occurs on one side only
     directions = page.locator("#distinctive-table td.direction").all_inner_texts()
-    assert directions and all(d.startswith("more in ") for d in directions)
     table = get_json(f"{server}/api/compare?{page.url.split('?', 1)[1]}")["distinctive"]
     names = {c["id"]: c["name"] for c in get_json(f"{server}/api/corpora")}
-    top = table["words"][0]
-    assert directions[0].startswith(f"more in {names[table['first' if top['log_ratio'] > 0 else 'second']]}")
+    assert len(directions) == len(table["words"])
+    for shown, word in zip(directions, table["words"], strict=True):
+        if word["only_in"]:
+            side = "first" if word["only_in"] == 1 else "second"
+            assert shown == f"only in {names[table[side]]}" and "×" not in shown
+        else:
+            side = "first" if word["log_ratio"] > 0 else "second"
+            assert shown.startswith(f"more in {names[table[side]]}")
     page.wait_for_selector("#legomena-plot .main-svg")
     check_page(page, console, viewport)
     shoot(page, screenshots, "comparison-above-smallest", viewport)
