@@ -333,6 +333,8 @@ def test_library_filters_and_comparison_settings(server, browser, corpora, scree
     assert any(row["slug"] == slug for row in get_json(f"{server}/api/comparisons"))
     check_page(page, console, viewport)
     shoot(page, screenshots, "saved-comparisons", viewport)
+    page.click(f"#comparisons-table tr[data-slug='{slug}'] summary")  # "Delete…" asks first
+    assert any(row["slug"] == slug for row in get_json(f"{server}/api/comparisons"))
     page.click(f"#comparisons-table tr[data-slug='{slug}'] button")
     page.wait_for_selector("#deleted-notice")
     assert not any(row["slug"] == slug for row in get_json(f"{server}/api/comparisons"))

@@ -183,6 +183,20 @@ def test_live_page_errors_are_pages_with_the_reason(shared, query, status, messa
     assert "text/html" in response.headers["content-type"] and html.escape(message) in response.text
 
 
+def test_a_bad_setting_is_shown_beside_its_form_and_the_comparison_with_its_default(shared):
+    client, two = shared
+    # the same corpus on both sides of the pair: the whole comparison, the problem beside the pair form
+    response = client.get("/compare?corpus=1&corpus=2&first=2&second=2&min_freq=3&common_size=abc")
+    assert response.status_code == 422 and 'id="size-matched-table"' in response.text
+    page = response.text
+    pair_form = page[page.index('id="pair-form"') : page.index('id="problem-pair"')]
+    assert pair_form.count('value="2" selected') == 2  # both selects as chosen
+    assert "two different compared corpora" in page[page.index('id="problem-pair"') :]
+    assert 'name="common_size" value="abc"' in page and 'id="problem-common_size"' in page
+    # the setting that holds is used: the words are tested at the typed minimum frequency
+    assert 'name="min_freq" value="3"' in page and "at least 3 times" in page
+
+
 def test_blank_form_fields_mean_the_defaults(shared):
     client, two = shared
     response = client.get("/compare?corpus=1&corpus=2&common_size=&horizon=&first=&second=&min_freq=&limit=")

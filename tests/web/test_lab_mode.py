@@ -721,11 +721,11 @@ def test_public_permalink_has_no_content_hash_and_can_be_unpublished_and_deleted
         member.patch(f"/api/comparisons/{slug}", json={"public": True}, headers=ben).json()["public"] is True
     )
 
-    # and deletes it; then it is gone for everyone
-    assert (
-        browser.post(f"/compare/{slug}/delete", data={"csrf_token": csrf}, follow_redirects=False).status_code
-        == 303
-    )
+    # and deletes it, once confirmed; then it is gone for everyone
+    unconfirmed = browser.post(f"/compare/{slug}/delete", data={"csrf_token": csrf}, follow_redirects=False)
+    assert unconfirmed.status_code == 422 and browser.get(f"/compare/{slug}").status_code == 200
+    confirmed = {"csrf_token": csrf, "confirm": "yes"}
+    assert browser.post(f"/compare/{slug}/delete", data=confirmed, follow_redirects=False).status_code == 303
     assert member.get(f"/api/comparisons/{slug}", headers=ben).status_code == 404
     assert visitor.get(f"/compare/{slug}", follow_redirects=False).status_code == 303
     second = member.post("/api/comparisons", json={"corpora": lab.corpora}, headers=ben).json()["slug"]

@@ -201,6 +201,13 @@ def test_library_page_renames_and_saved_comparisons(corpus):
         listed[0]["slug"] == slug and listed[0]["corpora"] == ["Docs 2", "Speech"] and listed[0]["may_delete"]
     )
     assert slug in client.get("/comparisons").text
+    # the page's Delete asks first: without the confirmation nothing is deleted
+    assert client.post(f"/comparisons/{slug}/delete", follow_redirects=False).status_code == 422
+    assert client.get("/api/comparisons").json()[0]["slug"] == slug
+    confirmed = client.post(f"/comparisons/{slug}/delete", data={"confirm": "yes"}, follow_redirects=False)
+    assert confirmed.status_code == 303
+    assert client.get("/api/comparisons").json() == []
+    slug = client.post("/api/comparisons", json={"corpora": [cid, other]}).json()["slug"]
     assert client.delete(f"/api/comparisons/{slug}").status_code == 204
     assert client.get("/api/comparisons").json() == []
     assert (
