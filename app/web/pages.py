@@ -180,6 +180,7 @@ def corpus_page(
         plan_model = modelling.RECOMMENDED
     target = _planning_target(form)
     version = corpus_view.view_version(engine, corpus)
+    same = library.same_content(engine, corpus)
     settings = (form.text("q")[:200] or None, page, sizes_text, horizon, common_size, target, plan_model)
 
     def build_context() -> dict[str, Any]:
@@ -199,15 +200,15 @@ def corpus_page(
             "edit_form": edit,
             "edit_error": edit["error"] if edit else None,
             "edit_saved": form.text("saved") == "1" and not edit,
+            "same_content": same,
         }
 
     if form.errors or edit or version.report_stamp is None:
         # problems shown beside their forms (422), or models still being computed: rendered as they are
         status = 422 if form.errors or edit else 200
         return render(request, "corpus.html", status_code=status, **build_context())
-    return render_kept(
-        request, "corpus.html", (version, corpus.name, corpus.labels_json, corpus.owner_id), build_context
-    )
+    kept_key = (version, corpus.name, corpus.labels_json, corpus.owner_id, tuple(c["id"] for c in same))
+    return render_kept(request, "corpus.html", kept_key, build_context)
 
 
 @router.get("/estimate", response_class=HTMLResponse)

@@ -237,6 +237,31 @@ def test_one_label_reading_for_page_api_and_upload_keeps_lines_without_equals_as
     assert client.get(f"/api/corpora/{cid}").json()["name"] == "Docs renamed"
 
 
+def test_a_re_upload_of_the_same_content_says_so_and_offers_the_earlier_corpus(client):
+    first = upload(client, "Speech", GETTYSBURG.encode()).json()
+    assert first["same_content"] == []
+    # the same text again, under another name: still stored as a corpus of its own, and told so
+    again = upload(client, "Speech again", GETTYSBURG.encode(), filename="copy.txt")
+    assert again.status_code == 201
+    second = again.json()
+    assert second["id"] != first["id"]
+    assert [c["id"] for c in second["same_content"]] == [first["id"]]
+    assert [c["url"] for c in client.get(f"/api/corpora/{second['id']}").json()["same_content"]] == [
+        f"/corpora/{first['id']}"
+    ]
+    page = client.get(f"/corpora/{second['id']}").text
+    notice = page[page.index('id="same-content"') :].split("</p>", 1)[0]
+    assert "uploaded before as" in notice and f'href="/corpora/{first["id"]}"' in notice
+    assert "uploaded again later" in client.get(f"/corpora/{first['id']}").text
+    other = upload(client, "Other", b"a different text altogether with other words").json()
+    assert (
+        other["same_content"] == [] and 'id="same-content"' not in client.get(f"/corpora/{other['id']}").text
+    )
+    # the kept page of the first corpus forgets the copy once it is deleted
+    client.delete(f"/api/corpora/{second['id']}")
+    assert 'id="same-content"' not in client.get(f"/corpora/{first['id']}").text
+
+
 def test_in_lab_mode_only_the_owner_or_an_admin_changes_a_corpus_or_deletes_a_comparison(lab):  # noqa: F811
     client = lab.client()
     ben, cleo, ada = (bearer(lab.tokens[name]) for name in ("ben", "cleo", "ada"))
