@@ -162,7 +162,7 @@ def job_status(
 
 def with_warnings(summary: dict) -> dict:
     """A corpus summary with ``warnings``: sentences to show before any extrapolation (tiny texts)."""
-    warning = modelling.small_corpus_warning(summary["tokens"])
+    warning = modelling.small_corpus_warning(summary["tokens"], summary["types"])
     return summary | {"warnings": [warning] if warning else []}
 
 

@@ -362,7 +362,7 @@ def test_rename_relabel_and_delete_a_corpus_from_its_page(server, browser, scree
     page.click("#edit-form button[type=submit]")
     page.wait_for_selector("#manage .error-box")
     assert page.locator("#edit-form textarea[name=labels]").input_value() == "=just words"
-    page.wait_for_function("document.activeElement && document.activeElement.id === 'edit-error'")
+    wait_until(page, "document.activeElement && document.activeElement.id === 'edit-error'")
     assert page.locator("#edit-error").is_visible() and in_view(page, "#edit-error")
     console.messages.clear()  # that page answered 422, which Chromium logs
     check_page(page, console, "phone")

@@ -219,7 +219,7 @@ def test_documentation_page_is_served_entirely_by_the_app(client):
     assert page.status_code == 200
     assert not re.findall(r"<script>(.*?)</script>", page.text, re.S)  # no inline script
     sources = re.findall(r'(?:src|href)="([^"]+)"', page.text)
-    assert len(sources) == 3 and all(
+    assert len(sources) == 5 and all(  # icon, style sheet, the link back to the dashboard, two scripts
         source.startswith("/") and not source.startswith("//") for source in sources
     )
     for source in sources:
@@ -228,6 +228,9 @@ def test_documentation_page_is_served_entirely_by_the_app(client):
     assert "script-src 'self';" in policy and "http" not in policy
     assert client.get("/openapi.json").status_code == 200
     assert client.get("/redoc").status_code == 404  # ReDoc would need its CDN: not offered
+    assert "/" in sources and "/static/favicon.svg" in sources  # a way back, and an icon
+    icon = client.get("/favicon.ico")  # what a browser asks for on pages that name no icon
+    assert icon.status_code == 200 and icon.headers["content-type"].startswith("image/svg+xml")
 
 
 # ----------------------------------------------------------------------------------------------- gate

@@ -90,6 +90,12 @@ def test_small_texts_are_warned_about_before_any_extrapolation(client):
     assert html.index('id="small-corpus-warning"') < html.index('class="cards"')
     for name, fig in figures_of(html).items():  # a tiny text's unbounded band edges are gaps, not Infinity
         assert "Infinity" not in json.dumps(fig), name
+    # many tokens but a handful of types (a short word list, repeated): warned about by its types
+    words = " ".join(["alpha", "beta", "gamma", "delta", "tide", "gull", "boat"] * 400)
+    listed = upload(client, "Word list", words.encode()).json()
+    assert listed["tokens"] == 2800 and listed["types"] == 7
+    assert "only 7 different words" in listed["warnings"][0]
+    assert 'id="small-corpus-warning"' in client.get(f"/corpora/{listed['id']}").text
 
 
 def test_model_catalogue_and_descriptive_parameter_names(corpus):
