@@ -8,6 +8,7 @@ from __future__ import annotations
 
 import math
 import re
+import time
 
 import httpx
 import pytest
@@ -145,16 +146,21 @@ def test_comparison_pair_problem_distinctive_words_and_confirmed_deletion(
 @pytest.mark.parametrize("viewport", ["desktop", "phone"])
 def test_planning_answer_shown_on_its_plot_and_named_in_words(server, browser, two, viewport, screenshots):
     cid = two[1]
-    tokens = get_json(f"{server}/api/corpora/{cid}")["tokens"]
-    types = get_json(f"{server}/api/corpora/{cid}")["types"]
+    deadline = time.monotonic() + 240
+    while get_json(f"{server}/api/corpora/{cid}")["models"]["status"] != "ready":  # fitted by the worker
+        assert time.monotonic() < deadline, "the models were never fitted"
+        time.sleep(0.5)
+    summary = get_json(f"{server}/api/corpora/{cid}")
+    tokens, types = summary["tokens"], summary["types"]
     context, page, console = open_page(browser, VIEWPORTS[viewport])
     page.goto(f"{server}/corpora/{cid}#planning")
     assert page.get_attribute("#plan-form input[name=coverage]", "placeholder").startswith("e.g.")
-    page.fill("#plan-form input[name=types]", str(3 * types))
+    page.fill("#plan-form input[name=types]", str(2 * types))
     page.click("#plan-form button[type=submit]")
-    page.wait_for_selector("#plan-answer")
+    page.wait_for_selector("#plan-answer, #planning .error-box")
+    assert page.locator("#plan-answer").count() == 1, page.inner_text("#planning")
     page.wait_for_selector("#growth-plot .main-svg")
-    answer = get_json(f"{server}/api/corpora/{cid}/plan?types={3 * types}")["tokens"]
+    answer = get_json(f"{server}/api/corpora/{cid}/plan?types={2 * types}")["tokens"]
     assert answer > tokens
     # the plot opens where the answer lies: its x range holds it, and the extrapolated view is chosen
     assert page.is_checked("input[name=growth-plot-view][value=extrapolated]")
