@@ -369,6 +369,25 @@ def _segments(member: _Member) -> list[SegmentSpread]:
     return [SegmentSpread(**s) for s in member.text_order.get("segments") or []]
 
 
+def _spread_missing(
+    member: _Member, segments: list[SegmentSpread], size: int, no_random: bool, no_text: bool
+) -> str | None:
+    """Why a row of the spread table lacks numbers, in words (None when it has them all)."""
+    reasons = []
+    if no_random:
+        reasons.append(f"the corpus has fewer than {size:,} tokens, so no random sample of that size")
+    if no_text and not store.source(member.corpus)["text_order"]:
+        reasons.append("no text order: the corpus was made from counts, not from a text")
+    elif no_text and not segments:
+        reasons.append("the text is too short (under 100 tokens) for stretches to be measured")
+    elif no_text:
+        reasons.append(
+            f"stretches were measured from {segments[0].size:,} to {segments[-1].size:,} tokens, "
+            f"not at {size:,}"
+        )
+    return "; ".join(reasons) or None
+
+
 def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
     """Random-order and text-order spread of V at one size: n0, or less where needed so that every corpus
     with text segments has at least SPREAD_MIN_SEGMENTS non-overlapping stretches of that size."""
@@ -393,13 +412,14 @@ def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
                 "text_types": _num(text[0]) if text else None,
                 "text_sd": _num(text[1]) if text else None,
                 "segments": min(length // size, MAX_SEGMENTS) if text else 0,
+                "missing": _spread_missing(member, segments, size, random_band is None, text is None),
             }
         )
     note = SPREAD_NOTE.format(n=f"{size:,}")
     if size < n0:
         note += (
-            f" The size is below the common size so that every corpus gives at least {SPREAD_MIN_SEGMENTS} "
-            "stretches."
+            f" The size is below the common size so that every corpus with text stretches gives at least "
+            f"{SPREAD_MIN_SEGMENTS} of them."
         )
     return {"tokens": size, "rows": rows, "note": note}
 

@@ -299,3 +299,23 @@ def test_a_comparison_saved_before_one_level_says_which_levels_its_numbers_have(
     text = client.get(f"/compare/{slug}").text
     assert "nominal 90% range" not in text
     assert "are 95% ranges, the model-based ranges 90% ranges" in text
+
+
+def test_spread_rows_without_numbers_say_why(client, texts):
+    big = upload(client, "Long", texts[0].encode()).json()["id"]
+    tiny = upload(
+        client, "Note", b"the tide came in early and the boats stayed in the harbour all day"
+    ).json()
+    snapshot = client.get("/api/compare", params={"corpus": [big, tiny["id"]]}).json()
+    rows = {r["corpus_id"]: r for r in snapshot["spread"]["rows"]}
+    size = snapshot["spread"]["tokens"]
+    assert size == tiny["tokens"]  # the common size: the smallest corpus
+    # the long text's stretches were measured from 50 tokens on: none at the note's size, and it says so
+    assert rows[big]["text_types"] is None and f"not at {size:,}" in rows[big]["missing"]
+    short = rows[tiny["id"]]
+    assert short["segments"] == 0 and short["text_types"] is None
+    assert "too short" in short["missing"]
+    assert short["random_types"] is not None  # random samples of its own size exist
+    page = client.get("/compare", params={"corpus": [big, tiny["id"]]}).text
+    table = page[page.index('id="spread-table"') : page.index('id="spread-note"')]
+    assert "The text is too short" in table and "Stretches were measured from 50" in table
