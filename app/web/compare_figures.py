@@ -76,8 +76,12 @@ def _band(x: list[float], low: list, high: list, style: _Style, alpha: float) ->
     ]
 
 
-def _shade(x0: float, x1: float, fill: str, label: str, anchor: str) -> tuple[dict, dict]:
-    """A shaded x range behind the curves, labelled above the plot at its ``anchor`` ("left"/"right") end."""
+def _shade(
+    x0: float, x1: float, fill: str, label: str, anchor: str, inside: bool = False
+) -> tuple[dict, dict]:
+    """A shaded x range behind the curves, labelled at its ``anchor`` ("left"/"right") end: above the plot,
+    or ``inside`` it under the top edge (so that two labels of neighbouring ranges never run into each other
+    on a narrow screen)."""
     shape = {
         "type": "rect",
         "xref": "x",
@@ -96,7 +100,7 @@ def _shade(x0: float, x1: float, fill: str, label: str, anchor: str) -> tuple[di
         "xanchor": anchor,
         "y": 1,
         "yref": "paper",
-        "yanchor": "bottom",
+        "yanchor": "top" if inside else "bottom",
         "text": label,
         "showarrow": False,
         "font": {"color": MUTED, "size": 12},
@@ -190,7 +194,9 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
             pieces.append(_shade(largest, horizon, SHADE_ALL, "extrapolated", "right"))
         if horizon > smallest and largest > smallest:
             pieces.append(
-                _shade(smallest, min(largest, horizon), SHADE_SOME, "extrapolated for some", "left")
+                _shade(
+                    smallest, min(largest, horizon), SHADE_SOME, "extrapolated for some", "left", inside=True
+                )
             )
         pieces.append(_marker(snapshot["size_matched"]["tokens"], "common size"))
         log_x, x_title = max(horizon, largest) > LOG_AXIS_RATIO * smallest, "tokens"
