@@ -319,3 +319,26 @@ def test_spread_rows_without_numbers_say_why(client, texts):
     page = client.get("/compare", params={"corpus": [big, tiny["id"]]}).text
     table = page[page.index('id="spread-table"') : page.index('id="spread-note"')]
     assert "The text is too short" in table and "Stretches were measured from 50" in table
+
+
+def test_a_comparison_saved_before_per_million_frequencies_still_shows_its_words(shared):
+    """A permalink keeps the numbers it showed: one saved before the per-million frequencies and the log
+    ratio's interval shows its words with those cells empty, not an error."""
+    from sqlmodel import Session
+
+    from app.store.tables import SavedComparison
+
+    client, two = shared
+    slug = save(client, {"corpora": two}).json()["slug"]
+    with Session(client.app.state.engine) as session:
+        row = session.get(SavedComparison, slug)
+        snapshot = json.loads(row.snapshot_json)
+        for word in snapshot["distinctive"]["words"]:
+            for key in ("per_million1", "per_million2", "log_ratio_low", "log_ratio_high", "only_in"):
+                del word[key]
+        row.snapshot_json = json.dumps(snapshot)
+        session.add(row)
+        session.commit()
+    page = client.get(f"/compare/{slug}")
+    assert page.status_code == 200 and 'id="distinctive-table"' in page.text
+    assert client.get(f"/api/comparisons/{slug}/distinctive.csv").status_code == 200
