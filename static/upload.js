@@ -8,11 +8,17 @@
   var bar = document.getElementById("upload-progress");
   var message = document.getElementById("upload-message");
 
+  // value: a share done, or null for a stage without a measure of its own (the bar then shows activity,
+  // not a share it does not know); the status is kept in view, a problem focused as on every form
   function show(text, value, failed) {
+    var first = status.hidden;
     status.hidden = false;
     status.classList.toggle("error", !!failed);
+    status.setAttribute("role", failed ? "alert" : "status");
     message.textContent = text;
-    if (value !== null) { bar.value = value; }
+    if (value === null) { bar.removeAttribute("value"); } else { bar.value = value; }
+    if (first || failed) { status.scrollIntoView({ block: "nearest" }); }
+    if (failed) { status.setAttribute("tabindex", "-1"); status.focus({ preventScroll: true }); }
   }
 
   // The stages of an upload as the job reports them (app/services/jobs.py), in words.

@@ -20,7 +20,12 @@ Both spreads come from random-order sampling and understate the spread of real t
 cluster by topic.
 
 Distinctive words: Dunning's (1993) log-likelihood G^2 on the 2x2 table of a word's count against the rest
-of each corpus, and the log ratio effect size (Hardie 2014).
+of each corpus, and the log ratio effect size (Hardie 2014) with a confidence interval. A word's counts a and b
+are taken as independent Poisson counts with rates a / N1 and b / N2; the log of their ratio has the
+delta-method standard error sqrt(1/a + 1/b) (the Wald interval on the log scale for the ratio of two Poisson
+rates; e.g. Rothman, Greenland & Lash, Modern Epidemiology, 3rd ed. 2008, ch. 14). A word seen in one corpus
+only has no finite ratio: it is marked as occurring only there, and no ratio is made up for it (Hardie's 0.5
+for a zero count would turn the other corpus's size into a "finding").
 """
 
 from __future__ import annotations
@@ -39,6 +44,7 @@ from app.core.interpolation import (
     expected_types_binomial,
     types_band,
 )
+from app.core.models.base import RANGE_LEVEL, Z90
 from app.core.spectrum import Spectrum
 from app.core.unseen import good_toulmin_series
 
@@ -165,25 +171,62 @@ def dunning_g2(a: np.ndarray, b: np.ndarray, n1: int, n2: int) -> np.ndarray:
 
 
 def log_ratio(a: np.ndarray, b: np.ndarray, n1: int, n2: int) -> np.ndarray:
-    """Log ratio log2((a / N1) / (b / N2)), a zero count replaced by 0.5 (Hardie 2014): +1 means twice as
-    frequent (per token) in corpus 1."""
-    a = np.where(np.asarray(a) == 0, 0.5, a)
-    b = np.where(np.asarray(b) == 0, 0.5, b)
-    return np.log2((a / n1) / (b / n2))
+    """Log ratio log2((a / N1) / (b / N2)) (Hardie 2014): +1 means twice as frequent per token in corpus 1;
+    NaN where a count is zero (the word occurs in one corpus only: no finite ratio)."""
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    both = (a > 0) & (b > 0)
+    ratio = np.divide(a * n2, b * n1, out=np.full_like(a, np.nan), where=both)
+    return np.log2(ratio, out=np.full_like(a, np.nan), where=both)
+
+
+def log_ratio_interval(a: np.ndarray, b: np.ndarray, n1: int, n2: int) -> tuple[np.ndarray, np.ndarray]:
+    """Nominal 90% interval of the log ratio (log2 units): log_ratio -+ z sqrt(1/a + 1/b) / ln 2, the Wald
+    interval on the log scale for the ratio of two Poisson rates (standard error of a log rate ratio by the
+    delta method, Rothman, Greenland & Lash 2008, ch. 14); NaN where a count is zero."""
+    a = np.asarray(a, dtype=float)
+    b = np.asarray(b, dtype=float)
+    both = (a > 0) & (b > 0)
+    half = (
+        Z90
+        * np.sqrt(
+            np.divide(1.0, a, out=np.full_like(a, np.nan), where=both)
+            + np.divide(1.0, b, out=np.full_like(b, np.nan), where=both)
+        )
+        / math.log(2)
+    )
+    centre = log_ratio(a, b, n1, n2)
+    return centre - half, centre + half
+
+
+LOG_RATIO_LEVEL = RANGE_LEVEL
+"""Nominal coverage of the log ratio's interval (the level of every range the program shows)."""
+
+PER_MILLION = 1_000_000
 
 
 @dataclass(frozen=True)
 class DistinctiveWord:
-    """One word's counts in both corpora, its G^2 with p (raw and Holm-adjusted over every word tested) and
-    its log ratio (positive: more frequent in corpus 1)."""
+    """One word's counts and per-million frequencies in both corpora, its G^2 with p (raw and Holm-adjusted
+    over every word tested) and its log ratio (positive: more frequent in corpus 1) with its interval; a word
+    seen in one corpus only has ``only_in`` (1 or 2) and no log ratio (None)."""
 
     word: str
     count1: int
     count2: int
+    per_million1: float
+    per_million2: float
     g2: float
     p: float
     p_holm: float
-    log_ratio: float
+    log_ratio: float | None
+    log_ratio_low: float | None
+    log_ratio_high: float | None
+    only_in: int | None
+
+
+def _finite(value: float) -> float | None:
+    return float(value) if math.isfinite(value) else None
 
 
 def distinctive_words(
@@ -203,10 +246,22 @@ def distinctive_words(
     p = chdtrc(1, g2)  # chi-square survival function, one degree of freedom
     p_holm = holm_adjust(p)
     lr = log_ratio(a, b, n1, n2)
+    low, high = log_ratio_interval(a, b, n1, n2)
     order = np.argsort(-g2, kind="stable")[:limit]
     return [
         DistinctiveWord(
-            words[i], int(a[i]), int(b[i]), float(g2[i]), float(p[i]), float(p_holm[i]), float(lr[i])
+            words[i],
+            int(a[i]),
+            int(b[i]),
+            PER_MILLION * int(a[i]) / n1,
+            PER_MILLION * int(b[i]) / n2,
+            float(g2[i]),
+            float(p[i]),
+            float(p_holm[i]),
+            _finite(lr[i]),
+            _finite(low[i]),
+            _finite(high[i]),
+            1 if b[i] == 0 else 2 if a[i] == 0 else None,
         )
         for i in order
     ]

@@ -27,6 +27,7 @@ from app.core.models.base import Predictor
 
 SMALLEST = 1.0
 LARGEST = 1e15  # tokens: far beyond any corpus ever collected
+LARGEST_IN_WORDS = "a million billion tokens (10^15, far beyond any corpus ever collected)"
 
 
 class UnreachableTargetError(ValueError):
@@ -83,7 +84,7 @@ def tokens_for_types(
         lambda n: float(types(n)) - target,
         "number of types",
         f"{target:,.4g} types are already expected after the first token",
-        f"the model does not reach {target:,.0f} types within {LARGEST:,.0g} tokens",
+        f"unreachable: the model does not reach {target:,.0f} types within {LARGEST_IN_WORDS}",
     )
 
 
@@ -93,8 +94,15 @@ def tokens_for_rate(predictor: Predictor, rate: float) -> float:
         lambda n: rate - new_type_rate(predictor, n),
         "new-type rate",
         f"the new-type rate is below {rate:g} from the very first tokens",
-        f"the model's new-type rate stays above {rate:g} within {LARGEST:,.0g} tokens",
+        f"unreachable: the model's new-type rate stays above {rate:g} within {LARGEST_IN_WORDS}",
     )
+
+
+def finite_population_models() -> list[str]:
+    """The models with a finite population, named in words (their titles without the bracketed detail)."""
+    from app.core.models import MODELS  # the registry imports every model; planning needs it only here
+
+    return [m.title.split(" (")[0] for m in MODELS.values() if m.finite_population]
 
 
 def plan(predictor: Predictor, target: Target, population: float | None = None) -> float:
@@ -108,6 +116,6 @@ def plan(predictor: Predictor, target: Target, population: float | None = None) 
     if population is None:
         raise UnreachableTargetError(
             "this model's population is infinite (its vocabulary grows without bound), so a share of it is "
-            "never reached; choose bounded_power_law or sichel"
+            f"never reached; choose a model with a finite population: {' or '.join(finite_population_models())}"
         )
     return tokens_for_types(predictor.types, target.value * population, population)

@@ -24,7 +24,12 @@ from sqlalchemy.engine import Engine
 from app.config import PROGRAM_VERSION
 from app.core import richness
 from app.core.anchored import Anchored
-from app.core.comparison import distinctive_words, pairwise_z_tests, size_matched
+from app.core.comparison import (
+    LOG_RATIO_LEVEL,
+    distinctive_words,
+    pairwise_z_tests,
+    size_matched,
+)
 from app.core.interpolation import expected_spectrum, types_band
 from app.core.models import Predictor
 from app.core.models.base import RANGE_LEVEL, Z90
@@ -88,7 +93,20 @@ UNTESTED_REASON = {
     "model-based": "model-based value: its range is a backtest error, not a sampling spread",
     "unavailable": "no value at this size",
 }
-DISTINCTIVE_COLUMNS = ("word", "count1", "count2", "g2", "p", "p_holm", "log_ratio")
+DISTINCTIVE_COLUMNS = (
+    "word",
+    "count1",
+    "count2",
+    "per_million1",
+    "per_million2",
+    "g2",
+    "p",
+    "p_holm",
+    "log_ratio",
+    "log_ratio_low",
+    "log_ratio_high",
+    "only_in",
+)
 
 
 class ComparisonInputError(ValueError):
@@ -351,6 +369,25 @@ def _segments(member: _Member) -> list[SegmentSpread]:
     return [SegmentSpread(**s) for s in member.text_order.get("segments") or []]
 
 
+def _spread_missing(
+    member: _Member, segments: list[SegmentSpread], size: int, no_random: bool, no_text: bool
+) -> str | None:
+    """Why a row of the spread table lacks numbers, in words (None when it has them all)."""
+    reasons = []
+    if no_random:
+        reasons.append(f"the corpus has fewer than {size:,} tokens, so no random sample of that size")
+    if no_text and not store.source(member.corpus)["text_order"]:
+        reasons.append("no text order: the corpus was made from counts, not from a text")
+    elif no_text and not segments:
+        reasons.append("the text is too short (under 100 tokens) for stretches to be measured")
+    elif no_text:
+        reasons.append(
+            f"stretches were measured from {segments[0].size:,} to {segments[-1].size:,} tokens, "
+            f"not at {size:,}"
+        )
+    return "; ".join(reasons) or None
+
+
 def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
     """Random-order and text-order spread of V at one size: n0, or less where needed so that every corpus
     with text segments has at least SPREAD_MIN_SEGMENTS non-overlapping stretches of that size."""
@@ -375,13 +412,14 @@ def _spread(members: list[_Member], n0: int) -> dict[str, Any]:
                 "text_types": _num(text[0]) if text else None,
                 "text_sd": _num(text[1]) if text else None,
                 "segments": min(length // size, MAX_SEGMENTS) if text else 0,
+                "missing": _spread_missing(member, segments, size, random_band is None, text is None),
             }
         )
     note = SPREAD_NOTE.format(n=f"{size:,}")
     if size < n0:
         note += (
-            f" The size is below the common size so that every corpus gives at least {SPREAD_MIN_SEGMENTS} "
-            "stretches."
+            f" The size is below the common size so that every corpus with text stretches gives at least "
+            f"{SPREAD_MIN_SEGMENTS} of them."
         )
     return {"tokens": size, "rows": rows, "note": note}
 
@@ -454,6 +492,12 @@ and 296,000 types: 4.9 s, measured on the development machine), so the section s
 beyond, the page says so instead of keeping its request (and a server thread) busy for longer."""
 
 
+LOG_RATIO_METHOD = (
+    f"log2 of the ratio of per-token rates -+ {Z90:.3f} sqrt(1/count1 + 1/count2) / ln 2: the Wald interval on "
+    "the log scale for the ratio of two Poisson rates; a word counted in one corpus only has no ratio (only_in)"
+)
+
+
 def _distinctive_refusal(corpora: list[Corpus]) -> str | None:
     """Why the distinctive words of this pair are not computed in a page, or None when they are."""
     without = [c.name for c in corpora if not store.source(c)["word_list"]]
@@ -481,6 +525,7 @@ def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: in
         "min_freq": min_freq,
         "limit": limit,
         "tested": len(words),
+        "log_ratio_interval": {"level": LOG_RATIO_LEVEL, "method": LOG_RATIO_METHOD},
         "words": [
             {
                 "word": w.word,
@@ -489,7 +534,12 @@ def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: in
                 "g2": _num(w.g2),
                 "p": _num(w.p),
                 "p_holm": _num(w.p_holm),
+                "per_million1": _num(w.per_million1),
+                "per_million2": _num(w.per_million2),
                 "log_ratio": _num(w.log_ratio),
+                "log_ratio_low": _num(w.log_ratio_low),
+                "log_ratio_high": _num(w.log_ratio_high),
+                "only_in": w.only_in,
             }
             for w in words[:limit]
         ],
@@ -853,4 +903,4 @@ def size_matched_csv(snapshot: dict[str, Any]) -> str:
 def distinctive_csv(snapshot: dict[str, Any]) -> str:
     """The distinctive words of the snapshot's pair as CSV (count1 = first corpus, count2 = second)."""
     words = snapshot["distinctive"]["words"]
-    return table_text(DISTINCTIVE_COLUMNS, [[w[c] for c in DISTINCTIVE_COLUMNS] for w in words])
+    return table_text(DISTINCTIVE_COLUMNS, [[w.get(c) for c in DISTINCTIVE_COLUMNS] for w in words])

@@ -8,7 +8,6 @@ import numpy as np
 
 from app.core import planning
 from app.core.models import fit_from_totals
-from app.core.models.perfect_zipf import PerfectZipf
 from app.core.uniform import uniform_expected_types_closed_form, uniform_expected_types_exact
 from app.core.validity import first_problem, incoherence, types_problem
 
@@ -22,9 +21,10 @@ ASSUMPTION_WITH_HAPAXES = (
     "On public-domain books this predicted V at 10x the sample with a median error of a few per cent."
 )
 ASSUMPTION_TOTALS_ONLY = (
-    "Without hapax legomena the text is assumed to be perfectly Zipfian at its own size (x = 1): half of the "
-    "types are hapax legomena, one sixth dis legomena, V_k = V / (k (k+1)). Real texts often differ: their hapax "
-    "share typically lies between about 40% and 65%, so give the hapax count if you have it."
+    "No hapax count was given, so the text is assumed to be perfectly Zipfian at its own size (x = 1): half of "
+    "the types are hapax legomena (V_1 = V/2 = {hapaxes:,.0f} here, an assumption, not a count), one sixth dis "
+    "legomena, V_k = V / (k (k+1)); Z and W are then solved from your tokens and types. Real texts often "
+    "differ: their hapax share typically lies between about 40% and 65%, so give the hapax count if you have it."
 )
 
 
@@ -47,8 +47,8 @@ def estimate_from_totals(
         "input": {"tokens": tokens, "types": types, "hapaxes": hapaxes},
         "model": fitted.model.name,
         "assumption": ASSUMPTION_WITH_HAPAXES
-        if isinstance(fitted.model, PerfectZipf)
-        else ASSUMPTION_TOTALS_ONLY,
+        if hapaxes is not None
+        else ASSUMPTION_TOTALS_ONLY.format(hapaxes=types / 2),
         "not_applicable": None,
     }
     if fitted.degenerate:

@@ -32,8 +32,35 @@ class IngestionInputError(ValueError):
     """Input that cannot become a corpus; the message says why and nothing is stored."""
 
 
+NOTE_KEY = "note"
+"""The label that keeps the lines of a label text without "=" (a free-text note)."""
+
+
+def _label_lines(text: str) -> list[tuple[str, str]]:
+    """``key=value`` lines as pairs; the lines without "=" and any ``note=`` lines become one free-text
+    ``note`` (joined by "; " in their order), as the forms' help says."""
+    pairs: list[tuple[str, str]] = []
+    notes: list[str] = []
+    for line in text.splitlines():
+        if not line.strip():
+            continue
+        if "=" in line:
+            key, value = line.split("=", 1)
+            if key.strip() == NOTE_KEY:
+                notes.append(value)
+            else:
+                pairs.append((key, value))
+        else:
+            notes.append(line)
+    if notes:
+        pairs.append((NOTE_KEY, "; ".join(n.strip() for n in notes if n.strip())))
+    return pairs
+
+
 def parse_labels(text: str | dict | None) -> dict[str, str]:
-    """Labels as a JSON object or as ``key=value`` lines (blank lines ignored)."""
+    """Labels as a JSON object or as ``key=value`` lines (blank lines ignored; lines without "=" kept as a
+    free-text ``note``). The one reading of labels for the Upload form, the corpus page, the API and the
+    command line."""
     if text is None or text == "":
         return {}
     if isinstance(text, dict):
@@ -49,15 +76,7 @@ def parse_labels(text: str | dict | None) -> dict[str, str]:
                 raise IngestionInputError("labels: expected a JSON object of key/value pairs")
             items = parsed.items()
         else:
-            pairs = []
-            for line in stripped.splitlines():
-                if not line.strip():
-                    continue
-                if "=" not in line:
-                    raise IngestionInputError(f"labels: line {line.strip()!r} is not of the form key=value")
-                key, value = line.split("=", 1)
-                pairs.append((key, value))
-            items = pairs
+            items = _label_lines(stripped)
     items = list(items)
     if len(items) > MAX_LABELS:
         raise IngestionInputError(f"labels: at most {MAX_LABELS} labels")

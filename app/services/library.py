@@ -12,6 +12,7 @@ from sqlalchemy.engine import Engine
 from app.services.ingestion import check_name, parse_labels
 from app.store import comparisons as saved
 from app.store import corpora as store
+from app.store.tables import Corpus
 
 NOTE_LENGTH = 40
 """A label value longer than this is a free-text note: searchable, but not offered as a filter option."""
@@ -91,6 +92,16 @@ def rename_and_relabel(
     new_labels = None if labels is None else parse_labels(labels)
     store.update_corpus(engine, corpus_id, new_name, new_labels)
     return store.summary(store.get_corpus(engine, corpus_id))
+
+
+def same_content(engine: Engine, corpus: Corpus) -> list[dict[str, Any]]:
+    """The other corpora counted from the same content (the same SHA-256 of the text, or of the counts for
+    word-count lists and spectra), oldest first: a re-upload says so and offers them, and stays a corpus of
+    its own (uploading again on purpose, e.g. with another profile or other labels, is allowed)."""
+    return [
+        {"id": cid, "name": name, "url": f"/corpora/{cid}", "counted_at": counted.isoformat()}
+        for cid, name, counted in store.same_content(engine, corpus)
+    ]
 
 
 def saved_comparisons(engine: Engine) -> list[dict[str, Any]]:

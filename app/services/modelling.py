@@ -67,16 +67,25 @@ other code are never read back, and their tasks run again (their dedupe key hold
 SMALL_CORPUS_TOKENS = 1_000
 """Below this many tokens a spectrum holds too few repeated types for any extrapolation to be trusted (a
 rule of thumb of ours: backtests on texts of a few hundred tokens miss by tens of per cent)."""
+SMALL_CORPUS_TYPES = 100
+"""Fewer types than this leave a spectrum of a few frequency classes, too few to fit a model with two or three
+parameters and test it (a rule of thumb of ours, like the tokens' one)."""
 
 
-def small_corpus_warning(tokens: int) -> str | None:
-    """The warning shown before any extrapolation of a text under SMALL_CORPUS_TOKENS tokens (else None)."""
-    if tokens >= SMALL_CORPUS_TOKENS:
+def small_corpus_warning(tokens: int, types: int) -> str | None:
+    """The warning shown before any extrapolation of a text under SMALL_CORPUS_TOKENS tokens or with fewer
+    than SMALL_CORPUS_TYPES types (a short word list repeated many times has many tokens and almost no
+    spectrum), else None."""
+    if tokens < SMALL_CORPUS_TOKENS:
+        size = f"only {tokens:,} tokens (fewer than {SMALL_CORPUS_TOKENS:,})"
+    elif types < SMALL_CORPUS_TYPES:
+        size = f"only {types:,} different words (types; fewer than {SMALL_CORPUS_TYPES:,})"
+    else:
         return None
     return (
-        f"This text has only {tokens:,} tokens (fewer than {SMALL_CORPUS_TOKENS:,}): its spectrum holds too "
-        "few repeated words for models to be trusted. Treat every extrapolation beyond its own size as a rough "
-        "guess; the exact interpolation up to its size still holds."
+        f"This text has {size}: its spectrum holds too few repeated words for models to be trusted. Treat "
+        "every extrapolation beyond its own size as a rough guess; the exact interpolation up to its size "
+        "still holds."
     )
 
 

@@ -6,6 +6,7 @@ import json
 import unicodedata
 from collections.abc import Callable, Iterable, Iterator
 from dataclasses import dataclass, field
+from datetime import datetime
 from itertools import islice
 from typing import Any
 
@@ -260,6 +261,17 @@ def library_version(engine: Engine) -> tuple:
             ).order_by(Corpus.id)
         )
         return tuple(tuple(row) for row in rows)
+
+
+def same_content(engine: Engine, corpus: Corpus) -> list[tuple[int, str, datetime]]:
+    """(id, name, time of counting) of every other corpus with this corpus's content hash, oldest first."""
+    with Session(engine) as session:
+        rows = session.execute(
+            select(Corpus.id, Corpus.name, Corpus.created_at)
+            .where(Corpus.content_hash == corpus.content_hash, Corpus.id != corpus.id)
+            .order_by(Corpus.id)
+        )
+        return [tuple(row) for row in rows]
 
 
 def count_corpora(engine: Engine) -> int:

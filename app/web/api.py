@@ -15,7 +15,7 @@ from app.config import Settings
 from app.core import planning
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.ingest.readers import TextSource
-from app.services import estimator, exchange, ingestion, modelling, tasks
+from app.services import estimator, exchange, ingestion, library, modelling, tasks
 from app.services.jobs import Dispatcher
 from app.store import corpora as store
 from app.store import tasks as queue
@@ -125,7 +125,8 @@ async def upload_corpus(
     if task.state == queue.FAILED:
         raise HTTPException(status_code=422, detail=task.message)
     corpus = await run_in_threadpool(store.get_corpus, engine, task.corpus_id)
-    return with_warnings(store.summary(corpus))
+    same = await run_in_threadpool(library.same_content, engine, corpus)
+    return with_warnings(store.summary(corpus)) | {"same_content": same}
 
 
 async def wait_for(request: Request, engine: Engine, task: queue.TaskView, seconds: float) -> queue.TaskView:
@@ -161,7 +162,7 @@ def job_status(
 
 def with_warnings(summary: dict) -> dict:
     """A corpus summary with ``warnings``: sentences to show before any extrapolation (tiny texts)."""
-    warning = modelling.small_corpus_warning(summary["tokens"])
+    warning = modelling.small_corpus_warning(summary["tokens"], summary["types"])
     return summary | {"warnings": [warning] if warning else []}
 
 
@@ -169,9 +170,11 @@ def with_warnings(summary: dict) -> dict:
 def corpus_summary(
     corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, Depends(jobs_of)]
 ) -> dict:
-    """The corpus summary, whether its models are ready (``models.status``), and ``warnings`` to show
-    before any extrapolation (e.g. a text under 1,000 tokens)."""
-    summary = with_warnings(store.summary(corpus_or_404(engine, corpus_id)))
+    """The corpus summary, whether its models are ready (``models.status``), ``warnings`` to show before
+    any extrapolation (e.g. a text under 1,000 tokens) and ``same_content``: the other corpora counted from
+    the same content (id, name, url, counted_at)."""
+    corpus = corpus_or_404(engine, corpus_id)
+    summary = with_warnings(store.summary(corpus)) | {"same_content": library.same_content(engine, corpus)}
     return summary | {"models": jobs.models_status(corpus_id)}
 
 

@@ -11,6 +11,7 @@ from __future__ import annotations
 
 import re
 from collections.abc import Callable, Hashable
+from dataclasses import dataclass
 from typing import Annotated, Any
 from urllib.parse import urlencode
 
@@ -28,8 +29,9 @@ from app.web.compare_figures import comparison_figures
 from app.web.deps import engine_of
 from app.web.downloads import attachment
 from app.web.figures import PALETTE
+from app.web.forms import require_confirmation
 from app.web.jsonsafe import FiniteJSONResponse
-from app.web.pages import render_kept
+from app.web.pages import render, render_kept
 from app.web.security import Viewer, viewer_of
 
 router = APIRouter()
@@ -159,6 +161,51 @@ def _form_settings(
 
 QuerySettings = Annotated[service.ComparisonSettings, Depends(_query_settings)]
 
+PAGE_SETTINGS = ("common_size", "horizon", "pair", "min_freq", "limit")
+"""The settings of the page's forms; a bad one falls back to its default and is shown beside its form."""
+
+
+@dataclass(frozen=True)
+class PageSettings:
+    """The settings of a page request: those that hold, and a message per setting that does not (keyed
+    as ``PAGE_SETTINGS``) with the fields as typed, shown again in their forms."""
+
+    settings: service.ComparisonSettings
+    problems: dict[str, str]
+    typed: dict[str, str]
+
+
+def _page_settings(
+    corpus: Annotated[list[str], Query()] = [],  # noqa: B006
+    common_size: Annotated[str | None, Query(max_length=60)] = None,
+    horizon: Annotated[str | None, Query(max_length=60)] = None,
+    first: Annotated[str | None, Query(max_length=20)] = None,
+    second: Annotated[str | None, Query(max_length=20)] = None,
+    min_freq: Annotated[str | None, Query(max_length=20)] = None,
+    limit: Annotated[str | None, Query(max_length=20)] = None,
+) -> PageSettings:
+    """The page's settings, each checked on its own: the corpora must hold (else 422, nothing to show), a
+    bad setting is dropped for its default with its problem kept for the page (a form's problem beside it)."""
+    typed = {"common_size": common_size, "horizon": horizon, "first": first, "second": second}
+    typed |= {"min_freq": min_freq, "limit": limit}
+    fields = {
+        "common_size": {"common_size": common_size},
+        "horizon": {"horizon": horizon},
+        "pair": {"first": first, "second": second},
+        "min_freq": {"min_freq": min_freq},
+        "limit": {"limit": limit},
+    }
+    kept: dict[str, str | None] = {}
+    problems: dict[str, str] = {}
+    settings = _query_settings(corpus)
+    for name in PAGE_SETTINGS:
+        try:
+            settings = _query_settings(corpus, **(kept | fields[name]))
+            kept |= fields[name]
+        except HTTPException as exc:
+            problems[name] = str(exc.detail)
+    return PageSettings(settings, problems, {k: v or "" for k, v in typed.items()})
+
 
 def _live(engine: Engine, settings: service.ComparisonSettings) -> dict[str, Any]:
     return _snapshot(engine, _live_version(engine, settings))
@@ -216,9 +263,11 @@ def _page(
     slug: str | None = None,
     manage: bool = False,
     scale: str | None = None,
+    asked: PageSettings | None = None,
 ) -> Response:
     """The Comparison page of a snapshot computed only when the page is not kept (``render_kept``):
-    ``settings`` as the snapshot records them, ``slug`` for a saved one."""
+    ``settings`` as the snapshot records them, ``slug`` for a saved one; ``asked``: settings with problems,
+    shown beside their forms with the fields as typed (rendered as it is, 422)."""
     query = live_query(settings)
     base = f"/api/comparisons/{slug}" if slug else "/api/compare"
     suffix = "" if slug else f"?{query}"
@@ -241,8 +290,12 @@ def _page(
                 "distinctive": f"{base}/distinctive.csv{suffix}",
                 "json": f"{base}{suffix}{'&' if suffix else '?'}download=1",
             },
+            "problems": asked.problems if asked else {},
+            "typed": asked.typed if asked else {},
         }
 
+    if asked:
+        return render(request, "compare.html", status_code=422, **build_context())
     return render_kept(request, "compare.html", version, build_context)
 
 
@@ -276,11 +329,20 @@ def _distinctive_csv(snapshot: dict[str, Any]) -> Response:
 def compare_page(
     request: Request,
     engine: EngineDep,
-    settings: QuerySettings,
+    asked: Annotated[PageSettings, Depends(_page_settings)],
     scale: Annotated[str | None, Query(max_length=10)] = None,
 ):
-    live = _live_version(engine, settings)  # a kept page is sent without its snapshot
-    return _page(request, lambda: _snapshot(engine, live), live.settings.as_dict(), live.key, scale=scale)
+    """A live comparison; a setting that cannot be used is shown beside its form (422), the comparison
+    made with its default meanwhile."""
+    live = _live_version(engine, asked.settings)  # a kept page is sent without its snapshot
+    return _page(
+        request,
+        lambda: _snapshot(engine, live),
+        live.settings.as_dict(),
+        live.key,
+        scale=scale,
+        asked=asked if asked.problems else None,
+    )
 
 
 @router.post("/compare", include_in_schema=False)
@@ -303,7 +365,10 @@ def change_visibility_from_page(
 
 
 @router.post("/compare/{slug}/delete", include_in_schema=False)
-def delete_from_page(slug: str, engine: EngineDep, viewer: ViewerDep) -> RedirectResponse:
+def delete_from_page(
+    slug: str, engine: EngineDep, viewer: ViewerDep, confirm: Annotated[str, Form(max_length=10)] = ""
+) -> RedirectResponse:
+    require_confirmation(confirm)
     _manage(service.delete_saved, engine, slug, publisher(viewer))
     return RedirectResponse("/", status_code=303)
 

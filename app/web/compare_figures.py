@@ -76,8 +76,12 @@ def _band(x: list[float], low: list, high: list, style: _Style, alpha: float) ->
     ]
 
 
-def _shade(x0: float, x1: float, fill: str, label: str, anchor: str) -> tuple[dict, dict]:
-    """A shaded x range behind the curves, labelled above the plot at its ``anchor`` ("left"/"right") end."""
+def _shade(
+    x0: float, x1: float, fill: str, label: str, anchor: str, inside: bool = False
+) -> tuple[dict, dict]:
+    """A shaded x range behind the curves, labelled at its ``anchor`` ("left"/"right") end: above the plot,
+    or ``inside`` it under the top edge (so that two labels of neighbouring ranges never run into each other
+    on a narrow screen)."""
     shape = {
         "type": "rect",
         "xref": "x",
@@ -96,7 +100,7 @@ def _shade(x0: float, x1: float, fill: str, label: str, anchor: str) -> tuple[di
         "xanchor": anchor,
         "y": 1,
         "yref": "paper",
-        "yanchor": "bottom",
+        "yanchor": "top" if inside else "bottom",
         "text": label,
         "showarrow": False,
         "font": {"color": MUTED, "size": 12},
@@ -139,12 +143,13 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
         bands += _band(x_rnd, rnd["low"], rnd["high"], style, 0.12)
         dotted = {"color": style.colour, "width": 1.5, "dash": "dot"}
         name = f"{style.legend}: random order"
-        data.append(
-            _quiet(
-                line(x_rnd, rnd["types"], name, style.colour, line=dotted, hovertemplate=_hover(name, unit)),
-                style,
-            )
+        random_line = line(
+            x_rnd, rnd["types"], name, style.colour, line=dotted, hovertemplate=_hover(name, unit)
         )
+        if text["tokens"]:
+            data.append(_quiet(random_line, style))
+        else:  # counts or a spectrum, no text order: its random-order curve holds its legend entry
+            data.append(random_line | {"name": style.legend, "legendgroup": style.group})
         if model:
             x_model = [n / scale for n in model["tokens"]]
             bands += _band(x_model, model["low"], model["high"], style, 0.06)
@@ -162,17 +167,18 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
                     style,
                 )
             )
-        data.append(
-            line(
-                [n / scale for n in text["tokens"]],
-                text["types"],
-                style.legend,
-                style.colour,
-                legendgroup=style.group,
-                meta={"role": "observed", "corpus_id": cid},
-                hovertemplate=_hover(f"{style.legend}: text order", unit),
+        if text["tokens"]:
+            data.append(
+                line(
+                    [n / scale for n in text["tokens"]],
+                    text["types"],
+                    style.legend,
+                    style.colour,
+                    legendgroup=style.group,
+                    meta={"role": "observed", "corpus_id": cid},
+                    hovertemplate=_hover(f"{style.legend}: text order", unit),
+                )
             )
-        )
     data = bands + data
     smallest, largest = min(sizes.values()), max(sizes.values())
     pieces = []
@@ -188,15 +194,20 @@ def growth_figure(snapshot: dict[str, Any], normalised: bool = False) -> dict[st
             pieces.append(_shade(largest, horizon, SHADE_ALL, "extrapolated", "right"))
         if horizon > smallest and largest > smallest:
             pieces.append(
-                _shade(smallest, min(largest, horizon), SHADE_SOME, "extrapolated for some", "left")
+                _shade(
+                    smallest, min(largest, horizon), SHADE_SOME, "extrapolated for some", "left", inside=True
+                )
             )
         pieces.append(_marker(snapshot["size_matched"]["tokens"], "common size"))
         log_x, x_title = max(horizon, largest) > LOG_AXIS_RATIO * smallest, "tokens"
+    # a log token axis spans corpora of very different sizes; the types then go on a log axis too, so that a
+    # corpus of a few hundred tokens is not a flat line at 0 under one of a hundred thousand
     return figure(
         data,
         x_title,
         "types",
         log_x=log_x,
+        log_y=log_x,
         shapes=[s for s, _ in pieces],
         # plotly.js places annotations on a log axis by log10 of the position (shapes by the position)
         annotations=[n | {"x": math.log10(n["x"])} if log_x else n for _, n in pieces],

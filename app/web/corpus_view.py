@@ -86,14 +86,23 @@ def backtest_column(kind: str, label: str) -> tuple[str, str]:
     )
 
 
-def _backtest_table(report: dict) -> tuple[dict[str, dict[str, float | None]], dict[str, str]]:
-    """model -> {column heading: signed error of V in %}, and each heading's tooltip."""
-    table: dict[str, dict[str, float | None]] = {}
+BACKTEST_NOT_RUN = "not run: this model was not fitted to this part of the text"
+
+
+def _backtest_table(report: dict) -> tuple[dict[str, dict[str, float | str]], dict[str, str]]:
+    """model -> {column heading: signed error of V in %, or why there is none}, and each heading's tooltip.
+    A heading a model has no row for was not run for it (``BACKTEST_NOT_RUN``)."""
+    table: dict[str, dict[str, float | str]] = {}
     tips: dict[str, str] = {}
     for row in report["summary"]:
         heading, tip = backtest_column(row["kind"], row["label"])
         tips[heading] = tip
-        table.setdefault(row["model"], {})[heading] = row["types_error_percent"]
+        error = row["types_error_percent"]
+        table.setdefault(row["model"], {})[heading] = (
+            error
+            if error is not None
+            else f"failed: the model could not be fitted to the part in any of its {row['runs']:,} runs"
+        )
     return table, tips
 
 
@@ -179,6 +188,7 @@ def model_section(
         "model_rows": rows,
         "backtest_columns": columns,
         "backtest_tips": backtest_tips,
+        "backtest_not_run": BACKTEST_NOT_RUN,
         "fit_note": fit_note(tokens, rows),
         "model_titles": modelling.model_titles(),
         "failures": report["failures"],
@@ -345,8 +355,9 @@ def _derived_context(
             "words_page": page,
             "words_pages": max(1, -(-total_words // WORDS_PER_PAGE)),
             "json_url": f"/api/corpora/{corpus_id}",
-            "small_warning": modelling.small_corpus_warning(tokens),
+            "small_warning": modelling.small_corpus_warning(tokens, corpus.types),
             "plan_target": target,
+            "plan_marked": marker is not None,
             "plan_model": plan_model,
             "plan_labels": PLAN_LABELS,
         }

@@ -18,7 +18,17 @@ FONT = {"family": "system-ui, -apple-system, Segoe UI, Roboto, sans-serif", "siz
 OBSERVED = "#33414f"  # observed data: dark slate, solid
 RANDOM_ORDER = "#7d8796"  # the random-order expectation: grey, dotted, with a grey band
 RECOMMENDED = "#000000"  # the recommended model: black, thick dashes
-MODEL_DASHES = ("dash", "longdash", "dashdot", "longdashdot")
+MODEL_DASHES = (
+    "longdash",
+    "dashdot",
+    "longdashdot",
+    "9px,3px,3px,3px,3px,3px",  # dash dot dot
+    "18px,5px",  # long dash, short gap
+    "5px,4px",  # short dash
+    "15px,4px,3px,4px,3px,4px",  # long dash dot dot
+)
+"""One dash pattern per model; none is solid (the text itself), dotted (the random-order expectation) or the
+plain dash of the recommended model, so a model is told apart by its line even without its colour."""
 
 
 def colour(index: int) -> str:
@@ -36,8 +46,9 @@ class ModelStyle:
 
 
 def model_style(name: str) -> ModelStyle:
-    """One colour per model, everywhere: the model's place in the registry picks an Okabe-Ito colour (black is
-    kept for the recommended model); past the palette the dash pattern changes instead."""
+    """One colour and one dash pattern per model, everywhere: the model's place i in the registry picks the
+    Okabe-Ito colour i and the dash pattern i (black and the plain dash are kept for the recommended model);
+    past the seven colours the dash pattern moves on by one more, so no two models share both."""
     titles = modelling.model_titles()
     if name == modelling.RECOMMENDED:
         return ModelStyle(RECOMMENDED, "dash", "recommended", titles[name])
@@ -46,7 +57,7 @@ def model_style(name: str) -> ModelStyle:
     title = titles[name]
     return ModelStyle(
         lines[index % len(lines)],
-        MODEL_DASHES[(index // len(lines)) % len(MODEL_DASHES)],
+        MODEL_DASHES[(index + index // len(lines)) % len(MODEL_DASHES)],
         short(title),
         title,
     )
@@ -364,7 +375,8 @@ def growth_lines(
     )
     layout: dict[str, Any] = {}
     horizon = max((max(mx) for mx, _ in (models or {}).values()), default=corpus_tokens or 1)
-    log_x = bool(corpus_tokens and models and horizon > 50 * corpus_tokens)
+    planned = marker[0] if marker else None
+    log_x = bool(corpus_tokens and models and max(horizon, planned or 0) > 50 * corpus_tokens)
     if models and corpus_tokens and horizon > corpus_tokens:
         layout = extrapolation_shading(corpus_tokens, horizon, log_x)
     if marker:
@@ -388,14 +400,43 @@ def growth_lines(
         first = max(1, min([n for n, _ in text_order] + xs + [corpus_tokens]))
         observed_x = [math.log10(first), math.log10(corpus_tokens)] if log_x else [0, corpus_tokens]
         views = {
-            "observed": {
-                "xaxis.range": observed_x,
-                "yaxis.range": [0, observed_types * 1.08],
-            },
-            "extrapolated": {"xaxis.autorange": True, "yaxis.autorange": True},
+            "observed": {"xaxis.range": observed_x, "yaxis.range": [0, observed_types * 1.08]},
+            "extrapolated": extrapolated_view(
+                corpus_tokens, horizon, first, observed_types, models or {}, planned, log_x
+            ),
         }
-        layout |= views_control(views, "observed")
-        x_axis = axis("tokens", log_x, range=observed_x, autorange=False)
-        y_axis = axis("types", False, range=[0, observed_types * 1.08], autorange=False)
+        # a planning answer beyond the text is shown where it lies: the plot then opens on the extrapolation
+        default = "extrapolated" if planned and planned > corpus_tokens else "observed"
+        layout |= views_control(views, default)
+        x_axis = axis("tokens", log_x, range=views[default]["xaxis.range"], autorange=False)
+        y_axis = axis("types", False, range=views[default]["yaxis.range"], autorange=False)
         return figure(data, "tokens", "types", xaxis=x_axis, yaxis=y_axis, **layout)
     return figure(data, "tokens", "types", log_x=log_x, **layout)
+
+
+EXTRAPOLATED_DECADES = 2
+"""On a log token axis the extrapolated view starts this many powers of ten below the corpus size: the end of
+the text and what follows it, not the first few tokens (which take half of a log axis starting at 1)."""
+
+
+def extrapolated_view(
+    corpus_tokens: int,
+    horizon: float,
+    first: float,
+    observed_types: float,
+    models: dict[str, tuple[list[float], list[float]]],
+    planned: float | None,
+    log_x: bool,
+) -> dict[str, Any]:
+    """The axis ranges of the extrapolated view, chosen from what it must show: the text's end, the model
+    curves up to the horizon and the planning answer. The types axis reaches the highest model curve (and
+    the text), not the upper edge of a band, which may lie far above every curve."""
+    right = max(horizon, 1.1 * planned if planned else 0)
+    curves = [y for _, ys in models.values() for y in ys if y is not None and math.isfinite(y)]
+    top = max([observed_types, *curves])
+    if log_x:
+        left = max(first, corpus_tokens / 10**EXTRAPOLATED_DECADES)
+        x_range = [math.log10(left), math.log10(right)]
+    else:
+        x_range = [0, right]
+    return {"xaxis.range": x_range, "yaxis.range": [0, top * 1.08]}

@@ -14,6 +14,7 @@ from collections.abc import Mapping
 from dataclasses import dataclass, field
 from typing import Annotated, Any
 
+from fastapi import HTTPException
 from pydantic import BeforeValidator, Field
 
 _NUMBER = re.compile(r"[+-]?(\d+\.?\d*|\.\d+)(e[+-]?\d+)?")
@@ -100,3 +101,10 @@ class FormInput:
 
     def errors_of(self, *names: str) -> list[str]:
         return [self.errors[n] for n in names if n in self.errors]
+
+
+def require_confirmation(confirm: str) -> None:
+    """A deletion from a page goes ahead only when its form says it was confirmed (``confirm=yes``: a
+    second button after "Delete…", or a ticked box); otherwise 422 and nothing is deleted."""
+    if confirm != "yes":
+        raise HTTPException(status_code=422, detail="confirm the deletion first: nothing was deleted")

@@ -18,6 +18,7 @@ from app.store import comparisons as saved
 from app.store import corpora as store
 from app.web.api import CorpusId, with_warnings
 from app.web.deps import corpus_or_404, engine_of, jobs_of
+from app.web.forms import require_confirmation
 from app.web.pages import corpus_page, render
 from app.web.security import Viewer, viewer_of
 
@@ -68,8 +69,7 @@ def delete_corpus_from_page(
     confirm: Annotated[str, Form(max_length=10)] = "",
 ):
     corpus = _owned(engine, corpus_id, viewer)
-    if confirm != "yes":
-        raise HTTPException(status_code=422, detail="tick the box to confirm the deletion")
+    require_confirmation(confirm)
     store.delete_corpus(engine, corpus_id)
     return RedirectResponse(f"/?deleted={corpus.name[:200]}", status_code=303)
 
@@ -102,7 +102,10 @@ def _delete_comparison(engine: Engine, slug: str, viewer: Viewer) -> None:
 
 
 @router.post("/comparisons/{slug}/delete", include_in_schema=False)
-def delete_comparison_from_page(slug: str, engine: EngineDep, viewer: ViewerDep) -> RedirectResponse:
+def delete_comparison_from_page(
+    slug: str, engine: EngineDep, viewer: ViewerDep, confirm: Annotated[str, Form(max_length=10)] = ""
+) -> RedirectResponse:
+    require_confirmation(confirm)
     _delete_comparison(engine, slug, viewer)
     return RedirectResponse(f"/comparisons?deleted={slug}", status_code=303)
 

@@ -9,7 +9,7 @@ from typing import Annotated, Any
 
 from anyio import from_thread
 from fastapi import APIRouter, Depends, Request
-from fastapi.responses import HTMLResponse, Response
+from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from sqlalchemy.engine import Engine
 
 from app.config import TEMPLATES_DIR
@@ -115,6 +115,13 @@ def library_page(request: Request, engine: EngineDep, jobs: Annotated[Dispatcher
     return render_kept(request, "library.html", store.library_version(engine), build_context)
 
 
+@router.get("/favicon.ico")
+def favicon() -> RedirectResponse:
+    """Browsers ask for /favicon.ico on pages that name no icon (the API documentation, a JSON answer): the
+    dashboard's icon, not a 404 in their console."""
+    return RedirectResponse("/static/favicon.svg", status_code=301)
+
+
 @router.get("/upload", response_class=HTMLResponse)
 def upload(request: Request):
     return render(request, "upload.html", profiles=BUILTIN_PROFILES, json_url="/api/profiles")
@@ -180,6 +187,7 @@ def corpus_page(
         plan_model = modelling.RECOMMENDED
     target = _planning_target(form)
     version = corpus_view.view_version(engine, corpus)
+    same = library.same_content(engine, corpus)
     settings = (form.text("q")[:200] or None, page, sizes_text, horizon, common_size, target, plan_model)
 
     def build_context() -> dict[str, Any]:
@@ -199,15 +207,15 @@ def corpus_page(
             "edit_form": edit,
             "edit_error": edit["error"] if edit else None,
             "edit_saved": form.text("saved") == "1" and not edit,
+            "same_content": same,
         }
 
     if form.errors or edit or version.report_stamp is None:
         # problems shown beside their forms (422), or models still being computed: rendered as they are
         status = 422 if form.errors or edit else 200
         return render(request, "corpus.html", status_code=status, **build_context())
-    return render_kept(
-        request, "corpus.html", (version, corpus.name, corpus.labels_json, corpus.owner_id), build_context
-    )
+    kept_key = (version, corpus.name, corpus.labels_json, corpus.owner_id, tuple(c["id"] for c in same))
+    return render_kept(request, "corpus.html", kept_key, build_context)
 
 
 @router.get("/estimate", response_class=HTMLResponse)

@@ -75,7 +75,7 @@ MIN_KEY_CHARS = 32
 CSRF_HEADER = "x-csrf-token"
 CSRF_FIELD = "csrf_token"
 SAFE_METHODS = frozenset({"GET", "HEAD", "OPTIONS"})
-OPEN_PATHS = frozenset({"/login", "/api/health"})
+OPEN_PATHS = frozenset({"/login", "/api/health", "/favicon.ico"})
 OPEN_PREFIXES = ("/static/",)
 # Anonymous visitors may open these when the comparison is public (the word lists stay hidden).
 PUBLIC_PERMALINK = re.compile(
@@ -720,9 +720,12 @@ DOCS_PAGE = f"""<!doctype html>
 <head>
 <meta charset="utf-8">
 <title>Lexigrowth API</title>
+<link rel="icon" href="/static/favicon.svg" type="image/svg+xml">
 <link rel="stylesheet" href="{SWAGGER_ASSETS}/swagger-ui.css">
 </head>
 <body>
+<nav style="font: 15px system-ui, sans-serif; padding: 10px 20px; border-bottom: 1px solid #e6e9ef">
+<a href="/" id="back-to-dashboard">← Lexigrowth dashboard</a></nav>
 <div id="swagger-ui"></div>
 <script src="{SWAGGER_ASSETS}/swagger-ui-bundle.js"></script>
 <script src="/static/swagger-init.js"></script>

@@ -9,12 +9,14 @@ import numpy as np
 import pytest
 from scipy.stats import chi2_contingency
 from statsmodels.stats.multitest import multipletests
+from statsmodels.stats.rates import confint_poisson_2indep
 
 from app.core.comparison import (
     distinctive_words,
     dunning_g2,
     holm_adjust,
     log_ratio,
+    log_ratio_interval,
     pairwise_z_tests,
     population_variance_types,
     size_matched,
@@ -43,10 +45,30 @@ def test_g2_is_zero_for_equal_rates() -> None:
 
 
 def test_log_ratio_by_hand() -> None:
-    # Hardie (2014): log2((a / N1) / (b / N2)); a zero count is replaced by 0.5
+    # Hardie (2014): log2((a / N1) / (b / N2)); a zero count has no finite ratio (NaN, never a made-up one)
     assert log_ratio(np.array([20]), np.array([24]), N1, N2)[0] == pytest.approx(1.0)
-    assert log_ratio(np.array([0]), np.array([3]), 1000, 1000)[0] == pytest.approx(math.log2(0.5 / 3))
-    assert log_ratio(np.array([4]), np.array([0]), 1000, 2000)[0] == pytest.approx(math.log2(8 / 0.5))
+    assert np.isnan(log_ratio(np.array([0]), np.array([3]), 1000, 1000)[0])
+    assert np.isnan(log_ratio(np.array([4]), np.array([0]), 1000, 2000)[0])
+
+
+def test_log_ratio_interval_equals_statsmodels_wald_interval_for_two_poisson_rates() -> None:
+    # reference: statsmodels.stats.rates.confint_poisson_2indep(method="wald-log", compare="ratio"), the Wald
+    # interval of log(rate1 / rate2) with standard error sqrt(1/a + 1/b); ours is in log2 units, 90%
+    a, b = SAMPLE_TABLE[:, 0], SAMPLE_TABLE[:, 1]
+    low, high = log_ratio_interval(a, b, N1, N2)
+    for i, (x, y) in enumerate(SAMPLE_TABLE):
+        if x == 0 or y == 0:
+            assert np.isnan(low[i]) and np.isnan(high[i])
+            continue
+        ref_low, ref_high = confint_poisson_2indep(
+            int(x), N1, int(y), N2, method="wald-log", compare="ratio", alpha=0.1
+        )
+        assert low[i] == pytest.approx(math.log2(ref_low), rel=1e-9)
+        assert high[i] == pytest.approx(math.log2(ref_high), rel=1e-9)
+    # by hand (20 per 1,000 against 24 per 2,400: twice the rate): 1 -+ 1.645 sqrt(1/20 + 1/24) / ln 2
+    low, high = log_ratio_interval(np.array([20]), np.array([24]), 1000, 2400)
+    half = 1.6448536 * math.sqrt(1 / 20 + 1 / 24) / math.log(2)
+    assert (low[0], high[0]) == pytest.approx((1 - half, 1 + half), rel=1e-6)
 
 
 @pytest.mark.parametrize("draw", [0, 1, 2])
@@ -153,3 +175,19 @@ def test_distinctive_words_rank_by_g2_and_filter_rare_words() -> None:
         list(multipletests([r.p for r in rows], method="holm")[1])
     )
     assert len(distinctive_words(counts1, counts2, min_freq=5, limit=1)) == 1
+    # per-million frequencies on each side: count / corpus tokens x 10^6
+    assert (top.per_million1, top.per_million2) == pytest.approx((60e6 / n1, 20e6 / n2))
+
+
+def test_words_of_one_corpus_only_are_marked_and_get_no_ratio() -> None:
+    # 188 against 0 and 9 against 0: highly significant, but no finite ratio to headline
+    counts1 = {"letters": 188, "tide": 9, "the": 500}
+    counts2 = {"the": 480, "gull": 30}
+    rows = {r.word: r for r in distinctive_words(counts1, counts2, min_freq=5)}
+    assert rows["letters"].only_in == 1 and rows["gull"].only_in == 2 and rows["the"].only_in is None
+    for word in ("letters", "tide", "gull"):
+        row = rows[word]
+        assert row.log_ratio is None and row.log_ratio_low is None and row.log_ratio_high is None
+        assert row.p < 0.05
+    the = rows["the"]
+    assert the.log_ratio_low < the.log_ratio < the.log_ratio_high

@@ -72,8 +72,13 @@ def test_planned_coverage_is_reached_on_a_simulated_population():
 
 def test_unreachable_targets_say_why(fitted):
     pz = fitted["perfect_zipf"]
-    with pytest.raises(planning.UnreachableTargetError, match="infinite"):
+    with pytest.raises(planning.UnreachableTargetError, match="infinite") as refused:
         planning.plan(pz, planning.Target("share", 0.9))
+    # the models to choose instead, named in words as the page's menu names them, never by their ids
+    assert "bounded power law or Sichel mixture" in str(refused.value) and "_" not in str(refused.value)
+    with pytest.raises(planning.UnreachableTargetError, match="a million billion tokens") as refused:
+        planning.plan(pz, planning.Target("types", 1e16))
+    assert "e+" not in str(refused.value)
     fzm = fitted["bounded_power_law"]
     population = fzm.model.population_size(fzm.params)
     with pytest.raises(planning.UnreachableTargetError, match="population"):

@@ -68,6 +68,15 @@ def check_page(page, console, viewport: str) -> None:
     assert not console.problems(), console.problems()
 
 
+def in_view(page, selector: str) -> bool:
+    """Whether the element lies within the window as it is scrolled now."""
+    return page.evaluate(
+        "s => { const r = document.querySelector(s).getBoundingClientRect();"
+        " return r.top >= 0 && r.bottom <= window.innerHeight; }",
+        selector,
+    )
+
+
 @pytest.mark.parametrize("viewport", ["desktop", "phone"])
 def test_upload_pasted_tiny_text_warns_before_any_extrapolation(server, browser, screenshots, viewport):
     context, page, console = open_page(browser, VIEWPORTS[viewport])
@@ -298,13 +307,18 @@ def test_library_filters_and_comparison_settings(server, browser, corpora, scree
     assert "twice the largest corpus" in page.locator("#settings-form + .explain").inner_text()
     assert "not evidence of authorship or misconduct" in page.locator("#caution").inner_text()
 
-    # distinctive words say in words where each word is more frequent
+    # distinctive words say in words where each word is more frequent, or that it occurs on one side only
     directions = page.locator("#distinctive-table td.direction").all_inner_texts()
-    assert directions and all(d.startswith("more in ") for d in directions)
     table = get_json(f"{server}/api/compare?{page.url.split('?', 1)[1]}")["distinctive"]
     names = {c["id"]: c["name"] for c in get_json(f"{server}/api/corpora")}
-    top = table["words"][0]
-    assert directions[0].startswith(f"more in {names[table['first' if top['log_ratio'] > 0 else 'second']]}")
+    assert len(directions) == len(table["words"])
+    for shown, word in zip(directions, table["words"], strict=True):
+        if word["only_in"]:
+            side = "first" if word["only_in"] == 1 else "second"
+            assert shown == f"only in {names[table[side]]}" and "×" not in shown
+        else:
+            side = "first" if word["log_ratio"] > 0 else "second"
+            assert shown.startswith(f"more in {names[table[side]]}")
     page.wait_for_selector("#legomena-plot .main-svg")
     check_page(page, console, viewport)
     shoot(page, screenshots, "comparison-above-smallest", viewport)
@@ -319,6 +333,8 @@ def test_library_filters_and_comparison_settings(server, browser, corpora, scree
     assert any(row["slug"] == slug for row in get_json(f"{server}/api/comparisons"))
     check_page(page, console, viewport)
     shoot(page, screenshots, "saved-comparisons", viewport)
+    page.click(f"#comparisons-table tr[data-slug='{slug}'] summary")  # "Delete…" asks first
+    assert any(row["slug"] == slug for row in get_json(f"{server}/api/comparisons"))
     page.click(f"#comparisons-table tr[data-slug='{slug}'] button")
     page.wait_for_selector("#deleted-notice")
     assert not any(row["slug"] == slug for row in get_json(f"{server}/api/comparisons"))
@@ -341,11 +357,13 @@ def test_rename_relabel_and_delete_a_corpus_from_its_page(server, browser, scree
     page.wait_for_selector("#edit-saved")
     assert page.locator("h1").inner_text() == "Scratch, renamed"
     assert get_json(f"{server}/api/corpora/{cid}")["labels"] == {"author": "Cy", "register": "notes"}
-    # a label line that is not key=value: the problem beside the form, the text kept
-    page.fill("#edit-form textarea[name=labels]", "just words")
+    # a label without a key: the problem beside the form, in view, the text kept
+    page.fill("#edit-form textarea[name=labels]", "=just words")
     page.click("#edit-form button[type=submit]")
     page.wait_for_selector("#manage .error-box")
-    assert page.locator("#edit-form textarea[name=labels]").input_value() == "just words"
+    assert page.locator("#edit-form textarea[name=labels]").input_value() == "=just words"
+    wait_until(page, "document.activeElement && document.activeElement.id === 'edit-error'")
+    assert page.locator("#edit-error").is_visible() and in_view(page, "#edit-error")
     console.messages.clear()  # that page answered 422, which Chromium logs
     check_page(page, console, "phone")
     shoot(page, screenshots, "corpus-manage", "phone")

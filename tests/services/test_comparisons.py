@@ -196,9 +196,13 @@ def test_distinctive_words_match_scipy_log_likelihood_and_hardies_log_ratio(libr
         assert w["g2"] == pytest.approx(
             chi2_contingency(table, correction=False, lambda_="log-likelihood")[0]
         )
-        # Hardie (2014): log2 of the ratio of relative frequencies, 0.5 for a zero count
-        expected = math.log2((max(a, 0.5) / n1) / (max(b, 0.5) / n2))
-        assert w["log_ratio"] == pytest.approx(expected, rel=1e-12)
+        # Hardie (2014): log2 of the ratio of relative frequencies; none for a word of one corpus only
+        if a and b:
+            assert w["log_ratio"] == pytest.approx(math.log2((a / n1) / (b / n2)), rel=1e-12)
+            assert w["log_ratio_low"] < w["log_ratio"] < w["log_ratio_high"] and w["only_in"] is None
+        else:
+            assert w["log_ratio"] is None and w["only_in"] == (1 if a else 2)
+        assert (w["per_million1"], w["per_million2"]) == pytest.approx((a * 1e6 / n1, b * 1e6 / n2))
     csv_lines = service.distinctive_csv({"distinctive": result}).splitlines()
     assert csv_lines[0] == ",".join(service.DISTINCTIVE_COLUMNS) and len(csv_lines) == 41
 

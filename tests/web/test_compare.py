@@ -183,6 +183,20 @@ def test_live_page_errors_are_pages_with_the_reason(shared, query, status, messa
     assert "text/html" in response.headers["content-type"] and html.escape(message) in response.text
 
 
+def test_a_bad_setting_is_shown_beside_its_form_and_the_comparison_with_its_default(shared):
+    client, two = shared
+    # the same corpus on both sides of the pair: the whole comparison, the problem beside the pair form
+    response = client.get("/compare?corpus=1&corpus=2&first=2&second=2&min_freq=3&common_size=abc")
+    assert response.status_code == 422 and 'id="size-matched-table"' in response.text
+    page = response.text
+    pair_form = page[page.index('id="pair-form"') : page.index('id="problem-pair"')]
+    assert pair_form.count('value="2" selected') == 2  # both selects as chosen
+    assert "two different compared corpora" in page[page.index('id="problem-pair"') :]
+    assert 'name="common_size" value="abc"' in page and 'id="problem-common_size"' in page
+    # the setting that holds is used: the words are tested at the typed minimum frequency
+    assert 'name="min_freq" value="3"' in page and "at least 3 times" in page
+
+
 def test_blank_form_fields_mean_the_defaults(shared):
     client, two = shared
     response = client.get("/compare?corpus=1&corpus=2&common_size=&horizon=&first=&second=&min_freq=&limit=")
@@ -285,3 +299,46 @@ def test_a_comparison_saved_before_one_level_says_which_levels_its_numbers_have(
     text = client.get(f"/compare/{slug}").text
     assert "nominal 90% range" not in text
     assert "are 95% ranges, the model-based ranges 90% ranges" in text
+
+
+def test_spread_rows_without_numbers_say_why(client, texts):
+    big = upload(client, "Long", texts[0].encode()).json()["id"]
+    tiny = upload(
+        client, "Note", b"the tide came in early and the boats stayed in the harbour all day"
+    ).json()
+    snapshot = client.get("/api/compare", params={"corpus": [big, tiny["id"]]}).json()
+    rows = {r["corpus_id"]: r for r in snapshot["spread"]["rows"]}
+    size = snapshot["spread"]["tokens"]
+    assert size == tiny["tokens"]  # the common size: the smallest corpus
+    # the long text's stretches were measured from 50 tokens on: none at the note's size, and it says so
+    assert rows[big]["text_types"] is None and f"not at {size:,}" in rows[big]["missing"]
+    short = rows[tiny["id"]]
+    assert short["segments"] == 0 and short["text_types"] is None
+    assert "too short" in short["missing"]
+    assert short["random_types"] is not None  # random samples of its own size exist
+    page = client.get("/compare", params={"corpus": [big, tiny["id"]]}).text
+    table = page[page.index('id="spread-table"') : page.index('id="spread-note"')]
+    assert "The text is too short" in table and "Stretches were measured from 50" in table
+
+
+def test_a_comparison_saved_before_per_million_frequencies_still_shows_its_words(shared):
+    """A permalink keeps the numbers it showed: one saved before the per-million frequencies and the log
+    ratio's interval shows its words with those cells empty, not an error."""
+    from sqlmodel import Session
+
+    from app.store.tables import SavedComparison
+
+    client, two = shared
+    slug = save(client, {"corpora": two}).json()["slug"]
+    with Session(client.app.state.engine) as session:
+        row = session.get(SavedComparison, slug)
+        snapshot = json.loads(row.snapshot_json)
+        for word in snapshot["distinctive"]["words"]:
+            for key in ("per_million1", "per_million2", "log_ratio_low", "log_ratio_high", "only_in"):
+                del word[key]
+        row.snapshot_json = json.dumps(snapshot)
+        session.add(row)
+        session.commit()
+    page = client.get(f"/compare/{slug}")
+    assert page.status_code == 200 and 'id="distinctive-table"' in page.text
+    assert client.get(f"/api/comparisons/{slug}/distinctive.csv").status_code == 200

@@ -219,7 +219,7 @@ def test_documentation_page_is_served_entirely_by_the_app(client):
     assert page.status_code == 200
     assert not re.findall(r"<script>(.*?)</script>", page.text, re.S)  # no inline script
     sources = re.findall(r'(?:src|href)="([^"]+)"', page.text)
-    assert len(sources) == 3 and all(
+    assert len(sources) == 5 and all(  # icon, style sheet, the link back to the dashboard, two scripts
         source.startswith("/") and not source.startswith("//") for source in sources
     )
     for source in sources:
@@ -228,6 +228,9 @@ def test_documentation_page_is_served_entirely_by_the_app(client):
     assert "script-src 'self';" in policy and "http" not in policy
     assert client.get("/openapi.json").status_code == 200
     assert client.get("/redoc").status_code == 404  # ReDoc would need its CDN: not offered
+    assert "/" in sources and "/static/favicon.svg" in sources  # a way back, and an icon
+    icon = client.get("/favicon.ico")  # what a browser asks for on pages that name no icon
+    assert icon.status_code == 200 and icon.headers["content-type"].startswith("image/svg+xml")
 
 
 # ----------------------------------------------------------------------------------------------- gate
@@ -721,11 +724,11 @@ def test_public_permalink_has_no_content_hash_and_can_be_unpublished_and_deleted
         member.patch(f"/api/comparisons/{slug}", json={"public": True}, headers=ben).json()["public"] is True
     )
 
-    # and deletes it; then it is gone for everyone
-    assert (
-        browser.post(f"/compare/{slug}/delete", data={"csrf_token": csrf}, follow_redirects=False).status_code
-        == 303
-    )
+    # and deletes it, once confirmed; then it is gone for everyone
+    unconfirmed = browser.post(f"/compare/{slug}/delete", data={"csrf_token": csrf}, follow_redirects=False)
+    assert unconfirmed.status_code == 422 and browser.get(f"/compare/{slug}").status_code == 200
+    confirmed = {"csrf_token": csrf, "confirm": "yes"}
+    assert browser.post(f"/compare/{slug}/delete", data=confirmed, follow_redirects=False).status_code == 303
     assert member.get(f"/api/comparisons/{slug}", headers=ben).status_code == 404
     assert visitor.get(f"/compare/{slug}", follow_redirects=False).status_code == 303
     second = member.post("/api/comparisons", json={"corpora": lab.corpora}, headers=ben).json()["slug"]

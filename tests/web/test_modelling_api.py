@@ -113,10 +113,13 @@ def test_estimate_from_totals_and_uniform(client):
         [1 / 2, 1 / 6, 1 / 12, 1 / 20]
     )
     assert body["predictions"][-1]["types"] > 8_000 and "assum" in body["assumption"]
+    # the assumed hapax count is stated as such, and no hapax count is claimed to be reproduced
+    assert "V_1 = V/2 = 4,000" in body["assumption"] and "hapax legomena." not in body["assumption"]
     with_hapaxes = client.post(
         "/api/estimate", json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400}
     ).json()
     given = next(row for row in with_hapaxes["predictions"] if row["tokens"] == 50_000)
+    assert "V/2" not in with_hapaxes["assumption"]
     assert given["legomena"]["1"] == pytest.approx(4_400, rel=1e-6)
     # Uniform design: exact value equals scipy.stats.hypergeom (k types of r tokens each).
     k, r, n = 40, 7, 100

@@ -90,6 +90,12 @@ def test_small_texts_are_warned_about_before_any_extrapolation(client):
     assert html.index('id="small-corpus-warning"') < html.index('class="cards"')
     for name, fig in figures_of(html).items():  # a tiny text's unbounded band edges are gaps, not Infinity
         assert "Infinity" not in json.dumps(fig), name
+    # many tokens but a handful of types (a short word list, repeated): warned about by its types
+    words = " ".join(["alpha", "beta", "gamma", "delta", "tide", "gull", "boat"] * 400)
+    listed = upload(client, "Word list", words.encode()).json()
+    assert listed["tokens"] == 2800 and listed["types"] == 7
+    assert "only 7 different words" in listed["warnings"][0]
+    assert 'id="small-corpus-warning"' in client.get(f"/corpora/{listed['id']}").text
 
 
 def test_model_catalogue_and_descriptive_parameter_names(corpus):
@@ -201,6 +207,13 @@ def test_library_page_renames_and_saved_comparisons(corpus):
         listed[0]["slug"] == slug and listed[0]["corpora"] == ["Docs 2", "Speech"] and listed[0]["may_delete"]
     )
     assert slug in client.get("/comparisons").text
+    # the page's Delete asks first: without the confirmation nothing is deleted
+    assert client.post(f"/comparisons/{slug}/delete", follow_redirects=False).status_code == 422
+    assert client.get("/api/comparisons").json()[0]["slug"] == slug
+    confirmed = client.post(f"/comparisons/{slug}/delete", data={"confirm": "yes"}, follow_redirects=False)
+    assert confirmed.status_code == 303
+    assert client.get("/api/comparisons").json() == []
+    slug = client.post("/api/comparisons", json={"corpora": [cid, other]}).json()["slug"]
     assert client.delete(f"/api/comparisons/{slug}").status_code == 204
     assert client.get("/api/comparisons").json() == []
     assert (
@@ -208,6 +221,51 @@ def test_library_page_renames_and_saved_comparisons(corpus):
         == 303
     )
     assert client.get(f"/api/corpora/{other}").status_code == 404
+
+
+def test_one_label_reading_for_page_api_and_upload_keeps_lines_without_equals_as_a_note(corpus):
+    client, cid = corpus
+    typed = "author=Ada\nThis is a free text note\nnote=second thought\n\nregister = letters"
+    wanted = {"author": "Ada", "register": "letters", "note": "This is a free text note; second thought"}
+    answer = client.post(
+        f"/corpora/{cid}/edit", data={"name": "Docs renamed", "labels": typed}, follow_redirects=False
+    )
+    assert answer.status_code == 303
+    summary = client.get(f"/api/corpora/{cid}").json()
+    assert summary["name"] == "Docs renamed" and summary["labels"] == wanted
+    assert client.patch(f"/api/corpora/{cid}", json={"labels": typed}).json()["labels"] == wanted
+    uploaded = upload(client, "Speech", GETTYSBURG.encode(), labels=typed).json()
+    assert uploaded["labels"] == wanted
+    # a bad label changes nothing, the rename of the same submit included, and says so beside the form
+    answer = client.post(f"/corpora/{cid}/edit", data={"name": "Lost?", "labels": "=no key"})
+    assert answer.status_code == 422 and "Nothing was saved" in answer.text
+    assert 'value="Lost?"' in answer.text and "=no key</textarea>" in answer.text
+    assert client.get(f"/api/corpora/{cid}").json()["name"] == "Docs renamed"
+
+
+def test_a_re_upload_of_the_same_content_says_so_and_offers_the_earlier_corpus(client):
+    first = upload(client, "Speech", GETTYSBURG.encode()).json()
+    assert first["same_content"] == []
+    # the same text again, under another name: still stored as a corpus of its own, and told so
+    again = upload(client, "Speech again", GETTYSBURG.encode(), filename="copy.txt")
+    assert again.status_code == 201
+    second = again.json()
+    assert second["id"] != first["id"]
+    assert [c["id"] for c in second["same_content"]] == [first["id"]]
+    assert [c["url"] for c in client.get(f"/api/corpora/{second['id']}").json()["same_content"]] == [
+        f"/corpora/{first['id']}"
+    ]
+    page = client.get(f"/corpora/{second['id']}").text
+    notice = page[page.index('id="same-content"') :].split("</p>", 1)[0]
+    assert "uploaded before as" in notice and f'href="/corpora/{first["id"]}"' in notice
+    assert "uploaded again later" in client.get(f"/corpora/{first['id']}").text
+    other = upload(client, "Other", b"a different text altogether with other words").json()
+    assert (
+        other["same_content"] == [] and 'id="same-content"' not in client.get(f"/corpora/{other['id']}").text
+    )
+    # the kept page of the first corpus forgets the copy once it is deleted
+    client.delete(f"/api/corpora/{second['id']}")
+    assert 'id="same-content"' not in client.get(f"/corpora/{first['id']}").text
 
 
 def test_in_lab_mode_only_the_owner_or_an_admin_changes_a_corpus_or_deletes_a_comparison(lab):  # noqa: F811
