@@ -73,24 +73,33 @@ def test_fit_rejects_an_empty_spectrum():
 
 def test_error_band_grows_with_the_extrapolation_factor():
     band = ErrorBand((2.0, 4.0, 10.0), (0.01, 0.02, 0.05))
-    assert band.relative_error(1.0) == 0.0
-    np.testing.assert_allclose(band.relative_error([2.0, 4.0, 10.0]), [0.01, 0.02, 0.05])
+    assert band.log_error(1.0) == 0.0
+    np.testing.assert_allclose(band.log_error([2.0, 4.0, 10.0]), [0.01, 0.02, 0.05])
     # linear in log t between factors, proportional to log t beyond the last, symmetric for t < 1
-    assert band.relative_error(math.sqrt(8.0)) == pytest.approx(0.015)
-    assert band.relative_error(100.0) == pytest.approx(0.10)
-    assert band.relative_error(0.25) == pytest.approx(0.02)
+    assert band.log_error(math.sqrt(8.0)) == pytest.approx(0.015)
+    assert band.log_error(100.0) == pytest.approx(0.10)
+    assert band.log_error(0.25) == pytest.approx(0.02)
+    # never narrower farther out: a smaller RMS at 10x than at 4x is raised to the 4x one (running maximum)
+    assert ErrorBand((2.0, 4.0, 10.0), (0.01, 0.04, 0.03)).log_error(10.0) == pytest.approx(0.04)
     low, high = band.limits(10.0, 1000.0)
-    # Without a bootstrap: the 90% normal range of the signed error e = (prediction - truth) / truth from
-    # the RMS, truth = prediction / (1 + e); z = scipy.stats.norm.ppf(0.95).
+    # Without a bootstrap: the nominal 90% range of the log error from the RMS, prediction x exp(-+ z rms);
+    # z = scipy.stats.norm.ppf(0.95). Both ends stay positive however large the error.
     z = stats.norm.ppf(0.95)
-    assert low == pytest.approx(1000 / (1 + z * 0.05))
-    assert high == pytest.approx(1000 / (1 - z * 0.05))
-    # With a bootstrap spread s and a backtest bias b: e = z sqrt(s^2 + b^2), each curve linear in log t.
+    assert low == pytest.approx(1000 * math.exp(-z * 0.05))
+    assert high == pytest.approx(1000 * math.exp(z * 0.05))
+    wide_low, wide_high = ErrorBand((2.0,), (1.5,)).limits(100.0, 1000.0)
+    assert 0 < wide_low < 1000 < wide_high < math.inf
+    # With a bootstrap spread s, a backtest bias b and a between-model spread d: e = z sqrt(s^2 + b^2 + d^2),
+    # each curve linear in log t.
     full = ErrorBand((2.0, 4.0, 10.0), (0.01, 0.02, 0.05), (0.0, -0.01, -0.03), (10.0, 100.0), (0.04, 0.08))
     assert full.half_width(10.0) == pytest.approx(z * math.hypot(0.04, 0.03))
     assert full.half_width(100.0) == pytest.approx(z * math.hypot(0.08, 0.06))
     assert full.half_width(4.0) == pytest.approx(z * math.hypot(0.04 * math.log(4) / math.log(10), 0.01))
-    assert ErrorBand.from_dict(json.loads(json.dumps(full.as_dict()))) == full
+    averaged = ErrorBand(
+        full.factors, full.rms, full.bias, full.sampling_factors, full.sampling_sd, (10.0,), (0.02,)
+    )
+    assert averaged.half_width(10.0) == pytest.approx(z * math.sqrt(0.04**2 + 0.03**2 + 0.02**2))
+    assert ErrorBand.from_dict(json.loads(json.dumps(averaged.as_dict()))) == averaged
 
 
 def test_parameters_where_a_formula_is_undefined_are_a_breakdown_not_an_error(corpus):

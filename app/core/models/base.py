@@ -70,7 +70,8 @@ it, the saturating vocabularies of the tests within 1e-7)."""
 
 def _minimise(residuals: Callable[[np.ndarray], np.ndarray], starts: list[np.ndarray]) -> np.ndarray | None:
     """argmin of |residuals(theta)|^2 by scipy.optimize.least_squares (trust region) from each start;
-    starts where the formulas break down are skipped; None when no start gives a finite result."""
+    starts where the formulas break down are skipped, as are runs the solver stops because a step met them
+    (scipy refuses a Jacobian that is not finite with a ValueError); None when no start gives a finite result."""
     from scipy.optimize import least_squares  # imported on first use: a server starts without it
 
     best = None
@@ -78,7 +79,10 @@ def _minimise(residuals: Callable[[np.ndarray], np.ndarray], starts: list[np.nda
         for theta0 in starts:
             if np.any(residuals(theta0) == _BREAKDOWN):
                 continue
-            result = least_squares(residuals, theta0, method="trf")
+            try:
+                result = least_squares(residuals, theta0, method="trf")
+            except ValueError:
+                continue
             if not np.any(result.fun == _BREAKDOWN) and (best is None or result.cost < best.cost):
                 best = result
     return None if best is None else best.x
