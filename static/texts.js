@@ -35,7 +35,7 @@
     var x = points.map(function (p) { return p.texts; });
     return [
       { x: x.concat(x.slice().reverse()), y: points.map(function (p) { return p.high; }).concat(points.map(function (p) { return p.low; }).reverse()),
-        fill: "toself", fillcolor: "rgba(120,120,120,0.18)", line: { width: 0 }, hoverinfo: "skip", showlegend: false, type: "scatter" },
+        fill: "toself", fillcolor: "rgba(120,120,120,0.18)", line: { width: 0 }, mode: "lines", hoverinfo: "skip", showlegend: false, type: "scatter" },
       { x: x, y: points.map(function (p) { return p.types; }), name: name, type: "scatter", mode: "lines", line: { color: color, dash: dash },
         customdata: points.map(function (p) { return [p.low, p.high]; }),
         hovertemplate: "<b>" + name + "</b><br>%{x:,} texts: %{y:,.1f} types (range %{customdata[0]:,.0f} – %{customdata[1]:,.0f})<extra></extra>" }
