@@ -168,11 +168,14 @@ def check_text_separator(value: str | None) -> str:
 
 
 def store_with_exact_statistics(
-    engine: Engine, record: CorpusRecord, stage: StageCallback, more_results: dict[str, dict] | None = None
+    engine: Engine,
+    record: CorpusRecord,
+    stage: StageCallback,
+    more_results: dict[str, tuple[str, dict]] | None = None,
 ) -> int:
     """Compute a new corpus's exact statistics, then store it with them (and ``more_results``, kind ->
-    payload) in one transaction: a failure of either stores nothing. Returns the new corpus id."""
+    (version, payload)) in one transaction: a failure of either stores nothing. Returns the new corpus id."""
     stage("exact statistics")
-    results = modelling.exact_statistics(record.spectrum) | (more_results or {})
+    results = modelling.exact_statistics(record.spectrum)
     stage("storing")
-    return save_corpus(engine, record, results, modelling.CACHE_KEY)
+    return save_corpus(engine, record, results, modelling.CACHE_KEY, more_results)

@@ -201,11 +201,16 @@ def _issue_corpus_id(session: Session) -> int:
 
 
 def save_corpus(
-    engine: Engine, record: CorpusRecord, results: dict[str, dict] | None = None, results_version: str = ""
+    engine: Engine,
+    record: CorpusRecord,
+    results: dict[str, dict] | None = None,
+    results_version: str = "",
+    versioned_results: dict[str, tuple[str, dict]] | None = None,
 ) -> int:
     """Store a corpus with its counts, spectrum, growth and prefix spectra, and the ``results`` already
-    computed from them (kind -> payload, cached under ``results_version``), in one transaction; run by a
-    task, only while the task is still this process's (``app.store.tasks.confirm_in``)."""
+    computed from them (kind -> payload, cached under ``results_version``; ``versioned_results``: kind ->
+    (version, payload), each under its own), in one transaction; run by a task, only while the task is still
+    this process's (``app.store.tasks.confirm_in``)."""
     with transaction(engine) as session:
         corpus = Corpus(
             id=_issue_corpus_id(session),
@@ -248,6 +253,8 @@ def save_corpus(
         )
         for kind, payload in (results or {}).items():
             session.add(_cached_result(cid, kind, results_version, payload))
+        for kind, (version, payload) in (versioned_results or {}).items():
+            session.add(_cached_result(cid, kind, version, payload))
         tasks.confirm_in(session)  # a task that lost its lease meanwhile stores nothing (rolled back)
         return int(cid)
 
