@@ -52,7 +52,8 @@
   json(base + "?rows=100").then(function (page) {
     if (!page.available) { status.textContent = page.reason; return; }
     total = page.total;
-    var sep = { file: "each file is one text", paragraph: "texts separated by blank lines", line: "one text per line" }[page.separator] ||
+    var sep = { file: "each file is one text", paragraph: "texts separated by blank lines", line: "one text per line",
+      "text column": "the texts of the word-count list's text column" }[page.separator] ||
       "texts separated by lines “" + page.separator + "”";
     document.getElementById("texts-summary").textContent = number(total) + (total === 1 ? " text" : " texts") + " (" + sep + ")" +
       (page.empty_skipped ? "; " + number(page.empty_skipped) + " empty " + (page.empty_skipped === 1 ? "text" : "texts") + " without any word skipped" : "") + ".";

@@ -36,8 +36,8 @@ DEFAULT_HORIZON = 2.0
 """Extrapolate to twice the corpus's texts by default: Chao et al. 2014 advise against going further."""
 MAX_HORIZON = 10.0
 NO_TEXTS = (
-    "this corpus has no texts: it was made from a word-count list, a spectrum or a bundle, or stored before "
-    "texts were kept, so it has no text-level statistics"
+    "this corpus has no texts: it was made from a word-count list without a text column, a spectrum or a "
+    "bundle, or stored before texts were kept, so it has no text-level statistics"
 )
 
 

@@ -7,6 +7,7 @@ over every subset of k texts (brute force).
 
 from __future__ import annotations
 
+from collections import Counter
 from itertools import combinations
 
 import pytest
@@ -78,3 +79,28 @@ def test_a_bad_separator_is_refused_and_stores_nothing(client):
     response = upload(client, "word-counts", "c.tsv", b"word\tcount\nx\t1\n", "bad", text_separator="###")
     assert response.status_code == 422 and "text_separator" in response.json()["detail"]
     assert len(client.get("/api/corpora").json()) == before
+
+
+def test_a_word_count_list_with_a_text_column_has_texts(client):
+    # Reference: the same texts uploaded as text; their per-text tables and growth by texts must agree.
+    body = "\n###\n".join(TEXTS)
+    text_id = upload(client, "text", "letters.txt", body.encode(), "as text", text_separator="###").json()[
+        "id"
+    ]
+    rows = ["text\tword\tcount"] + [
+        f"letter {i + 1}\t{word}\t{count}"
+        for i, text in enumerate(TEXTS)
+        for word, count in sorted(Counter(nltk_tokens(text)).items())  # nltk: independent tokens
+    ]
+    response = upload(client, "word-counts", "counts.tsv", "\n".join(rows).encode(), "as counts")
+    assert response.status_code == 201, response.text
+    counts_id = response.json()["id"]
+    as_text = client.get(f"/api/corpora/{text_id}/texts").json()
+    as_counts = client.get(f"/api/corpora/{counts_id}/texts").json()
+    assert as_counts["separator"] == "text column"
+    assert [t["name"] for t in as_counts["texts"]] == [f"letter {i + 1}" for i in range(len(TEXTS))]
+    strip = [(t["tokens"], t["types"]) for t in as_text["texts"]]
+    assert [(t["tokens"], t["types"]) for t in as_counts["texts"]] == strip
+    growth = [client.get(f"/api/corpora/{cid}/texts/growth").json() for cid in (text_id, counts_id)]
+    assert growth[0]["interpolation"] == growth[1]["interpolation"]
+    assert growth[0]["incidence"] == growth[1]["incidence"]
