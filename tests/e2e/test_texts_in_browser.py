@@ -52,3 +52,17 @@ def test_upload_of_separated_texts_shows_them_on_the_corpus_page(server, browser
     page.locator("#texts").screenshot(path=screenshots / "texts-section-desktop.png")
     print(f"\ntexts section: {summary} | plan: {answer}")
     context.close()
+    # On a phone the section fits the screen: its table scrolls inside its box, the page never sideways.
+    context, page, console = open_page(browser, VIEWPORTS["phone"])
+    page.goto(f"{server}/corpora/{corpus_id}#texts")
+    wait_until(page, "document.querySelectorAll('#texts-table tbody tr').length === 4")
+    page.wait_for_selector("#text-growth-plot .main-svg")
+    # Every element of the section outside its table's scrolling box stays within the screen's width.
+    widest = page.evaluate(
+        """() => Math.max(...[...document.querySelectorAll('#texts *:not(svg *)')]
+            .filter(e => !e.closest('.scroll')).map(e => e.getBoundingClientRect().right))"""
+    )
+    assert widest <= VIEWPORTS["phone"]["width"], f"the Texts section is {widest} px wide on a phone"
+    assert not console.problems(), console.problems()
+    page.locator("#texts").screenshot(path=screenshots / "texts-section-phone.png")
+    context.close()

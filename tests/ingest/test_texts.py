@@ -93,3 +93,16 @@ def test_separator_is_checked():
         texts.check_separator("#" * 101)
     with pytest.raises(ValueError, match="control"):
         texts.check_separator("a\x1bb")
+
+
+def test_every_engine_finds_the_same_texts():
+    # Reference: the serial engine, one piece after the other in this process.
+    body = "\n".join(f"line {'ab' * (i % 7)} word{'x' * (i % 5)} and more" for i in range(3000))
+    source = TextSource.from_text("lines.txt", body)
+    found = {}
+    for engine in ("serial", "local"):
+        with count_sources([source], PROFILE, separator="line", engine=engine, chunk_chars=4096) as result:
+            texts_found, _ = result.text_counts()
+            found[engine] = [(t.tokens, t.ranks.tolist(), t.counts.tolist()) for t in texts_found]
+    assert len(found["serial"]) == 3000
+    assert found["local"] == found["serial"]
