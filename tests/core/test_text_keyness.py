@@ -65,3 +65,14 @@ def test_a_word_one_text_repeats_is_not_key() -> None:
 def test_columns_must_match() -> None:
     with pytest.raises(ValueError, match="same words"):
         text_keyness(np.ones((3, 4)), np.ones((3, 5)))
+
+
+def test_a_word_absent_from_both_corpora_is_not_key() -> None:
+    # scipy.stats.mannwhitneyu gives p = 1 when every value ties; Welch's t has no spread to divide by and
+    # takes its limit (equal means: p = 1)
+    first = np.array([[3, 0, 1], [2, 0, 2], [1, 0, 5]])
+    second = np.array([[1, 0, 1], [4, 0, 1]])
+    ours = text_keyness(first, second)
+    assert mannwhitneyu([0.0] * 3, [0.0] * 2, method="asymptotic").pvalue == 1.0
+    assert ours.p_mann_whitney[1] == 1.0 and ours.p_welch[1] == 1.0
+    assert ours.in_texts_first[1] == 0 and ours.in_texts_second[1] == 0
