@@ -1,20 +1,21 @@
 """Texts as the unit: calibration of the text-level tests, and the speed of keyness and dispersion across texts.
 
     .venv/bin/python benchmarks/text_statistics.py [--draws 400] [--texts 40] [--resamples 199]
-        [--words 50000] [--speed-texts 400]
+        [--words 50000] [--speed-texts 400]     (--resamples: deals of the pooled permutation test)
 
 Calibration: a collection of texts of one kind is split at random into two halves *by texts*, many times;
 the halves differ by chance only, so a calibrated test at the 5% level flags about 5% of the splits. Per
 draw, ``--texts`` texts are taken at random from a bank and dealt into two halves; reported are the share of
-draws with p < 0.05 for Welch's t and the permutation test of the per-text E[V(n)], the bootstrap over texts
-of the pooled E[V(n)], the share whose 90% range of Hedges' g excludes 0 (nominal 10%), and beside them the
-token-level z test of the pooled corpora (``app.core.comparison``, with its population spread), which treats
-tokens as independent draws. Two banks: simulated texts with topic-clustered vocabularies
+draws with p < 0.05 for Welch's t and the permutation test of the per-text E[V(n)] and for the permutation
+test of the pooled E[V(n)], the share whose 90% range excludes 0 (nominal 10%) for Hedges' g and the
+jackknife range of the pooled difference, and beside them the token-level z test of the pooled corpora
+(``app.core.comparison``, with its population spread), which treats tokens as independent draws. Two banks: simulated texts with topic-clustered vocabularies
 (``tests.core.text_collections``) and the paragraphs of standard-library docstrings (real English that no
 one on this project wrote, as in the tests), each paragraph of at least 40 tokens a text.
 
-Speed: ``text_keyness``, ``dispersion`` and ``compare_texts`` on ``--speed-texts`` texts over ``--words`` words (Zipf-Mandelbrot
-texts of 300 to 3,000 tokens), with scipy.stats.mannwhitneyu on the dense per-text matrix beside them.
+Speed: ``text_keyness``, ``dispersion`` and ``compare_texts`` on ``--speed-texts`` texts over ``--words``
+words (Zipf-Mandelbrot texts of 300 to 3,000 tokens), with scipy.stats.mannwhitneyu on the dense per-text
+matrix beside them.
 """
 
 from __future__ import annotations
@@ -35,10 +36,10 @@ from app.core.dispersion import dispersion
 from app.core.spectrum import Spectrum
 from app.core.text_keyness import text_keyness
 from app.core.text_tests import (
-    bootstrap_pooled_types,
     compare_texts,
     hedges_g,
     permutation_test,
+    pooled_types_test,
     types_per_text,
     welch_test,
 )
@@ -64,7 +65,17 @@ def pooled_spectrum(matrix: sp.csr_array) -> Spectrum:
 
 def calibration(name: str, bank: sp.csr_array, text_size: int, args: argparse.Namespace) -> None:
     rng = np.random.default_rng(7)
-    flagged = dict.fromkeys(["welch", "permutation", "g range excludes 0", "bootstrap", "token-level z"], 0)
+    flagged = dict.fromkeys(
+        [
+            "welch",
+            "permutation",
+            "g range excludes 0",
+            "pooled: permutation",
+            "pooled: jackknife range excludes 0",
+            "token-level z",
+        ],
+        0,
+    )
     short = 0
     start = time.perf_counter()
     for _ in range(args.draws):
@@ -77,7 +88,9 @@ def calibration(name: str, bank: sp.csr_array, text_size: int, args: argparse.Na
         effect = hedges_g(a.types, b.types)
         flagged["g range excludes 0"] += effect.low > 0 or effect.high < 0
         common = int(min(first.sum(), second.sum()))
-        flagged["bootstrap"] += bootstrap_pooled_types(first, second, common, args.resamples, rng).p < 0.05
+        pooled = pooled_types_test(first, second, common, args.resamples, rng)
+        flagged["pooled: permutation"] += pooled.p < 0.05
+        flagged["pooled: jackknife range excludes 0"] += pooled.low > 0 or pooled.high < 0
         matched = size_matched([pooled_spectrum(first), pooled_spectrum(second)], common)
         token_test = pairwise_z_tests(
             [m.types for m in matched], [m.sd_population for m in matched], ["1", "2"]
@@ -90,7 +103,7 @@ def calibration(name: str, bank: sp.csr_array, text_size: int, args: argparse.Na
         f"per-text size {text_size} ({short / args.draws:.1f} texts per draw shorter, listed and left out), "
         f"{time.perf_counter() - start:.0f} s\n"
     )
-    print("| test | flagged at 5% (g: range excludes 0, nominal 10%) | of draws |")
+    print("| test | flagged: p < 0.05 (a range: excludes 0, nominal 10%) | of draws |")
     print("| --- | ---: | ---: |")
     for test, count in flagged.items():
         print(f"| {test} | {count / args.draws:.1%} | {count} / {args.draws} |")
@@ -112,7 +125,7 @@ def speed(args: argparse.Namespace) -> None:
         ("text_keyness (Mann-Whitney U and Welch, Holm)", lambda: text_keyness(first, second)),
         ("dispersion (range, DP, DP_norm, Juilland's D)", lambda: dispersion(matrix)),
         (
-            "compare_texts (per-text E[V(300)], Welch, 9,999 permutations, g, 999 bootstrap resamples)",
+            "compare_texts (per-text E[V(300)], Welch, 9,999 permutations, g; pooled: 999 deals, jackknife)",
             lambda: compare_texts(first, second, 300, int(min(first.sum(), second.sum())), rng),
         ),
     ):
@@ -136,7 +149,7 @@ def main() -> None:
     parser = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     parser.add_argument("--draws", type=int, default=400)
     parser.add_argument("--texts", type=int, default=40)
-    parser.add_argument("--resamples", type=int, default=199)
+    parser.add_argument("--resamples", type=int, default=199, help="deals of the pooled permutation test")
     parser.add_argument("--words", type=int, default=50_000)
     parser.add_argument("--speed-texts", type=int, default=400)
     args = parser.parse_args()

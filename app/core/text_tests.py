@@ -1,10 +1,11 @@
 """Comparing two corpora as collections of texts: texts, not tokens, are the unit of every test here.
 
 A corpus is given as its texts x words count matrix (any scipy.sparse matrix or 2-d array: row i holds the
-count of every word in text i; the columns of two corpora need not match). Words cluster in texts (a topic
-brings its words, a text repeats its names), so the spread between texts of one kind is far larger than
-the spread between random token samples, and a test that treats tokens as independent draws flags
-differences between two halves of one collection far too often. Here each text contributes one value.
+count of every word in text i; two corpora compared as wholes share their columns, one per word). Words
+cluster in texts (a topic brings its words, a text repeats its names), so the spread between texts of one
+kind is far larger than the spread between random token samples, and a test that treats tokens as
+independent draws flags differences between two halves of one collection far too often. Here each text
+contributes one value.
 
 - Richness of every text at a common text size n (``types_per_text``): the exact expected types of a
   random sample of n of its tokens, E[V(n)] = sum_m V_m (1 - C(N - m, n) / C(N, n)) over the text's own
@@ -15,8 +16,9 @@ differences between two halves of one collection far too often. Here each text c
 - A permutation test over texts (Fisher 1935; Pitman 1937): the difference of means against its values when
   the texts are dealt at random into groups of the same sizes.
 - Hedges' g (Hedges 1981) with its normal-approximation range (Hedges & Olkin 1985).
-- A bootstrap over texts of the whole corpus's E[V(n)] (Efron & Tibshirani 1993): texts are drawn with
-  replacement and their counts pooled, and E[V(n)] of the pool is computed again.
+- The whole corpus's E[V(n)] (its texts pooled): a permutation test over texts, with a range from the
+  delete-one-text jackknife (Quenouille 1956; Tukey 1958). A bootstrap over texts was measured and
+  rejected (``pooled_types_test`` says why).
 
 Every range has the product's nominal level ``RANGE_LEVEL`` (90%); p-values are two-sided.
 """
@@ -29,16 +31,15 @@ from dataclasses import dataclass
 
 import numpy as np
 import scipy.sparse as sp
-from scipy.special import ndtr, ndtri, stdtr, stdtrit
+from scipy.special import ndtri, stdtr, stdtrit
 
 from app.core.interpolation import expected_types
 from app.core.models.base import RANGE_LEVEL
 from app.core.spectrum import Spectrum
+from app.core.unseen import good_toulmin_series
 
 PERMUTATIONS = 9999
 """Random permutations of a permutation test when the distinct splits of the texts are more than this."""
-BOOTSTRAP_RESAMPLES = 999
-"""Resamples of the bootstrap over texts."""
 
 
 def as_text_matrix(counts: sp.spmatrix | sp.sparray | np.ndarray) -> sp.csr_array:
@@ -184,6 +185,33 @@ def welch_test(first: np.ndarray, second: np.ndarray, level: float = RANGE_LEVEL
     )
 
 
+def deals(total: int, n1: int, resamples: int, rng: np.random.Generator | None) -> tuple[np.ndarray, bool]:
+    """The deals of a permutation test over ``total`` texts, as the indices of the ``n1`` texts dealt to
+    the first corpus (one row per deal), and whether they are all C(total, n1) deals (when there are at most
+    ``resamples`` of them) rather than ``resamples`` random ones."""
+    if math.comb(total, n1) <= resamples:
+        return np.array(list(itertools.combinations(range(total), n1))), True
+    rng = rng if rng is not None else np.random.default_rng()
+    return np.concatenate(
+        [
+            rng.permuted(np.broadcast_to(np.arange(total), (batch, total)), axis=1)[:, :n1]
+            for batch in np.diff(np.append(np.arange(0, resamples, 1000), resamples))
+        ]
+    ), False
+
+
+def permutation_p(null: np.ndarray, observed: float, every_deal: bool) -> float:
+    """Two-sided permutation p-value, twice the smaller tail, p = min(1, 2 min(P(D* <= d), P(D* >= d))):
+    exact shares over every deal, else (count + 1) / (deals + 1), the correction that keeps a random-deal
+    p-value valid (Phipson & Smyth 2010). Deals within a relative 100 machine epsilon of the observed value
+    count as equal to it."""
+    adjustment = 0 if every_deal else 1
+    tolerance = abs(observed) * 100 * np.finfo(float).eps
+    below = (np.count_nonzero(null <= observed + tolerance) + adjustment) / (null.size + adjustment)
+    above = (np.count_nonzero(null >= observed - tolerance) + adjustment) / (null.size + adjustment)
+    return float(min(1.0, 2 * min(below, above)))
+
+
 def permutation_test(
     first: np.ndarray,
     second: np.ndarray,
@@ -192,43 +220,23 @@ def permutation_test(
     level: float = RANGE_LEVEL,
 ) -> TextTest:
     """Permutation test of the difference of mean per-text values (Fisher 1935; Pitman 1937): the texts of
-    both corpora are dealt at random into groups of the original sizes, and p is the share of deals whose
-    difference is at least as far out as the observed one, two-sided as twice the smaller tail,
-    p = min(1, 2 min(P(D* <= d), P(D* >= d))).
-
-    All C(n1 + n2, n1) deals are enumerated when there are at most ``resamples`` of them (then the tails are
-    exact shares), else ``resamples`` random deals with the (count + 1) / (resamples + 1) correction that
-    keeps a random-deal p-value valid (Phipson & Smyth 2010). Deals within a relative 100 machine epsilon of
-    the observed difference count as equal to it. No range is given (``low``, ``high`` are None)."""
+    both corpora are dealt at random into groups of the original sizes (``deals``), and p is the share of
+    deals whose difference is at least as far out as the observed one (``permutation_p``). No range is given
+    (``low``, ``high`` are None)."""
     first, second = _need_two_texts(first, second)
     values = np.concatenate([first, second])
-    n1, total = first.size, values.size
+    n1 = first.size
+    chosen, every_deal = deals(values.size, n1, resamples, rng)
+    first_sums = values[chosen].sum(axis=1)
+    null = first_sums / n1 - (values.sum() - first_sums) / (values.size - n1)
     observed = first.mean() - second.mean()
-    splits = math.comb(total, n1)
-    if splits <= resamples:
-        chosen = np.array(list(itertools.combinations(range(total), n1)))
-        first_sums = values[chosen].sum(axis=1)
-        deals, adjustment = splits, 0
-    else:
-        rng = rng if rng is not None else np.random.default_rng()
-        first_sums = np.concatenate(
-            [
-                rng.permuted(np.broadcast_to(values, (batch, total)), axis=1)[:, :n1].sum(axis=1)
-                for batch in np.diff(np.append(np.arange(0, resamples, 1000), resamples))
-            ]
-        )
-        deals, adjustment = resamples, 1
-    null = first_sums / n1 - (values.sum() - first_sums) / (total - n1)
-    tolerance = abs(observed) * 100 * np.finfo(float).eps
-    below = (np.count_nonzero(null <= observed + tolerance) + adjustment) / (deals + adjustment)
-    above = (np.count_nonzero(null >= observed - tolerance) + adjustment) / (deals + adjustment)
     return TextTest(
         "permutation test over texts (difference of means)",
         float(first.mean()),
         float(second.mean()),
         float(observed),
         float(observed),
-        float(min(1.0, 2 * min(below, above))),
+        permutation_p(null, observed, every_deal),
         None,
         None,
         level,
@@ -266,68 +274,90 @@ def hedges_g(first: np.ndarray, second: np.ndarray, level: float = RANGE_LEVEL) 
     return EffectSize(float(g), float(g - z * se), float(g + z * se), level)
 
 
-def _pooled_types(matrix: sp.csr_array, weights: np.ndarray, size: int) -> float:
-    """E[V(size)] of the corpus made of every text i taken ``weights[i]`` times."""
-    pooled = matrix.T @ weights
-    return expected_types(Spectrum.from_frequencies(pooled[pooled > 0]), size)
+POOLED_PERMUTATIONS = 999
+"""Random deals of the permutation test of the whole corpora's E[V(n)] (each needs two interpolations)."""
 
 
-def bootstrap_resample_weights(lengths: np.ndarray, rng: np.random.Generator) -> np.ndarray:
-    """How often each text is drawn in one resample: texts drawn with replacement, one at a time, until the
-    pool holds at least as many tokens as the corpus. With texts of equal length this is the ordinary
-    bootstrap of T texts out of T; with unequal ones every resample still holds the corpus's size, so that
-    E[V(n)] at any n up to it exists in every resample."""
-    total = int(lengths.sum())
-    draws = np.empty(0, dtype=np.int64)
-    while lengths[draws].sum() < total:
-        draws = np.concatenate([draws, rng.integers(0, lengths.size, lengths.size)])
-    stop = int(np.searchsorted(np.cumsum(lengths[draws]), total)) + 1
-    return np.bincount(draws[:stop], minlength=lengths.size)
+def _pool_types(pooled: np.ndarray, size: int) -> float:
+    """E[V(size)] of pooled word counts: the exact interpolation when the pool holds at least ``size``
+    tokens, else its types plus the Good-Toulmin estimate of the new types in t = size / N - 1 <= 1 times
+    more tokens, V + U(t) (Good & Toulmin 1956; valid up to t = 1)."""
+    spectrum = Spectrum.from_frequencies(pooled[pooled > 0])
+    tokens = spectrum.tokens
+    if size <= tokens:
+        return expected_types(spectrum, size)
+    if size > 2 * tokens:
+        raise ValueError(
+            f"the texts are too unequal in length for a test of the whole corpora at {size} tokens: some of "
+            f"them hold fewer than half as many tokens"
+        )
+    return spectrum.types + good_toulmin_series(spectrum, size / tokens - 1)
 
 
-def bootstrap_pooled_types(
+def jackknife_pooled_types(matrix: sp.csr_array, size: int) -> tuple[float, float]:
+    """The whole corpus's E[V(size)] (its texts pooled) and its delete-one-text jackknife standard error
+    (Quenouille 1956; Tukey 1958; Efron & Tibshirani 1993, ch. 11): with theta_(i) the value without text i
+    and theta_(.) their mean over the T texts,
+        se^2 = (T - 1) / T sum_i (theta_(i) - theta_(.))^2.
+    A corpus without one text may hold fewer than ``size`` tokens; its value then continues by
+    Good-Toulmin (``_pool_types``). Jackknife variances err on the high side (Efron & Stein 1981): on
+    random halves of 40 simulated topic-clustered texts this standard error was about 1.3 to 1.45 times the
+    true spread of the difference."""
+    texts = matrix.shape[0]
+    pooled = matrix.sum(axis=0)
+    without = np.array([_pool_types(pooled - matrix[[i]].toarray().ravel(), size) for i in range(texts)])
+    return _pool_types(pooled, size), math.sqrt((texts - 1) / texts * np.sum((without - without.mean()) ** 2))
+
+
+def pooled_types_test(
     first_counts: sp.spmatrix | sp.sparray | np.ndarray,
     second_counts: sp.spmatrix | sp.sparray | np.ndarray,
     size: int,
-    resamples: int = BOOTSTRAP_RESAMPLES,
+    resamples: int = POOLED_PERMUTATIONS,
     rng: np.random.Generator | None = None,
     level: float = RANGE_LEVEL,
 ) -> TextTest:
-    """The whole corpus's E[V(size)] (its texts pooled, exact interpolation) compared with a bootstrap over
-    texts (Efron & Tibshirani 1993, chs. 6 and 13): each corpus is resampled on its own
-    (``bootstrap_resample_weights``), E[V(size)] computed on every pooled resample, and the difference d of
-    the two corpora's values is tested with the bootstrap standard error se = sqrt(se1^2 + se2^2):
-    z = d / se, p = 2 Phi(-|z|), range d -+ z_{(1 + level) / 2} se (the normal bootstrap interval).
+    """The two whole corpora's E[V(size)] (each corpus's texts pooled) compared with texts as the unit.
 
-    ``size`` must not exceed the tokens of either corpus."""
+    p: a permutation test over texts (``deals``, ``permutation_p``): the texts of both corpora are dealt at
+    random into corpora of the original numbers of texts, each pooled, and the difference of their
+    E[V(size)] (``_pool_types``) recomputed. Range: d -+ z_{(1 + level) / 2} sqrt(se1^2 + se2^2) with the
+    delete-one-text jackknife standard errors (``jackknife_pooled_types``), wider than nominal as they are.
+
+    Why not a bootstrap over texts: a bootstrap resample repeats some texts and lacks others (about 63% of
+    the texts are drawn), and the pooled types count a text's own words once however often it is drawn, so
+    the resampled E[V(n)] varies with the number of distinct texts drawn, a variation no real collection
+    of T texts has. On random halves of 40 simulated topic-clustered texts the bootstrap standard error was
+    about 2.6 times the true spread of the difference (60 splits) and flagged none of 400 splits at the 5%
+    level. The permutation test holds its level whatever the statistic, as the texts of two halves of one
+    collection are exchangeable. ``size`` must not exceed the tokens of either corpus."""
     first, second = as_text_matrix(first_counts), as_text_matrix(second_counts)
     if first.shape[0] < 2 or second.shape[0] < 2:
         raise ValueError("the text-level tests need at least two texts in each corpus")
-    rng = rng if rng is not None else np.random.default_rng()
-    values, spreads = [], []
+    if first.shape[1] != second.shape[1]:
+        raise ValueError("the two corpora's counts need the same words (columns) in the same order")
     for matrix in (first, second):
-        lengths = matrix.sum(axis=1)
-        if size > lengths.sum():
-            raise ValueError(f"common size {size} exceeds a corpus of {int(lengths.sum())} tokens")
-        values.append(_pooled_types(matrix, np.ones(lengths.size, dtype=np.int64), size))
-        replicates = [
-            _pooled_types(matrix, bootstrap_resample_weights(lengths, rng), size) for _ in range(resamples)
-        ]
-        spreads.append(float(np.std(replicates, ddof=1)))
-    difference = values[0] - values[1]
-    se = math.hypot(*spreads)
-    if se > 0:
-        z = difference / se
-    else:
-        z = 0.0 if difference == 0 else math.copysign(math.inf, difference)
-    half = float(ndtri(0.5 + level / 2)) * se
+        if size > matrix.sum():
+            raise ValueError(f"common size {size} exceeds a corpus of {int(matrix.sum())} tokens")
+    (value1, se1), (value2, se2) = jackknife_pooled_types(first, size), jackknife_pooled_types(second, size)
+    difference = value1 - value2
+    both = sp.csr_array(sp.vstack([first, second]))
+    total = both.sum(axis=0)
+    chosen, every_deal = deals(both.shape[0], first.shape[0], resamples, rng)
+    null = np.empty(chosen.shape[0])
+    for k, rows in enumerate(chosen):
+        dealt = np.zeros(both.shape[0], dtype=np.int64)
+        dealt[rows] = 1
+        pooled = both.T @ dealt
+        null[k] = _pool_types(pooled, size) - _pool_types(total - pooled, size)
+    half = float(ndtri(0.5 + level / 2)) * math.hypot(se1, se2)
     return TextTest(
-        f"bootstrap over texts of the whole corpus's E[V({size})]",
-        values[0],
-        values[1],
+        f"permutation test over texts of the whole corpus's E[V({size})] (range: delete-one-text jackknife)",
+        value1,
+        value2,
         difference,
-        z,
-        float(2 * ndtr(-abs(z))),
+        difference,
+        permutation_p(null, difference, every_deal),
         difference - half,
         difference + half,
         level,
@@ -339,20 +369,20 @@ def bootstrap_pooled_types(
 @dataclass(frozen=True)
 class TextComparison:
     """Everything the text-level comparison of two corpora holds: per-text richness at ``text_size`` on
-    either side, Welch's and the permutation test of its means, Hedges' g, and the bootstrap of the whole
-    corpora's E[V(pooled_size)]."""
+    either side, Welch's and the permutation test of its means, Hedges' g, and the permutation test of the
+    whole corpora's E[V(pooled_size)]."""
 
     first: TextRichness
     second: TextRichness
     welch: TextTest
     permutation: TextTest
     effect: EffectSize
-    bootstrap: TextTest
+    pooled: TextTest
 
     @property
     def tests(self) -> list[TextTest]:
         """The three tests, per-text first."""
-        return [self.welch, self.permutation, self.bootstrap]
+        return [self.welch, self.permutation, self.pooled]
 
 
 def compare_texts(
@@ -362,12 +392,10 @@ def compare_texts(
     pooled_size: int,
     rng: np.random.Generator | None = None,
     permutations: int = PERMUTATIONS,
-    resamples: int = BOOTSTRAP_RESAMPLES,
 ) -> TextComparison:
     """Text-level comparison of two corpora given as texts x words counts; ``text_size`` is the common size
     of the per-text richness, ``pooled_size`` that of the whole corpora (at most the smaller corpus).
     Each side needs at least two texts of ``text_size`` tokens or more."""
-    rng = rng if rng is not None else np.random.default_rng()
     first = types_per_text(first_counts, text_size)
     second = types_per_text(second_counts, text_size)
     if first.count < 2 or second.count < 2:
@@ -381,5 +409,5 @@ def compare_texts(
         welch_test(first.types, second.types),
         permutation_test(first.types, second.types, permutations, rng),
         hedges_g(first.types, second.types),
-        bootstrap_pooled_types(first_counts, second_counts, pooled_size, resamples, rng),
+        pooled_types_test(first_counts, second_counts, pooled_size, rng=rng),
     )

@@ -1,4 +1,4 @@
-"""Text-level comparison against scipy.stats (ttest_ind, permutation_test, bootstrap, hypergeom, nct),
+"""Text-level comparison against scipy.stats (ttest_ind, permutation_test, hypergeom, nct, norm),
 statsmodels' bias-corrected standardised mean difference, and a simulation with a known answer (two halves of
 one collection of topic-clustered texts, split by texts)."""
 
@@ -10,16 +10,14 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 from scipy.optimize import brentq
-from scipy.stats import bootstrap, hypergeom, nct, permutation_test, ttest_ind
+from scipy.stats import hypergeom, nct, norm, permutation_test, ttest_ind
 from statsmodels.stats.meta_analysis import effectsize_smd
 
-from app.core.interpolation import expected_types
-from app.core.spectrum import Spectrum
 from app.core.text_tests import (
-    bootstrap_pooled_types,
-    bootstrap_resample_weights,
     compare_texts,
     hedges_g,
+    jackknife_pooled_types,
+    pooled_types_test,
     types_per_text,
     welch_t,
     welch_test,
@@ -122,59 +120,61 @@ def test_hedges_g_against_statsmodels_and_noncentral_t() -> None:
     assert ours.high == pytest.approx(high, abs=0.05)
 
 
-def test_bootstrap_resample_weights_reach_the_corpus_size() -> None:
-    rng = np.random.default_rng(0)
-    equal = np.full(12, 300)
-    for _ in range(20):
-        assert bootstrap_resample_weights(equal, rng).sum() == 12  # the ordinary bootstrap of 12 texts
-    unequal = np.array([50, 900, 120, 400, 75, 3000])
-    for _ in range(50):
-        pooled = bootstrap_resample_weights(unequal, rng) @ unequal
-        assert unequal.sum() <= pooled < unequal.sum() + unequal.max()
+def direct_pooled_types(counts: np.ndarray, size: int) -> float:
+    """E[V(size)] of pooled texts written out type by type: 1 - scipy.stats.hypergeom(N, f, size).pmf(0)
+    summed over types (Baayen 2001, ch. 2) up to N, beyond it V + U(t), t = size / N - 1, with the
+    Good-Toulmin U(t) = -sum_m (-t)^m V_m (Good & Toulmin 1956)."""
+    f = counts.sum(axis=0)
+    f = f[f > 0]
+    total = int(f.sum())
+    if size <= total:
+        return float(np.sum(1 - hypergeom.pmf(0, total, f, size)))
+    t = size / total - 1
+    return f.size + float(np.sum(-((-t) ** f.astype(float))))
 
 
-def test_bootstrap_spread_equals_scipy_on_texts_of_equal_length() -> None:
-    # reference: scipy.stats.bootstrap's standard_error of E[V(n)] over texts resampled with replacement
-    # (Efron & Tibshirani 1993); with texts of equal length our resampling is that ordinary bootstrap.
-    # Two Monte Carlo estimates of one standard error: 10% apart at most (each about 3% with 600 resamples).
-    rng = np.random.default_rng(4)
-    texts = []
-    for _ in range(2):
-        bank = topic_texts(rng, 14)
-        # equal lengths: keep 150 tokens of every text, drawn at random without replacement
-        rows = []
-        for row in bank.toarray():
-            tokens = rng.permutation(np.repeat(np.arange(row.size), row))[:150]
-            rows.append(np.bincount(tokens, minlength=row.size))
-        texts.append(sp.csr_array(np.array(rows)))
-    first, second = texts
-    size = 1500
-    resamples = 600
-    ours = bootstrap_pooled_types(first, second, size, resamples, np.random.default_rng(1), level=0.9)
+def test_jackknife_against_direct_computation() -> None:
+    # reference: the delete-one jackknife standard error sqrt((T - 1) / T sum_i (theta_(i) - theta_(.))^2)
+    # (Tukey 1958; Efron & Tibshirani 1993, eq. 11.5), every theta_(i) computed directly; at the corpus's
+    # own size the corpora without one text are continued by Good-Toulmin
+    rng = np.random.default_rng(6)
+    counts = topic_texts(rng, 7, median_length=120).toarray()
+    counts = counts[:, counts.sum(axis=0) > 0]
+    for size in (300, int(counts.sum())):
+        value, se = jackknife_pooled_types(sp.csr_array(counts), size)
+        without = np.array([direct_pooled_types(np.delete(counts, i, axis=0), size) for i in range(7)])
+        assert value == pytest.approx(direct_pooled_types(counts, size), rel=1e-10)
+        assert se == pytest.approx(math.sqrt(6 / 7 * np.sum((without - without.mean()) ** 2)), rel=1e-8)
 
-    def pooled_types(matrix: sp.csr_array):
-        def statistic(indices: np.ndarray) -> float:
-            pooled = np.asarray(matrix[indices.astype(int)].sum(axis=0)).ravel()
-            return expected_types(Spectrum.from_frequencies(pooled[pooled > 0]), size)
 
-        return statistic
+def test_pooled_test_equals_scipy_permutation_test_over_texts() -> None:
+    # reference: scipy.stats.permutation_test(permutation_type="independent") over the texts' indices with
+    # the difference of the pooled E[V(n)] as its statistic; C(9, 4) = 126 deals, all enumerated by both
+    rng = np.random.default_rng(9)
+    first, second = topic_texts(rng, 4).toarray(), topic_texts(rng, 5).toarray()
+    size = int(min(first.sum(), second.sum()))
+    both = np.vstack([first, second])
 
-    spreads = [
-        bootstrap(
-            (np.arange(m.shape[0]),),
-            pooled_types(m),
-            n_resamples=resamples,
-            vectorized=False,
-            rng=np.random.default_rng(2),
-            method="percentile",
-        ).standard_error
-        for m in texts
-    ]
-    z = 1.6448536269514722
-    assert (ours.high - ours.low) / (2 * z) == pytest.approx(math.hypot(*spreads), rel=0.1)
-    for matrix, value in ((first, ours.first), (second, ours.second)):
-        pooled = np.asarray(matrix.sum(axis=0)).ravel()
-        assert value == pytest.approx(expected_types(Spectrum.from_frequencies(pooled[pooled > 0]), size))
+    def difference(x: np.ndarray, y: np.ndarray) -> float:
+        return direct_pooled_types(both[x.astype(int)], size) - direct_pooled_types(both[y.astype(int)], size)
+
+    ours = pooled_types_test(sp.csr_array(first), sp.csr_array(second), size, resamples=999, level=0.9)
+    reference = permutation_test(
+        (np.arange(4), np.arange(4, 9)), difference, n_resamples=999, vectorized=False
+    )
+    assert ours.p == pytest.approx(reference.pvalue, rel=1e-12)
+    assert ours.difference == pytest.approx(reference.statistic, rel=1e-10)
+    (_, se1), (_, se2) = (
+        jackknife_pooled_types(sp.csr_array(first), size),
+        jackknife_pooled_types(sp.csr_array(second), size),
+    )
+    assert ours.high - ours.difference == pytest.approx(norm.ppf(0.95) * math.hypot(se1, se2))
+
+
+def test_pooled_test_refuses_texts_too_unequal_in_length() -> None:
+    counts = np.array([[50, 40, 30, 20, 10] + [0] * 5, [0] * 5 + [2, 1, 1, 1, 1]])
+    with pytest.raises(ValueError, match="too unequal"):
+        jackknife_pooled_types(sp.csr_array(counts), 150)
 
 
 def test_halves_of_one_collection_are_flagged_about_five_percent() -> None:
@@ -199,7 +199,7 @@ def test_different_kinds_of_texts_are_told_apart() -> None:
     rng = np.random.default_rng(8)
     rich = topic_texts(rng, 30, topic_share=0.6, topic_words=3000)
     poor = topic_texts(rng, 30, topic_share=0.6, topic_words=100)
-    result = compare_texts(rich, poor, 150, 8000, np.random.default_rng(0), resamples=200)
+    result = compare_texts(rich, poor, 150, 8000, np.random.default_rng(0))
     assert result.welch.difference > 0
     assert max(t.p for t in result.tests) < 0.01
     assert result.effect.low > 0
