@@ -27,12 +27,15 @@ from __future__ import annotations
 
 import itertools
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
+from typing import ClassVar
 
 import numpy as np
 import scipy.sparse as sp
 from scipy.special import ndtri, stdtr, stdtrit
 
+from app.core.comparison import holm_adjust
 from app.core.interpolation import expected_types
 from app.core.models.base import RANGE_LEVEL
 from app.core.spectrum import Spectrum
@@ -75,11 +78,6 @@ class TextRichness:
         return int(self.types.size)
 
 
-def text_lengths(counts: sp.spmatrix | sp.sparray | np.ndarray) -> np.ndarray:
-    """Tokens of every text."""
-    return as_text_matrix(counts).sum(axis=1)
-
-
 def types_per_text(counts: sp.spmatrix | sp.sparray | np.ndarray, size: int) -> TextRichness:
     """Exact expected types E[V(size)] of a random sample of ``size`` tokens of each text, from its own
     spectrum: E[V(n)] = sum_m V_m (1 - C(N - m, n) / C(N, n)) (Baayen 2001, ch. 2); texts of fewer than
@@ -108,8 +106,8 @@ class TextTest:
 
     ``first`` and ``second`` are the two corpora's values of the statistic compared (the mean of a per-text
     value, or a whole corpus's value), ``difference`` = first - second, ``low`` and ``high`` the range of the
-    difference at ``level`` (None where the method gives none), ``statistic`` the test statistic (t, the
-    difference itself, or z), ``p`` the two-sided p-value, ``method`` the test in words, ``texts_first`` and
+    difference at ``level`` (None where the method gives none), ``statistic`` the test statistic (t for
+    Welch's test, the difference itself for a permutation test), ``p`` the two-sided p-value, ``method`` the test in words, ``texts_first`` and
     ``texts_second`` the texts that entered it."""
 
     method: str
@@ -379,10 +377,12 @@ class TextComparison:
     effect: EffectSize
     pooled: TextTest
 
+    TESTS: ClassVar[tuple[str, ...]] = ("welch", "permutation", "pooled")
+
     @property
     def tests(self) -> list[TextTest]:
-        """The three tests, per-text first."""
-        return [self.welch, self.permutation, self.pooled]
+        """The three tests, per-text first (in the order of ``TESTS``)."""
+        return [getattr(self, name) for name in self.TESTS]
 
 
 def compare_texts(
@@ -394,8 +394,9 @@ def compare_texts(
     permutations: int = PERMUTATIONS,
 ) -> TextComparison:
     """Text-level comparison of two corpora given as texts x words counts; ``text_size`` is the common size
-    of the per-text richness, ``pooled_size`` that of the whole corpora (at most the smaller corpus).
-    Each side needs at least two texts of ``text_size`` tokens or more."""
+    of the per-text richness, ``pooled_size`` that of the whole corpora (at most the smaller corpus);
+    ``permutations`` deals for the per-text means, ``POOLED_PERMUTATIONS`` for the whole corpora. Each side
+    needs at least two texts of ``text_size`` tokens or more."""
     first = types_per_text(first_counts, text_size)
     second = types_per_text(second_counts, text_size)
     if first.count < 2 or second.count < 2:
@@ -411,3 +412,35 @@ def compare_texts(
         hedges_g(first.types, second.types),
         pooled_types_test(first_counts, second_counts, pooled_size, rng=rng),
     )
+
+
+@dataclass(frozen=True)
+class PairTextComparison:
+    """The text-level comparison of one pair of corpora (``first``, ``second``: their labels) with the
+    p-values of its ``tests`` adjusted over every pair by Holm's (1979) method, test by test."""
+
+    first: str
+    second: str
+    comparison: TextComparison
+    p_holm: tuple[float, ...]
+
+
+def pairwise_text_comparisons(
+    corpora: Sequence[sp.spmatrix | sp.sparray | np.ndarray],
+    labels: Sequence[str],
+    text_size: int,
+    pooled_size: int,
+    rng: np.random.Generator | None = None,
+) -> list[PairTextComparison]:
+    """``compare_texts`` for every pair of corpora (texts x words counts over the same columns), in the
+    order of ``itertools.combinations``, as ``app.core.comparison.pairwise_z_tests`` orders its pairs; each
+    test's p-values are Holm-adjusted over the pairs."""
+    if len(corpora) != len(labels):
+        raise ValueError("corpora and labels must have the same length")
+    pairs = list(itertools.combinations(range(len(corpora)), 2))
+    comparisons = [compare_texts(corpora[i], corpora[j], text_size, pooled_size, rng) for i, j in pairs]
+    adjusted = [holm_adjust([c.tests[k].p for c in comparisons]) for k in range(len(TextComparison.TESTS))]
+    return [
+        PairTextComparison(labels[i], labels[j], c, tuple(float(a[n]) for a in adjusted))
+        for n, ((i, j), c) in enumerate(zip(pairs, comparisons, strict=True))
+    ]

@@ -1,6 +1,6 @@
 """Text-level comparison against scipy.stats (ttest_ind, permutation_test, hypergeom, nct, norm),
-statsmodels' bias-corrected standardised mean difference, and a simulation with a known answer (two halves of
-one collection of topic-clustered texts, split by texts)."""
+statsmodels' bias-corrected standardised mean difference and Holm correction, and a simulation with a known
+answer (two halves of one collection of topic-clustered texts, split by texts)."""
 
 from __future__ import annotations
 
@@ -12,11 +12,13 @@ import scipy.sparse as sp
 from scipy.optimize import brentq
 from scipy.stats import hypergeom, nct, norm, permutation_test, ttest_ind
 from statsmodels.stats.meta_analysis import effectsize_smd
+from statsmodels.stats.multitest import multipletests
 
 from app.core.text_tests import (
     compare_texts,
     hedges_g,
     jackknife_pooled_types,
+    pairwise_text_comparisons,
     pooled_types_test,
     types_per_text,
     welch_t,
@@ -217,3 +219,17 @@ def test_bad_input_says_why(counts: np.ndarray, message: str) -> None:
     other = np.array([[2, 2, 2], [1, 3, 1]])
     with pytest.raises(ValueError, match=message):
         compare_texts(counts, other, 2, 4, np.random.default_rng(0))
+
+
+def test_pairwise_comparisons_adjust_each_test_over_the_pairs() -> None:
+    # reference: statsmodels' multipletests(method="holm") over the pairs, test by test (Holm 1979)
+    rng = np.random.default_rng(12)
+    corpora = [topic_texts(rng, 8, median_length=200), topic_texts(rng, 6, median_length=200)]
+    corpora.append(topic_texts(rng, 7, median_length=200, topic_share=0.6, topic_words=60))
+    pooled_size = int(min(c.sum() for c in corpora)) // 2
+    pairs = pairwise_text_comparisons(corpora, ["a", "b", "c"], 100, pooled_size, np.random.default_rng(0))
+    assert [(p.first, p.second) for p in pairs] == [("a", "b"), ("a", "c"), ("b", "c")]
+    for k in range(3):
+        raw = [p.comparison.tests[k].p for p in pairs]
+        np.testing.assert_allclose([p.p_holm[k] for p in pairs], multipletests(raw, method="holm")[1])
+    assert pairs[0].comparison.welch.texts_first == 8
