@@ -320,7 +320,10 @@ def pooled_types_test(
     p: a permutation test over texts (``deals``, ``permutation_p``): the texts of both corpora are dealt at
     random into corpora of the original numbers of texts, each pooled, and the difference of their
     E[V(size)] (``_pool_types``) recomputed. Range: d -+ z_{(1 + level) / 2} sqrt(se1^2 + se2^2) with the
-    delete-one-text jackknife standard errors (``jackknife_pooled_types``), wider than nominal as they are.
+    delete-one-text jackknife standard errors (``jackknife_pooled_types``); on 400 random halves of 40 texts
+    the 90% range left out 0 in 3% of simulated topic-clustered collections (wider than nominal) and in 10%
+    of standard-library docstring paragraphs (as nominal), while the permutation test flagged 3.8% and 4.8%
+    at the 5% level (``benchmarks/text_statistics.py``).
 
     Why not a bootstrap over texts: a bootstrap resample repeats some texts and lacks others (about 63% of
     the texts are drawn), and the pooled types count a text's own words once however often it is drawn, so
