@@ -31,7 +31,7 @@ from app.core.models.base import RANGE_LEVEL, Z90
 from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
 from app.core.validity import checked_prediction
-from app.services import modelling
+from app.services import modelling, text_comparisons
 from app.services.export import table_text
 from app.services.memo import RecentResults
 from app.store import comparisons as saved
@@ -611,6 +611,7 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
     rows = [_size_matched_row(m, n0) for m in members]
     tests, untested = _tests(rows)
     random_order = [_random_order(engine, m.corpus) for m in members]
+    by_texts, text_warnings = text_comparisons.text_tests(engine, corpora, n0)
     return {
         "kind": "lexigrowth comparison",
         "program_version": PROGRAM_VERSION,
@@ -620,8 +621,9 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "range_level": RANGE_LEVEL,
         "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
         "warnings": _warnings(members, rows, n0, horizon)
-        + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage],
-        "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested},
+        + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage]
+        + text_warnings,
+        "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested} | by_texts,
         "spread": _spread(members, n0),
         "growth": [
             _growth(engine, m, horizon, curve) for m, (curve, _) in zip(members, random_order, strict=True)

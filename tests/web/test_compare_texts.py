@@ -1,0 +1,127 @@
+"""Text-level statistics of a comparison through the API: corpora of `###`-separated texts.
+
+References: each text's tokens from nltk's RegexpTokenizer (``nltk_tokens``, independent of the ingestion
+pipeline); per-text expected types from scipy.stats.hypergeom (E[V(m)] = sum over types of
+1 - P(0 occurrences in m draws)); Welch's test from scipy.stats.ttest_ind(equal_var=False); dispersion and
+keyness from the maths core on a matrix built here from those tokens.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+
+import numpy as np
+import pytest
+import scipy.sparse as sp
+from scipy import stats
+
+from app.core.text_tests import pairwise_text_comparisons
+from app.services.text_comparisons import MIN_TEXT_SIZE, SEED
+from tests.web.test_corpus_kinds import nltk_tokens, upload
+
+
+def paragraphs(text: str, smallest: int, count: int, skip: int = 0) -> list[str]:
+    """``count`` docstring paragraphs of at least ``smallest`` tokens, after skipping ``skip`` of them."""
+    found = [
+        p for p in dict.fromkeys(text.split("\n\n")) if len(nltk_tokens(p)) >= smallest and "###" not in p
+    ]
+    return found[skip : skip + count]
+
+
+def matrices(corpora: list[list[str]]) -> tuple[list[sp.csr_matrix], list[str]]:
+    """Texts x words counts of each corpus over the union of their words, from nltk's tokens."""
+    counts = [[Counter(nltk_tokens(t)) for t in texts] for texts in corpora]
+    words = sorted(set().union(*(c for texts in counts for c in texts)))
+    column = {w: j for j, w in enumerate(words)}
+    out = []
+    for texts in counts:
+        dense = np.zeros((len(texts), len(words)), dtype=np.int64)
+        for i, c in enumerate(texts):
+            for w, n in c.items():
+                dense[i, column[w]] = n
+        out.append(sp.csr_matrix(dense))
+    return out, words
+
+
+def hypergeometric_types(tokens: list[str], m: int) -> float:
+    counts = Counter(tokens)
+    n = len(tokens)
+    return sum(1 - stats.hypergeom.pmf(0, n, f, m) for f in counts.values())  # scipy.stats reference
+
+
+@pytest.fixture()
+def two_collections(client, stdlib_text):
+    texts_a = paragraphs(stdlib_text, 60, 8)
+    texts_b = paragraphs(stdlib_text, 60, 7, skip=8)
+    ids = [
+        upload(client, "text", f"{name}.txt", "\n###\n".join(t).encode(), name, text_separator="###").json()[
+            "id"
+        ]
+        for name, t in (("first", texts_a), ("second", texts_b))
+    ]
+    return ids, [texts_a, texts_b]
+
+
+def test_text_tests_of_a_pair_equal_the_core_and_scipy(client, two_collections):
+    ids, corpora = two_collections
+    answer = client.get("/api/compare", params={"corpus": ids}).json()
+    level = answer["size_matched"]["text_level"]
+    shortest = min(len(nltk_tokens(t)) for texts in corpora for t in texts)
+    assert level["available"] and level["text_size"] == max(MIN_TEXT_SIZE, shortest)
+    m = level["text_size"]
+    [pair] = answer["size_matched"]["text_tests"]
+    assert (pair["first"], pair["second"]) == tuple(ids)
+    per_text = [[hypergeometric_types(nltk_tokens(t), m) for t in texts] for texts in corpora]
+    for row, values in zip(level["rows"], per_text, strict=True):
+        assert row["tested"] == len(values) and row["too_short"] == 0
+        assert row["mean"] == pytest.approx(np.mean(values), rel=1e-9)
+        assert row["sd"] == pytest.approx(np.std(values, ddof=1), rel=1e-9)
+    welch = stats.ttest_ind(per_text[0], per_text[1], equal_var=False)  # scipy.stats reference
+    assert pair["tests"]["welch"]["p"] == pytest.approx(welch.pvalue, rel=1e-6)
+    assert pair["difference"] == pytest.approx(np.mean(per_text[0]) - np.mean(per_text[1]), rel=1e-9)
+    # the same stored texts through the core, with the service's seed: the same numbers
+    counts, _ = matrices(corpora)
+    pooled_size = level["pooled_size"]
+    assert pooled_size <= min(sum(len(nltk_tokens(t)) for t in texts) for texts in corpora)
+    [core] = pairwise_text_comparisons(counts, ["a", "b"], m, pooled_size, np.random.default_rng(SEED))
+    assert pair["p"] == pytest.approx(core.comparison.permutation.p, rel=1e-12)
+    assert pair["tests"]["pooled"]["p"] == pytest.approx(core.comparison.pooled.p, rel=1e-12)
+    assert pair["tests"]["pooled"]["difference"] == pytest.approx(core.comparison.pooled.difference, rel=1e-9)
+    assert pair["effect"]["g"] == pytest.approx(core.comparison.effect.g, rel=1e-9)
+    assert pair["effect"]["low"] < pair["effect"]["g"] < pair["effect"]["high"]
+    assert 0 < pair["p_holm"] <= 1 and pair["p_holm"] == pytest.approx(pair["p"])  # one pair: Holm is p
+    page = client.get("/compare", params={"corpus": ids}).text
+    assert "do the texts of one corpus have a richer vocabulary" in page
+    assert page.index('id="text-tests"') < page.index('id="tests-table"')  # the text-level tests lead
+
+
+def test_short_texts_are_listed_and_left_out(client, stdlib_text):
+    long_texts = paragraphs(stdlib_text, 60, 4)
+    short = "Short text of a few words only."
+    first = upload(
+        client, "text", "a.txt", "\n###\n".join([*long_texts[:2], short]).encode(), "a", text_separator="###"
+    ).json()["id"]
+    second = upload(
+        client, "text", "b.txt", "\n###\n".join(long_texts[2:]).encode(), "b", text_separator="###"
+    ).json()["id"]
+    level = client.get("/api/compare", params={"corpus": [first, second]}).json()["size_matched"][
+        "text_level"
+    ]
+    assert level["available"], level["reason"]
+    assert level["text_size"] == MIN_TEXT_SIZE  # the shortest text is below the floor
+    row = level["rows"][0]
+    assert row["tested"] == 2 and row["too_short"] == 1
+    assert row["too_short_texts"] == [{"position": 3, "name": "a.txt #3", "tokens": len(nltk_tokens(short))}]
+
+
+def test_a_corpus_without_texts_falls_back_to_token_tests_with_a_warning(client, two_collections):
+    ids, _ = two_collections
+    counts = upload(client, "word-counts", "c.tsv", b"word\tcount\ntide\t30\nnet\t20\nthe\t50\n", "counts")
+    answer = client.get("/api/compare", params={"corpus": [ids[0], counts.json()["id"]]}).json()
+    assert answer["size_matched"]["text_tests"] == []
+    assert answer["size_matched"]["text_level"]["without_texts"] == [counts.json()["id"]]
+    assert len(answer["size_matched"]["tests"]) == 1  # the token-level test is still there
+    [warning] = [w for w in answer["warnings"] if w["kind"] == "texts"]
+    assert "counts has no texts" in warning["message"] and "token-level tests only" in warning["message"]
+    page = client.get("/compare", params={"corpus": [ids[0], counts.json()["id"]]}).text
+    assert "token-level tests only" in page
