@@ -44,8 +44,9 @@ SEED = 20261205
 TEXT_TESTS_MAX_CELLS = 200_000
 """The most (text, word) cells plus words, summed over the pairs, whose text-level tests a page computes.
 The whole corpora's permutation test costs two interpolations per deal over the pair's cells and words
-(``POOLED_PERMUTATIONS`` deals): 5.5 s for 294,700 cells and 50,000 words (``benchmarks/README.md``), so
-this bound keeps the section near 3 s, as the distinctive words are kept."""
+(``POOLED_PERMUTATIONS`` deals): 5.5 s for 294,700 cells and 50,000 words (``benchmarks/README.md``), and
+0.8 s for two corpora of 150 texts of 400 tokens (61,810 cells, 2 x 20,000 words; measured on the
+development machine), so this bound keeps the section under about 3 s, as the distinctive words are kept."""
 SHORT_LISTED = 20
 """Texts too short for the common text size are listed by name up to this many per corpus (all counted)."""
 

@@ -24,9 +24,12 @@ from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
 from app.core import text_growth as tg
+from app.core.dispersion import Dispersion, dispersion
 from app.ingest.texts import TextCounts
+from app.services.memo import RecentResults
 from app.services.modelling import code_fingerprint
 from app.store import corpora as store
+from app.store.tables import Corpus
 
 TEXT_GROWTH = "text_growth"
 GROWTH_KEY = f"{PROGRAM_VERSION}+code-{code_fingerprint((Path(tg.__file__), Path(__file__)))}"
@@ -236,3 +239,42 @@ def plan_texts(engine: Engine, corpus_id: int, types: float) -> dict[str, Any]:
         if plan.more_high is not None
         else f"the lower end of the range does not reach the target within {plan.largest:,} further texts",
     }
+
+
+DISPERSION_METHOD = (
+    "in k of n texts: the texts holding the word; DP: Gries' deviation of proportions (Gries 2008), 0 for a "
+    "word spread over the texts in proportion to their sizes, near 1 for a word in one text; Juilland's D "
+    "(Juilland & Chang-Rodriguez 1964) over the texts' relative frequencies, 1 for a perfectly even word, "
+    "0 for a word in one text"
+)
+_dispersions: RecentResults[tuple[dict[str, int], Dispersion]] = RecentResults(8)
+"""Per process, the dispersion of every word of the last corpora asked for: reading a corpus's texts is
+the cost (1.5 s for 100,000 texts; the dispersion of 294,700 (text, word) cells takes 0.03 s), paid once
+per corpus and process, and only by a page or JSON answer of its word list."""
+
+
+def word_dispersion(engine: Engine, corpus: Corpus, words: list[str]) -> dict[str, Any] | None:
+    """How the given words spread over the corpus's ``texts`` (``app.core.dispersion``): per word
+    ``in_texts`` (in how many of them), ``dp``, ``dp_norm`` and ``juilland_d``; None for a corpus with
+    fewer than two texts."""
+    info = store.texts_info(corpus)
+    if info is None or info.get("texts", 0) < 2:
+        return None
+
+    def compute() -> tuple[dict[str, int], Dispersion]:
+        counts = text_word_counts(engine, corpus.id)
+        return {w: j for j, w in enumerate(counts.words)}, dispersion(counts.matrix)
+
+    key = (str(engine.url), corpus.id, corpus.content_hash, corpus.created_at.isoformat())
+    column, spread = _dispersions.get(key, compute)
+    out = {}
+    for word in words:
+        j = column.get(word)
+        if j is not None:
+            out[word] = {
+                "in_texts": int(spread.texts_with_word[j]),
+                "dp": float(spread.dp[j]),
+                "dp_norm": float(spread.dp_norm[j]),
+                "juilland_d": float(spread.juilland_d[j]),
+            }
+    return {"texts": spread.texts, "method": DISPERSION_METHOD, "words": out}

@@ -18,6 +18,7 @@ from app.ingest.profiles import BUILTIN_PROFILES
 from app.ingest.readers import TextSource
 from app.services import estimator, exchange, ingestion, modelling, tasks
 from app.services.jobs import Dispatcher
+from app.services.texts import word_dispersion
 from app.store import corpora as store
 from app.store import tasks as queue
 from app.web import downloads
@@ -269,11 +270,21 @@ def words(
     limit: Annotated[int, Query(ge=1, le=10_000)] = 100,
     offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
 ) -> dict:
-    source = store.source(corpus_or_404(engine, corpus_id))
+    corpus = corpus_or_404(engine, corpus_id)
+    source = store.source(corpus)
     if not source["word_list"]:
         return {"total": 0, "offset": offset, "words": [], "available": False, "note": no_word_list(source)}
     total, rows = store.word_counts(engine, corpus_id, search, limit, offset)
-    return {"total": total, "offset": offset, "words": [{"word": w, "count": c} for w, c in rows]}
+    spread = word_dispersion(engine, corpus, [w for w, _ in rows])
+    if spread is None:
+        return {"total": total, "offset": offset, "words": [{"word": w, "count": c} for w, c in rows]}
+    return {
+        "total": total,
+        "offset": offset,
+        "texts": spread["texts"],
+        "dispersion": spread["method"],
+        "words": [{"word": w, "count": c} | spread["words"].get(w, {}) for w, c in rows],
+    }
 
 
 @router.get("/corpora/{corpus_id}/spectrum.tsv")

@@ -125,3 +125,28 @@ def test_a_corpus_without_texts_falls_back_to_token_tests_with_a_warning(client,
     assert "counts has no texts" in warning["message"] and "token-level tests only" in warning["message"]
     page = client.get("/compare", params={"corpus": [ids[0], counts.json()["id"]]}).text
     assert "token-level tests only" in page
+
+
+def test_word_list_dispersion_follows_the_published_formulas(client, two_collections):
+    ids, corpora = two_collections
+    answer = client.get(f"/api/corpora/{ids[0]}/words", params={"limit": 10_000}).json()
+    texts = [Counter(nltk_tokens(t)) for t in corpora[0]]
+    lengths = np.array([sum(c.values()) for c in texts], dtype=float)
+    shares = lengths / lengths.sum()
+    assert answer["texts"] == len(texts) and "Gries" in answer["dispersion"]
+    assert len(answer["words"]) == answer["total"] == len(set().union(*texts))
+    for entry in answer["words"]:
+        x = np.array([c[entry["word"]] for c in texts], dtype=float)
+        # Gries (2008): DP = 1/2 sum |v_i - s_i|; Juilland's D = 1 - sd / mean / sqrt(n - 1) over the texts'
+        # relative frequencies (published formulas, computed here word by word)
+        assert entry["in_texts"] == np.count_nonzero(x)
+        assert entry["dp"] == pytest.approx(0.5 * np.abs(x / x.sum() - shares).sum(), abs=1e-12)
+        rates = x / lengths
+        juilland = 1 - rates.std() / rates.mean() / np.sqrt(len(texts) - 1)
+        assert entry["juilland_d"] == pytest.approx(juilland, abs=1e-9)
+    page = client.get(f"/corpora/{ids[0]}").text
+    assert "Juilland's D" in page and 'data-field="dp"' in page
+    counts = upload(client, "word-counts", "c.tsv", b"word\tcount\ntide\t30\n", "counts").json()["id"]
+    plain = client.get(f"/api/corpora/{counts}/words").json()
+    assert "texts" not in plain and plain["words"] == [{"word": "tide", "count": 30}]
+    assert "Juilland's D" not in client.get(f"/corpora/{counts}").text
