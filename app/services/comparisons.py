@@ -612,7 +612,7 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
     tests, untested = _tests(rows)
     random_order = [_random_order(engine, m.corpus) for m in members]
     by_texts, text_warnings = text_comparisons.text_tests(engine, corpora, n0)
-    return {
+    snapshot = {
         "kind": "lexigrowth comparison",
         "program_version": PROGRAM_VERSION,
         "computed_at": datetime.now(UTC).isoformat(),
@@ -636,6 +636,8 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         ],
         "distinctive": _distinctive(engine, settings.pair, settings.min_freq, settings.limit),
     }
+    snapshot["distinctive_texts"] = text_comparisons.distinctive_across_texts(engine, snapshot["distinctive"])
+    return snapshot
 
 
 _snapshots: RecentResults[dict[str, Any]] = RecentResults(CACHE_SIZE)
@@ -837,10 +839,18 @@ def without_word_lists(snapshot: dict[str, Any]) -> dict[str, Any]:
     no word (the distinctive words are emptied and marked hidden; counts of words tested stay) and no
     content hash (the SHA-256 of a corpus's text would let anyone confirm a guess of that text)."""
     corpora = [{k: v for k, v in c.items() if k != "content_hash"} for c in snapshot["corpora"]]
-    return snapshot | {
-        "corpora": corpora,
-        "distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True},
-    }
+    return (
+        snapshot
+        | {
+            "corpora": corpora,
+            "distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True},
+        }
+        | (
+            {"distinctive_texts": snapshot["distinctive_texts"] | {"words": [], "words_hidden": True}}
+            if "distinctive_texts" in snapshot
+            else {}
+        )
+    )
 
 
 # ------------------------------------------------------------------------------------------ downloads

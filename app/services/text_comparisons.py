@@ -23,7 +23,9 @@ import numpy as np
 from scipy import sparse
 from sqlalchemy.engine import Engine
 
+from app.core.comparison import holm_adjust
 from app.core.richness import HDD_DRAWS
+from app.core.text_keyness import text_keyness
 from app.core.text_tests import (
     POOLED_PERMUTATIONS,
     PairTextComparison,
@@ -261,3 +263,67 @@ def text_tests(engine: Engine, corpora: list[Corpus], n0: int) -> tuple[dict[str
             "rows": [rows[u.corpus.id] for u in usable],
         },
     }, warnings
+
+
+def distinctive_across_texts(engine: Engine, distinctive: dict[str, Any]) -> dict[str, Any]:
+    """Keyness across texts (``app.core.text_keyness``) of the distinctive words of a pair (the snapshot's
+    ``distinctive``): per word shown, in how many of each corpus's texts it occurs, its pooled frequency
+    per million tokens on each side, and the Mann-Whitney U test of its per-text relative frequencies
+    (and Welch's t), two-sided, each Holm-adjusted over the same words as G^2 (those occurring at least
+    ``min_freq`` times in the pair together), shown beside their G^2 and log ratio. Unavailable, with the
+    reason, unless both corpora have at least two texts."""
+    pair = (distinctive["first"], distinctive["second"])
+    found = store.get_corpora(engine, list(pair))
+    corpora = [found[cid] for cid in pair]
+    if distinctive.get("note"):
+        return {"available": False, "reason": distinctive["note"], "words": []}
+    without = [c.name for c in corpora if (store.texts_info(c) or {}).get("texts", 0) < 2]
+    if without:
+        return {
+            "available": False,
+            "reason": f"no keyness across texts: {', '.join(without)} has fewer than two texts; the G² test "
+            "above takes every token as an independent draw",
+            "words": [],
+        }
+    memo.checkpoint()
+    counts = [text_word_counts(engine, cid) for cid in pair]
+    first, second = union_matrices(counts)
+    words = sorted(set(counts[0].words) | set(counts[1].words))
+    keyness = text_keyness(first, second)
+    tested = np.flatnonzero(
+        np.asarray(first.sum(axis=0)).ravel() + np.asarray(second.sum(axis=0)).ravel()
+        >= distinctive["min_freq"]
+    )
+    holm_u = dict(zip(tested, holm_adjust(keyness.p_mann_whitney[tested]), strict=True))
+    holm_t = dict(zip(tested, holm_adjust(keyness.p_welch[tested]), strict=True))
+    column = {w: j for j, w in enumerate(words)}
+    shown = []
+    for entry in distinctive["words"]:
+        j = column[entry["word"]]
+        shown.append(
+            {
+                "word": entry["word"],
+                "g2": entry["g2"],
+                "log_ratio": entry["log_ratio"],
+                "in_texts_first": int(keyness.in_texts_first[j]),
+                "in_texts_second": int(keyness.in_texts_second[j]),
+                "per_million_first": float(keyness.per_million_first[j]),
+                "per_million_second": float(keyness.per_million_second[j]),
+                "p_mann_whitney": float(keyness.p_mann_whitney[j]),
+                "p_mann_whitney_holm": float(holm_u[j]),
+                "t": float(keyness.t[j]),
+                "p_welch_holm": float(holm_t[j]),
+            }
+        )
+    return {
+        "available": True,
+        "reason": None,
+        "first": pair[0],
+        "second": pair[1],
+        "texts_first": keyness.texts_first,
+        "texts_second": keyness.texts_second,
+        "tested": int(tested.size),
+        "method": "Mann-Whitney U (normal approximation with tie and continuity corrections) and Welch's t "
+        "of the per-text relative frequencies, texts as the unit; p (Holm) over the words tested by G²",
+        "words": shown,
+    }

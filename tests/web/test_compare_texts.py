@@ -14,7 +14,9 @@ import numpy as np
 import pytest
 import scipy.sparse as sp
 from scipy import stats
+from statsmodels.stats.multitest import multipletests
 
+from app.core.text_keyness import text_keyness
 from app.core.text_tests import pairwise_text_comparisons
 from app.services.text_comparisons import MIN_TEXT_SIZE, SEED
 from tests.web.test_corpus_kinds import nltk_tokens, upload
@@ -150,3 +152,41 @@ def test_word_list_dispersion_follows_the_published_formulas(client, two_collect
     plain = client.get(f"/api/corpora/{counts}/words").json()
     assert "texts" not in plain and plain["words"] == [{"word": "tide", "count": 30}]
     assert "Juilland's D" not in client.get(f"/corpora/{counts}").text
+
+
+def test_distinctive_words_across_texts_equal_scipy_and_the_core(client, two_collections):
+    ids, corpora = two_collections
+    answer = client.get("/api/compare", params={"corpus": ids, "min_freq": 3}).json()
+    keyness, distinctive = answer["distinctive_texts"], answer["distinctive"]
+    assert keyness["available"] and [w["word"] for w in keyness["words"]] == [
+        w["word"] for w in distinctive["words"]
+    ]
+    assert (keyness["texts_first"], keyness["texts_second"]) == (len(corpora[0]), len(corpora[1]))
+    (first, second), words = matrices(corpora)
+    core = text_keyness(first, second)
+    totals = np.asarray(first.sum(axis=0)).ravel() + np.asarray(second.sum(axis=0)).ravel()
+    tested = np.flatnonzero(totals >= 3)
+    assert keyness["tested"] == distinctive["tested"] == tested.size
+    holm = dict(zip(tested, multipletests(core.p_mann_whitney[tested], method="holm")[1], strict=True))
+    column = {w: j for j, w in enumerate(words)}
+    rates = [first.toarray() / first.sum(axis=1), second.toarray() / second.sum(axis=1)]
+    for entry, plain in zip(keyness["words"], distinctive["words"], strict=True):
+        j = column[entry["word"]]
+        assert (entry["g2"], entry["log_ratio"]) == (plain["g2"], plain["log_ratio"])
+        assert entry["in_texts_first"] == np.count_nonzero(first[:, [j]].toarray())
+        assert entry["in_texts_second"] == np.count_nonzero(second[:, [j]].toarray())
+        reference = stats.mannwhitneyu(rates[0][:, j], rates[1][:, j], method="asymptotic")  # scipy reference
+        assert entry["p_mann_whitney"] == pytest.approx(reference.pvalue, rel=1e-9)
+        assert entry["p_mann_whitney_holm"] == pytest.approx(holm[j], rel=1e-9)  # statsmodels reference
+        assert entry["per_million_first"] == pytest.approx(1e6 * first[:, [j]].sum() / first.sum(), rel=1e-12)
+    page = client.get("/compare", params={"corpus": ids, "min_freq": 3}).text
+    assert 'id="keyness-table"' in page and "Mann-Whitney p (Holm)" in page
+
+
+def test_distinctive_words_across_texts_need_texts_on_both_sides(client, two_collections):
+    ids, _ = two_collections
+    counts = upload(client, "word-counts", "c.tsv", b"word\tcount\nthe\t30\nnet\t20\n", "counts").json()["id"]
+    answer = client.get("/api/compare", params={"corpus": [ids[0], counts]}).json()
+    assert answer["distinctive_texts"]["available"] is False
+    assert "counts has fewer than two texts" in answer["distinctive_texts"]["reason"]
+    assert answer["distinctive"]["words"]  # G² is still there
