@@ -57,7 +57,7 @@ TEXT_QUESTION = (
     "other? Each text counts once, as texts are what a corpus is made of."
 )
 TOKEN_QUESTION = (
-    "Token-level tests answer: would random samples of {n} tokens of the two corpora differ in their "
+    "Token-level tests (the size-matched tests below) answer: would random samples of {n} tokens of the two corpora differ in their "
     "expected types? They take words as independent draws."
 )
 TEST_NAMES = {
