@@ -18,6 +18,7 @@ from statsmodels.stats.multitest import multipletests
 
 from app.core.text_keyness import text_keyness
 from app.core.text_tests import pairwise_text_comparisons
+from app.services.comparisons import without_word_lists
 from app.services.text_comparisons import MIN_TEXT_SIZE, SEED
 from tests.web.test_corpus_kinds import nltk_tokens, upload
 
@@ -181,6 +182,8 @@ def test_distinctive_words_across_texts_equal_scipy_and_the_core(client, two_col
         assert entry["per_million_first"] == pytest.approx(1e6 * first[:, [j]].sum() / first.sum(), rel=1e-12)
     page = client.get("/compare", params={"corpus": ids, "min_freq": 3}).text
     assert 'id="keyness-table"' in page and "Mann-Whitney p (Holm)" in page
+    public = without_word_lists(answer)["distinctive_texts"]  # a visitor of a public permalink: no words
+    assert public["words"] == [] and public["words_hidden"] and public["tested"] == keyness["tested"]
 
 
 def test_distinctive_words_across_texts_need_texts_on_both_sides(client, two_collections):
