@@ -74,18 +74,21 @@ class _Texts:
 
 
 def _with_texts(engine: Engine, corpora: list[Corpus]) -> tuple[list[_Texts], list[dict[str, Any]]]:
-    """The corpora with at least two texts, and a warning for each of the others."""
+    """The corpora with at least two texts of ``MIN_TEXT_SIZE`` tokens or more (so at least two at the
+    common text size), and a warning for each of the others."""
     usable, warnings = [], []
     for corpus in corpora:
         info = store.texts_info(corpus)
         texts = store.corpus_texts(engine, corpus.id) if info else []
-        if len(texts) >= 2:
+        long_enough = sum(1 for t in texts if t[2] >= MIN_TEXT_SIZE)
+        if long_enough >= 2:
             usable.append(_Texts(corpus, texts))
             continue
         why = (
             "has no texts (made from counts, a spectrum or a bundle, or stored before texts were kept)"
             if not info
-            else f"has {len(texts)} text; the text-level tests need at least two"
+            else f"has {long_enough} text{'s' if long_enough != 1 else ''} of {MIN_TEXT_SIZE} tokens or more "
+            f"({len(texts)} in all); the text-level tests need at least two"
         )
         warnings.append(
             {

@@ -193,3 +193,17 @@ def test_distinctive_words_across_texts_need_texts_on_both_sides(client, two_col
     assert answer["distinctive_texts"]["available"] is False
     assert "counts has fewer than two texts" in answer["distinctive_texts"]["reason"]
     assert answer["distinctive"]["words"]  # G² is still there
+
+
+def test_too_few_long_texts_or_too_large_corpora_say_why(client, two_collections, stdlib_text, monkeypatch):
+    ids, _ = two_collections
+    one_long = "\n###\n".join([paragraphs(stdlib_text, 60, 1)[0], "A short text.", "Another short one."])
+    short = upload(client, "text", "s.txt", one_long.encode(), "short", text_separator="###").json()["id"]
+    answer = client.get("/api/compare", params={"corpus": [ids[0], short]}).json()
+    assert answer["size_matched"]["text_tests"] == [] and answer["size_matched"]["tests"]
+    [warning] = [w for w in answer["warnings"] if w["kind"] == "texts"]
+    assert f"has 1 text of {MIN_TEXT_SIZE} tokens or more (3 in all)" in warning["message"]
+    monkeypatch.setattr("app.services.text_comparisons.TEXT_TESTS_MAX_CELLS", 10)
+    level = client.get("/api/compare", params={"corpus": ids}).json()["size_matched"]["text_level"]
+    assert not level["available"] and "not computed in a page for corpora this large" in level["reason"]
+    assert "not computed in a page" in client.get("/compare", params={"corpus": ids}).text
