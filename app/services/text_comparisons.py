@@ -9,7 +9,7 @@ Both corpora of a pair are given over the union of their words (one column per w
 sides), built here from each corpus's own word list (``app.services.texts.text_word_counts``).
 
 Where it runs: like the rest of a comparison, in the page's request, kept by the comparison's memo key and
-in saved permalinks, under a cost limit stated in the refusal (``TEXT_TESTS_MAX_CELLS``), as the
+in saved permalinks, under a time limit estimated before they run (``TEXT_TESTS_MAX_SECONDS``), as the
 distinctive words are (``comparisons.DISTINCTIVE_MAX_TYPES``). The permutations are drawn from a fixed
 seed, so every server process shows the same numbers for the same texts.
 """
@@ -43,12 +43,16 @@ smallest per-text sample the literature uses for richness; below it expected typ
 texts whatever their vocabulary."""
 SEED = 20261205
 """Seed of the permutations, so that the same texts always give the same p-values."""
-TEXT_TESTS_MAX_CELLS = 200_000
-"""The most (text, word) cells plus words, summed over the pairs, whose text-level tests a page computes.
-The whole corpora's permutation test costs two interpolations per deal over the pair's cells and words
-(``POOLED_PERMUTATIONS`` deals): 5.5 s for 294,700 cells and 50,000 words (``benchmarks/README.md``), and
-0.8 s for two corpora of 150 texts of 400 tokens (61,810 cells, 2 x 20,000 words; measured on the
-development machine), so this bound keeps the section under about 3 s, as the distinctive words are kept."""
+TEXT_TESTS_MAX_SECONDS = 3.0
+"""The longest a page may spend on the text-level tests, estimated before they run (``estimated_seconds``),
+as the distinctive words are kept near 3 s (``comparisons.DISTINCTIVE_MAX_TYPES``); beyond, the page says
+why it does not compute them."""
+PAIR_SECONDS = 0.32
+CELL_SECONDS = 1.5e-5
+"""Cost of one pair's tests, most of it the whole corpora's ``POOLED_PERMUTATIONS`` deals of two
+interpolations each: PAIR_SECONDS + CELL_SECONDS x ((text, word) cells + words of both corpora), fitted to
+0.41 s for two corpora of 50 docstring paragraphs (5,755 cells and words) and 5.5 s for 294,700 cells and
+50,000 words (``benchmarks/README.md``), measured on the development machine (one core)."""
 SHORT_LISTED = 20
 """Texts too short for the common text size are listed by name up to this many per corpus (all counted)."""
 
@@ -139,9 +143,10 @@ def union_matrices(counts: list) -> list[sparse.csr_matrix]:
     return out
 
 
-def _cost(usable: list[_Texts]) -> int:
+def estimated_seconds(usable: list[_Texts]) -> float:
+    """The expected time of the text-level tests of every pair (``PAIR_SECONDS``, ``CELL_SECONDS``)."""
     cells = [sum(t[3] for t in u.texts) + u.corpus.types for u in usable]
-    return sum(a + b for i, a in enumerate(cells) for b in cells[i + 1 :])
+    return sum(PAIR_SECONDS + CELL_SECONDS * (a + b) for i, a in enumerate(cells) for b in cells[i + 1 :])
 
 
 def _test_entry(test, p_holm: float) -> dict[str, Any]:
@@ -222,13 +227,17 @@ def text_tests(engine: Engine, corpora: list[Corpus], n0: int) -> tuple[dict[str
         "reason": None,
     }
     if len(usable) < 2:
-        level["reason"] = "the text-level tests need two corpora of at least two texts each"
-        return {"text_tests": [], "text_level": level}, warnings
-    if _cost(usable) > TEXT_TESTS_MAX_CELLS:
         level["reason"] = (
-            f"the text-level tests are not computed in a page for corpora this large: {_cost(usable):,} "
-            f"(text, word) cells and words over the pairs, more than the {TEXT_TESTS_MAX_CELLS:,} (about 3 s "
-            f"with {POOLED_PERMUTATIONS:,} permutations per pair) a page may take; compare fewer corpora"
+            f"the text-level tests need two corpora of at least two texts of {MIN_TEXT_SIZE} tokens or more each"
+        )
+        return {"text_tests": [], "text_level": level}, warnings
+    seconds = estimated_seconds(usable)
+    if seconds > TEXT_TESTS_MAX_SECONDS:
+        pairs = len(usable) * (len(usable) - 1) // 2
+        level["reason"] = (
+            f"the text-level tests are not computed in a page for this comparison: {pairs} pairs with "
+            f"{POOLED_PERMUTATIONS:,} permutations each would take about {seconds:.1f} s, more than the "
+            f"{TEXT_TESTS_MAX_SECONDS:.0f} s a page may take; compare fewer corpora at a time"
         )
         return {"text_tests": [], "text_level": level}, warnings
     text_size = common_text_size(usable)

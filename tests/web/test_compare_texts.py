@@ -203,7 +203,7 @@ def test_too_few_long_texts_or_too_large_corpora_say_why(client, two_collections
     assert answer["size_matched"]["text_tests"] == [] and answer["size_matched"]["tests"]
     [warning] = [w for w in answer["warnings"] if w["kind"] == "texts"]
     assert f"has 1 text of {MIN_TEXT_SIZE} tokens or more (3 in all)" in warning["message"]
-    monkeypatch.setattr("app.services.text_comparisons.TEXT_TESTS_MAX_CELLS", 10)
+    monkeypatch.setattr("app.services.text_comparisons.TEXT_TESTS_MAX_SECONDS", 0.1)
     level = client.get("/api/compare", params={"corpus": ids}).json()["size_matched"]["text_level"]
-    assert not level["available"] and "not computed in a page for corpora this large" in level["reason"]
+    assert not level["available"] and "not computed in a page for this comparison" in level["reason"]
     assert "not computed in a page" in client.get("/compare", params={"corpus": ids}).text
