@@ -16,6 +16,7 @@ seed, so every server process shows the same numbers for the same texts.
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 from typing import Any
 
@@ -182,12 +183,11 @@ def _pair_entry(pair: PairTextComparison) -> dict[str, Any]:
         "p": lead.p,
         "p_holm": holm["permutation"],
         "method": f"{lead.method}, per-text E[V({c.first.size})]; range: Welch's t",
-        "effect": {
-            "measure": "Hedges' g",
-            "g": c.effect.g,
-            "low": c.effect.low,
-            "high": c.effect.high,
-            "level": c.effect.level,
+        # Hedges' g is undefined (nan) when neither corpus's texts differ at all: null, as JSON has no nan
+        "effect": {"measure": "Hedges' g", "level": c.effect.level}
+        | {
+            key: None if math.isnan(value) else value
+            for key, value in (("g", c.effect.g), ("low", c.effect.low), ("high", c.effect.high))
         },
         "tests": {
             name: _test_entry(getattr(c, name), holm[name]) | {"name": TEST_NAMES[name]}
