@@ -169,6 +169,14 @@ def ingest(
             "(frequency, types) or one corpus bundle from 'export --bundle'.",
         ),
     ] = "text",
+    text_separator: Annotated[
+        str,
+        typer.Option(
+            "--text-separator",
+            help="Where the texts of a file end: file (each file is one text), paragraph (blank lines), "
+            "line (one text per line), or a marker line such as '###'.",
+        ),
+    ] = "file",
 ) -> None:
     """Count FILES as one corpus (or read them as counts, a spectrum or a bundle), store it, fit its models."""
     from app.ingest.profiles import get_profile
@@ -183,8 +191,10 @@ def ingest(
         chosen = get_profile(profile)
         if kind == "text":
             corpus_id = _ingest_texts(
-                engine, settings, files, name or "", labels, chosen, count_engine, scheduler
+                engine, settings, files, name or "", labels, chosen, count_engine, scheduler, text_separator
             )
+        elif text_separator != "file":
+            raise IngestionInputError("--text-separator: only files of texts are split into texts")
         else:
             corpus_id = _ingest_counts(engine, kind, files, name, labels, chosen)
     except (UnreadableFileError, IngestionInputError, ValueError, FileNotFoundError) as exc:
@@ -203,7 +213,9 @@ def _ingest_counts(engine, kind: str, files: list[Path], name: str | None, label
     return ingest_counts(engine, kind, [(p, p.name) for p in files], name, labels, profile)
 
 
-def _ingest_texts(engine, settings, files, name: str, labels: dict, profile, count_engine, scheduler) -> int:
+def _ingest_texts(
+    engine, settings, files, name: str, labels: dict, profile, count_engine, scheduler, text_separator: str
+) -> int:
     """Texts counted with a progress bar on standard error."""
     from app.ingest.readers import TextSource
     from app.services.ingestion import ingest as run_ingest
@@ -227,6 +239,7 @@ def _ingest_texts(engine, settings, files, name: str, labels: dict, profile, cou
             settings.work_dir,
             counting_engine=count_engine,
             scheduler=scheduler,
+            text_separator=text_separator,
         )
 
 

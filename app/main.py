@@ -20,7 +20,7 @@ from app.services import tasks
 from app.services.jobs import Dispatcher
 from app.services.worker import TaskWorker
 from app.store.db import make_engine
-from app.web import api, assets, compare, library, pages, security
+from app.web import api, assets, compare, library, pages, security, texts_api
 from app.web.caching import GZIP_LEVEL, EntityTagMiddleware
 from app.web.jsonsafe import FiniteJSONResponse
 from app.web.limits import BodyLimitMiddleware, HeadMiddleware
@@ -94,6 +94,7 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     app.mount("/static", assets.CachedStaticFiles(directory=STATIC_DIR), name="static")
     app.include_router(api.router)
+    app.include_router(texts_api.router)
     app.include_router(pages.router)
     app.include_router(compare.router)
     app.include_router(library.router)

@@ -76,3 +76,28 @@ def test_ingest_kinds_and_export_bundle(tmp_path):
     assert bad.exit_code == 2 and "line 1" in bad.output
     listing = runner.invoke(app, ["list", *data]).output
     assert listing.count("\n") == 4  # header and three corpora: the bad file stored nothing
+
+
+def test_ingest_splits_texts_at_a_marker_line(tmp_path):
+    from app.config import Settings
+    from app.services import texts
+    from app.store.db import make_engine
+
+    paragraphs = GETTYSBURG.split(", ")  # one text per clause
+    text_file = tmp_path / "speech.txt"
+    text_file.write_text("\n%%\n".join(paragraphs), encoding="utf-8")
+    data = ["--data-dir", str(tmp_path / "data")]
+    result = runner.invoke(
+        app, ["ingest", str(text_file), "--name", "Speech", "--text-separator", "%%", "--no-fit", *data]
+    )
+    assert result.exit_code == 0, result.output
+    engine = make_engine(Settings(data_dir=tmp_path / "data").resolved_database_url)
+    table = texts.text_table(engine, 1)
+    # Reference: the paragraphs counted by the tests' own counter (expected_counts), one text each.
+    assert len(table["texts"]) == len(paragraphs) > 5
+    assert [t["tokens"] for t in table["texts"]] == [sum(expected_counts(p).values()) for p in paragraphs]
+    engine.dispose()
+    refused = runner.invoke(
+        app, ["ingest", str(text_file), "--kind", "spectrum", "--name", "x", "--text-separator", "%%", *data]
+    )
+    assert refused.exit_code == 2 and "text-separator" in refused.output

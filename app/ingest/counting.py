@@ -45,7 +45,7 @@ import numpy as np
 import regex
 
 from app.core.spectrum import Spectrum
-from app.ingest import scratch
+from app.ingest import scratch, texts
 from app.ingest.engines import BatchCounts, EngineName, choose_engine, count_batches
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import DEFAULT_CHUNK_CHARS, TextSource
@@ -111,6 +111,7 @@ class CountResult:
     first_positions: np.ndarray
     content_hash: str
     type_sequence_path: Path
+    text_ends: list[tuple[int, int]] = field(default_factory=list)
     _finalizer: weakref.finalize = field(init=False, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -129,6 +130,25 @@ class CountResult:
         if not self._finalizer.alive:
             raise ValueError("the count result is closed: its type-id file was deleted")
         return np.memmap(self.type_sequence_path, dtype=TYPE_ID_DTYPE, mode="r", shape=(self.tokens,))
+
+    def text_counts(self) -> tuple[list[texts.TextCounts], int]:
+        """The word counts of every text with a word token (``app.ingest.texts``), and how many texts
+        without any were skipped. Needs the type-id file: call before ``close``."""
+        if not self._finalizer.alive:
+            raise ValueError("the count result is closed: its type-id file was deleted")
+        ends, starts, sources = [], 0, []
+        for end, source in self.text_ends:
+            if end > starts:
+                ends.append(end)
+                sources.append(source)
+            starts = end
+        skipped = len(self.text_ends) - len(ends)
+        if not ends:
+            return [], skipped
+        names = texts.text_names(self.names, sources)
+        rank = texts.word_ranks(self.counts)
+        counted = texts.per_text_counts(self.type_sequence_path, np.array(ends, dtype=np.int64), rank, names)
+        return list(counted), skipped
 
     def close(self) -> None:
         """Delete the temporary type-id file (idempotent)."""
@@ -159,32 +179,63 @@ def _safe_cut(text: str) -> int:
     return match.end() if match else 0
 
 
-def _pieces(
-    sources: Sequence[TextSource], chunk_chars: int, digest: Callable[[bytes], object]
+@dataclass(frozen=True)
+class PieceTag:
+    """What is known of a piece besides its text: the input bytes read so far, and the source whose text
+    ends with it (None when no text ends there)."""
+
+    bytes_read: int
+    ends_text_of: int | None
+
+
+def _digested(
+    chunks: Iterable[tuple[str, int]], digest: Callable[[bytes], object]
 ) -> Iterator[tuple[str, int]]:
-    """The corpus cut into pieces that tokenize independently: (piece, input bytes read so far) in text
-    order, one per chunk read (empty when the chunk holds no safe cut) and one for the rest of each
-    source. The decoded text goes to ``digest`` (as UTF-8, sources joined by a line break) on the way."""
+    for chunk, consumed in chunks:
+        digest(chunk.encode("utf-8", "surrogatepass"))
+        yield chunk, consumed
+
+
+def _pieces(
+    sources: Sequence[TextSource],
+    chunk_chars: int,
+    digest: Callable[[bytes], object],
+    separator: str = texts.FILE,
+) -> Iterator[tuple[str, PieceTag]]:
+    """The corpus cut into pieces that tokenize independently, in text order: one per chunk read (empty
+    when the chunk holds no safe cut), one for the rest of each text (``app.ingest.texts``: a file or a
+    part of it between separators) and one for the rest of each source. The decoded text goes to
+    ``digest`` (as UTF-8, sources joined by a line break) on the way."""
     done_before = 0
     for index, source in enumerate(sources):
         if index:
             digest(_SOURCE_SEPARATOR.encode())
         carry = ""
-        for chunk, consumed in source.chunks(chunk_chars):
-            digest(chunk.encode("utf-8", "surrogatepass"))
-            text = carry + chunk
+        open_text = separator == texts.FILE  # a file is a text even when it holds no word
+        for fragment, consumed, ends_text in texts.split(
+            _digested(source.chunks(chunk_chars), digest), separator
+        ):
+            text = carry + fragment
+            if ends_text:
+                carry, open_text = "", False
+                yield text, PieceTag(done_before + consumed, index)
+                continue
+            open_text = open_text or bool(fragment.strip())
             cut = _safe_cut(text)
             carry = text[cut:]
-            yield text[:cut], done_before + consumed
+            yield text[:cut], PieceTag(done_before + consumed, None)
         done_before += source.size
-        yield carry, done_before
+        # The end of a file ends its last text, unless nothing but blanks followed the last separator.
+        yield carry, PieceTag(done_before, index if open_text else None)
 
 
-def _batches(pieces: Iterable[tuple[str, int]], chars: int) -> Iterator[tuple[list[str], list[int]]]:
+def _batches(
+    pieces: Iterable[tuple[str, PieceTag]], chars: int
+) -> Iterator[tuple[list[str], list[PieceTag]]]:
     """Consecutive pieces grouped into batches of at least ``chars`` characters (the last may be
     shorter): (pieces, their tags)."""
     texts: list[str] = []
-    tags: list[int] = []
+    tags: list[PieceTag] = []
     size = 0
     for text, tag in pieces:
         texts.append(text)
@@ -206,8 +257,18 @@ class _TypeSequence:
         self.ids: dict[str, int] = {}
         self.tokens = 0
         self._first_positions: list[np.ndarray] = []
+        self.text_ends: list[tuple[int, int]] = []
 
-    def add(self, batch: BatchCounts) -> None:
+    def add(self, batch: BatchCounts | None, tags: Sequence[PieceTag]) -> None:
+        """Merge a batch (None: its pieces hold no text) and note where each text among its pieces ends."""
+        piece_ends = self.tokens + (
+            np.cumsum(batch.piece_tokens) if batch is not None else np.zeros(len(tags))
+        )
+        for tag, end in zip(tags, piece_ends.tolist(), strict=True):
+            if tag.ends_text_of is not None:
+                self.text_ends.append((int(end), tag.ends_text_of))
+        if batch is None:
+            return
         ids, words = self.ids, batch.words()
         # Global ids of the batch's types in one C-level pass; -1 marks types not seen before.
         to_global = np.fromiter(map(ids.get, words, repeat(-1)), dtype=TYPE_ID_DTYPE, count=len(words))
@@ -249,6 +310,7 @@ def count_sources(
     chunk_chars: int = DEFAULT_CHUNK_CHARS,
     engine: EngineName | None = None,
     scheduler: str | None = None,
+    separator: str = texts.FILE,
 ) -> CountResult:
     """Count the word tokens of ``sources`` (one corpus, in order) under ``profile``.
 
@@ -258,7 +320,8 @@ def count_sources(
     otherwise. All engines give identical results. ``progress(done_bytes, total_bytes)`` is called after
     each chunk. The type-id file goes to ``workdir`` (default: the system temporary directory). Raises
     ValueError when the corpus has no word token, UnreadableFileError for a file that cannot be read, and
-    EngineUnavailableError when the engine cannot run.
+    EngineUnavailableError when the engine cannot run. ``separator`` says where the texts of a file end
+    (``app.ingest.texts``); ``CountResult.texts()`` then gives each text's counts.
     """
     if not sources:
         raise ValueError("no texts to count")
@@ -271,14 +334,14 @@ def count_sources(
         hasher = hashlib.sha256()
         with os.fdopen(handle, "wb") as sink:
             sequence = _TypeSequence(sink)
-            batches = _batches(_pieces(sources, chunk_chars, hasher.update), BATCH_CHUNKS * chunk_chars)
+            pieces = _pieces(sources, chunk_chars, hasher.update, separator)
+            batches = _batches(pieces, BATCH_CHUNKS * chunk_chars)
             with closing(count_batches(batches, profile, engine, scheduler)) as counted:
-                for batch, done in counted:
-                    if batch is not None:
-                        sequence.add(batch)
+                for batch, tags in counted:
+                    sequence.add(batch, tags)
                     if progress is not None:
-                        for bytes_read in done:
-                            progress(bytes_read, total_bytes)
+                        for tag in tags:
+                            progress(tag.bytes_read, total_bytes)
         n_tokens, n_types = sequence.tokens, len(sequence.ids)
         if n_tokens == 0:
             raise ValueError(f"{', '.join(names)}: no word tokens found with profile {profile.name!r}")
@@ -307,4 +370,5 @@ def count_sources(
         first_positions=first_positions,
         content_hash=hasher.hexdigest(),
         type_sequence_path=path,
+        text_ends=sequence.text_ends,
     )

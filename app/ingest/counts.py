@@ -3,7 +3,8 @@
 - **Word counts**: CSV/TSV rows ``word, count`` (a header row is optional; the delimiter -- tab, comma,
   semicolon or blanks -- and the encoding are detected). Each word is normalised with the chosen profile's
   Unicode normalisation and case folding (``Tokenizer.normalize``), so the counts compare with texts counted
-  under that profile, and counts of the same normalised word are added up.
+  under that profile, and counts of the same normalised word are added up. Rows ``text, word, count`` carry
+  a text column: the corpus then has texts (rows of one text name, in any file, make one text).
 - **Spectrum**: rows ``frequency, types``: V_m, the number of types occurring exactly m times. Lines starting
   with ``#`` are comments; ``# tokens: N`` and ``# types: V`` declare totals that the rows must agree with.
 - **Bundle**: our own exchange format, one JSON document, plain or gzip-compressed (``encode_bundle``,
@@ -53,6 +54,8 @@ MAX_TYPES = 5_000_000
 """Most types (rows of a word-count list, sum of V_m of a spectrum) accepted from a file or a bundle: a
 word list of this size is about 5 million rows in the store (a 200 MB text of generated words has 0.8
 million types)."""
+MAX_TEXT_NAME = 200
+"""Longest text name of a word-count list's text column (as a corpus name)."""
 MAX_SPECTRUM_ROWS = 100_000
 """Most distinct frequencies (spectrum rows) accepted: a text of N tokens has fewer than sqrt(2 N) of them
 (distinct frequencies 1, 2, ... k already need k (k + 1) / 2 tokens), so 100,000 rows would need 5 * 10^9
@@ -140,30 +143,47 @@ def _where(name: str, number: int) -> str:
 
 
 def read_word_counts(
-    files: list[tuple[Path, str]], profile: TokenizationProfile, counts: dict[str, int] | None = None
+    files: list[tuple[Path, str]],
+    profile: TokenizationProfile,
+    counts: dict[str, int] | None = None,
+    texts: dict[str, dict[str, int]] | None = None,
 ) -> dict[str, int]:
     """Word -> count from ``word, count`` tables (path, name shown), words normalised with ``profile``.
 
-    Counts of the same normalised word (within and across files) are added."""
+    Counts of the same normalised word (within and across files) are added. Tables of rows ``text, word,
+    count`` (every file with a text column, or none) also fill ``texts``: text name -> word -> count, the
+    texts in order of first appearance."""
     normalize = profile.tokenizer().normalize
     counts = {} if counts is None else counts
+    columns = None
     for path, name in files:
         rows, first = 0, True
         for number, cells in _rows(path, name, comments=False):
-            if len(cells) != 2:
+            columns = columns or (3 if len(cells) == 3 and texts is not None else 2)
+            if len(cells) != columns:
+                expected = "three columns, a text, a word" if columns == 3 else "two columns, a word"
                 raise CountsInputError(
-                    f"{_where(name, number)}: expected two columns, a word and its count, found {len(cells)}"
+                    f"{_where(name, number)}: expected {expected} and its count, found {len(cells)}"
                 )
+            # A header row ("word, count" or "text, word, count"): only as the first row, without digits.
+            header = not any(ch.isdigit() for ch in (cells[-1] if columns == 2 else "".join(cells)))
+            text_name = cells.pop(0) if columns == 3 else None
             raw_word, raw_count = cells
             count = _integer(raw_count)
-            if first and not any(ch.isdigit() for ch in raw_count):
-                first = False  # a header row ("word, count"): only as the first row
+            if first and header:
+                first = False
                 continue
             first = False
             if count is None:
                 what = "negative" if raw_count.startswith("-") else "not a whole number"
+                columns_note = (
+                    " (expected two columns, a word and its count, or three, a text, a word and its count)"
+                    if columns == 3
+                    else ""
+                )
                 raise CountsInputError(
-                    f"{_where(name, number)}: the count {raw_count!r} is {what}; a count is a positive integer"
+                    f"{_where(name, number)}: the count {raw_count!r} is {what}; a count is a positive "
+                    f"integer{columns_note}"
                 )
             if count < 1 or count > MAX_FREQUENCY:
                 raise CountsInputError(
@@ -178,6 +198,13 @@ def read_word_counts(
                     f"{MAX_FREQUENCY:,}"
                 )
             counts[word] = total
+            if text_name is not None:
+                try:
+                    text_name = clean_name(text_name, f"{_where(name, number)}: the text name", MAX_TEXT_NAME)
+                except ValueError as exc:
+                    raise CountsInputError(str(exc)) from exc
+                of_text = texts.setdefault(text_name or "(no name)", {})
+                of_text[word] = of_text.get(word, 0) + count
             if len(counts) > MAX_TYPES:
                 raise CountsInputError(
                     f"{_where(name, number)}: more than {MAX_TYPES:,} different words; this program accepts "

@@ -68,12 +68,14 @@ class BatchCounts:
     string pickles far faster than a list of them; tokens are never empty and never hold whitespace),
     ``first`` the 0-based position of each word's first occurrence in the batch (ascending, int32), and
     ``ids`` the local id (the index in ``words()``) of every token in text order, in the smallest unsigned
-    integer type that holds them. Frequencies are not sent: they follow from ``ids``.
+    integer type that holds them, and ``piece_tokens`` the number of tokens of each piece (where the texts
+    of a corpus begin and end). Frequencies are not sent: they follow from ``ids``.
     """
 
     joined_words: str
     first: np.ndarray
     ids: np.ndarray
+    piece_tokens: np.ndarray
 
     def words(self) -> list[str]:
         """The distinct tokens in order of first occurrence."""
@@ -97,7 +99,7 @@ def count_batch(pieces: Sequence[str], profile: TokenizationProfile) -> BatchCou
     import polars as pl  # here: the process that merges batches counted elsewhere never loads it
 
     tokenizer = _tokenizer(profile)
-    tokens = pl.concat([tokenizer.token_series(piece) for piece in pieces])
+    tokens, piece_tokens = tokenizer.token_series_of(pieces)
     frame = pl.DataFrame({"word": tokens}).with_row_index("position")
     token_first = frame.select(pl.col("position").min().over("word"))["position"].to_numpy()
     first = np.flatnonzero(token_first == np.arange(token_first.size, dtype=token_first.dtype))
@@ -108,6 +110,7 @@ def count_batch(pieces: Sequence[str], profile: TokenizationProfile) -> BatchCou
         joined_words=WORD_SEPARATOR.join(tokens.gather(first).to_list()),
         first=first.astype(LOCAL_DTYPE),
         ids=local_id[token_first],
+        piece_tokens=piece_tokens,
     )
 
 

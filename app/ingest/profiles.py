@@ -43,8 +43,11 @@ other run of letters).
 from __future__ import annotations
 
 import unicodedata
+from collections.abc import Sequence
 from dataclasses import asdict, dataclass, fields
 from typing import TYPE_CHECKING, Any, Literal, get_args
+
+import numpy as np
 
 from app.ingest.names import clean_name
 
@@ -181,24 +184,33 @@ class Tokenizer:
     def token_series(self, text: str) -> pl.Series:
         """The word tokens of ``text`` in text order, as a polars string Series (no Python object per
         token)."""
+        return self.token_series_of([text])[0]
+
+    def token_series_of(self, texts: Sequence[str]) -> tuple[pl.Series, np.ndarray]:
+        """The word tokens of several texts, one text after the other, and how many tokens each text has
+        (one pass of polars over all of them: a text of a few words costs little)."""
         # Imported here: the process that only merges the counts of worker processes never loads it.
         import polars as pl
 
-        normalized = self.normalize(text)
-        column = pl.Series("token", [normalized])
+        column = pl.Series("token", [self.normalize(text) for text in texts], dtype=pl.String)
+        # The pattern with character units gives the plain pattern's tokens on text without those scripts.
         use_char_units = (
             self._char_units is not None
-            and not normalized.isascii()
-            and column.str.contains(CHAR_UNIT_BLOCKS).item()
+            and not all(text.isascii() for text in column)
+            and column.str.contains(CHAR_UNIT_BLOCKS).any()
         )
         pattern = self._char_units if use_char_units else self._plain
+        found = column.str.extract_all(pattern)
         # Exploding the list of an empty text gives one null: tokens are never null otherwise.
-        found = column.str.extract_all(pattern).explode().drop_nulls()
-        found = found.filter(found.str.len_chars() <= MAX_WORD_CHARS)
+        row = np.repeat(np.arange(len(texts)), found.list.len().fill_null(0).to_numpy())
+        tokens = found.explode().drop_nulls()
+        kept = (tokens.str.len_chars() <= MAX_WORD_CHARS).to_numpy()
+        tokens = tokens.filter(kept)
+        lengths = np.bincount(row[kept], minlength=len(texts)).astype(np.int64)
         if self.profile.numbers == "collapse":
             # A token starting with a decimal digit is a number: words start with a letter or mark.
-            return found.str.replace(r"^\p{Nd}.*", NUMBER_TYPE, literal=False)
-        return found
+            tokens = tokens.str.replace(r"^\p{Nd}.*", NUMBER_TYPE, literal=False)
+        return tokens, lengths
 
     def tokens(self, text: str) -> list[str]:
         """The word tokens of ``text`` in text order."""

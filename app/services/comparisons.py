@@ -36,7 +36,7 @@ from app.core.models.base import RANGE_LEVEL, Z90
 from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
 from app.core.validity import checked_prediction
-from app.services import modelling
+from app.services import modelling, text_comparisons
 from app.services.export import table_text
 from app.services.memo import RecentResults
 from app.store import comparisons as saved
@@ -661,7 +661,8 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
     rows = [_size_matched_row(m, n0) for m in members]
     tests, untested = _tests(rows)
     random_order = [_random_order(engine, m.corpus) for m in members]
-    return {
+    by_texts, text_warnings = text_comparisons.text_tests(engine, corpora, n0)
+    snapshot = {
         "kind": "lexigrowth comparison",
         "program_version": PROGRAM_VERSION,
         "computed_at": datetime.now(UTC).isoformat(),
@@ -670,8 +671,9 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "range_level": RANGE_LEVEL,
         "corpora": [_corpus_entry(c, i) for i, c in enumerate(corpora)],
         "warnings": _warnings(members, rows, n0, horizon)
-        + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage],
-        "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested},
+        + [{"kind": "damaged", "message": damage} for _, damage in random_order if damage]
+        + text_warnings,
+        "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested} | by_texts,
         "spread": _spread(members, n0),
         "growth": [
             _growth(engine, m, horizon, curve) for m, (curve, _) in zip(members, random_order, strict=True)
@@ -684,6 +686,8 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         ],
         "distinctive": _distinctive(engine, settings.pair, settings.min_freq, settings.limit),
     }
+    snapshot["distinctive_texts"] = text_comparisons.distinctive_across_texts(engine, snapshot["distinctive"])
+    return snapshot
 
 
 _snapshots: RecentResults[dict[str, Any]] = RecentResults(CACHE_SIZE)
@@ -885,10 +889,18 @@ def without_word_lists(snapshot: dict[str, Any]) -> dict[str, Any]:
     no word (the distinctive words are emptied and marked hidden; counts of words tested stay) and no
     content hash (the SHA-256 of a corpus's text would let anyone confirm a guess of that text)."""
     corpora = [{k: v for k, v in c.items() if k != "content_hash"} for c in snapshot["corpora"]]
-    return snapshot | {
-        "corpora": corpora,
-        "distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True},
-    }
+    return (
+        snapshot
+        | {
+            "corpora": corpora,
+            "distinctive": snapshot["distinctive"] | {"words": [], "words_hidden": True},
+        }
+        | (
+            {"distinctive_texts": snapshot["distinctive_texts"] | {"words": [], "words_hidden": True}}
+            if "distinctive_texts" in snapshot
+            else {}
+        )
+    )
 
 
 # ------------------------------------------------------------------------------------------ downloads

@@ -2,7 +2,8 @@
 
 A word-count list or a spectrum has no text order: such a corpus is stored without a text-order growth
 curve, prefix spectra or text-order statistics (pages show the random-order expectation only and the
-text-order backtests are skipped). A bundle recreates the corpus it was exported from, whatever that was
+text-order backtests are skipped). A word-count list with a text column (rows ``text, word, count``) has
+texts; a bundle does not carry texts. A bundle recreates the corpus it was exported from, whatever that was
 made from, and records its origin.
 """
 
@@ -13,13 +14,15 @@ from datetime import UTC, datetime
 from pathlib import Path
 from typing import Any
 
+import numpy as np
 from sqlalchemy.engine import Engine
 
 from app.config import PROGRAM_VERSION
 from app.ingest import counts as parse
 from app.ingest.names import clean_name
 from app.ingest.profiles import TokenizationProfile
-from app.services import modelling
+from app.ingest.texts import TextCounts
+from app.services import modelling, texts
 from app.services.ingestion import (
     MAX_NAME_LENGTH,
     IngestionInputError,
@@ -31,6 +34,8 @@ from app.store import corpora as store
 from app.store.corpora import CorpusRecord
 
 COUNT_KINDS = (parse.WORD_COUNTS, parse.SPECTRUM, parse.BUNDLE)
+TEXT_COLUMN = "text column"
+"""How the texts of a word-count list with a text column were found (``texts_info["separator"]``)."""
 ProgressCallback = Callable[[int, int], None]
 StageCallback = Callable[[str], None]
 
@@ -45,10 +50,13 @@ def check_kind(kind: str | None) -> str:
 
 def _record_from_counts(
     kind: str, files: list[tuple[Path, str]], name: str, labels: dict[str, str], profile: TokenizationProfile
-) -> CorpusRecord:
+) -> tuple[CorpusRecord, list[TextCounts]]:
+    """The corpus of word-count lists or spectrum tables, and its texts (those of a word-count list's text
+    column; none otherwise)."""
     counts: dict[str, int] = {}
+    by_text: dict[str, dict[str, int]] = {}
     if kind == parse.WORD_COUNTS:
-        counts = parse.read_word_counts(files, profile)
+        counts = parse.read_word_counts(files, profile, texts=by_text)
         spectrum = parse.spectrum_of_counts(counts)
         content = parse.data_hash(kind, sorted(counts.items()))
     else:
@@ -69,7 +77,20 @@ def _record_from_counts(
         spectrum=spectrum,
         growth=[],
         source_kind=kind,
-    )
+    ), _texts_of_list(by_text, counts)
+
+
+def _texts_of_list(by_text: dict[str, dict[str, int]], counts: dict[str, int]) -> list[TextCounts]:
+    """The texts of a word-count list with a text column, their words by rank in the code-point order of
+    the corpus's word list (as ``app.ingest.texts`` gives those of texts)."""
+    rank = {word: index for index, word in enumerate(sorted(counts))}
+    texts = []
+    for name, words in by_text.items():
+        ranks = np.array(sorted(rank[w] for w in words), dtype=np.int64)
+        ordered = sorted(words, key=rank.__getitem__)
+        values = np.array([words[w] for w in ordered], dtype=np.int64)
+        texts.append(TextCounts(name, int(values.sum()), ranks, values))
+    return texts
 
 
 def _bundle_rules(bundle: parse.BundleCorpus, name: str | None, labels: dict[str, str]) -> dict[str, Any]:
@@ -139,13 +160,19 @@ def ingest_counts(
     total = sum(path.stat().st_size for path, _ in files)
     if progress:
         progress(0, total)
+    text_list: list[TextCounts] = []
     if kind == parse.BUNDLE:
         record = _record_from_bundle(files, name, labels or {})
     else:
-        record = _record_from_counts(kind, files, name or "", labels or {}, profile or TokenizationProfile())
+        record, text_list = _record_from_counts(
+            kind, files, name or "", labels or {}, profile or TokenizationProfile()
+        )
+    if text_list:
+        record.texts = [(t.name, t.tokens, t.types, *t.packed()) for t in text_list]
+        record.texts_info = {"separator": TEXT_COLUMN, "texts": len(text_list), "empty_skipped": 0}
     if progress:
         progress(total, total)
-    return store_with_exact_statistics(engine, record, stage)
+    return store_with_exact_statistics(engine, record, stage, texts.growth_results(text_list, record.types))
 
 
 def bundle_document(engine: Engine, corpus_id: int) -> dict[str, Any]:

@@ -16,7 +16,8 @@ from app.ingest.engines import EngineName
 from app.ingest.names import clean_name
 from app.ingest.profiles import TokenizationProfile
 from app.ingest.readers import TextSource
-from app.services import modelling
+from app.ingest.texts import check_separator as text_separator
+from app.services import modelling, texts
 from app.store.corpora import CorpusRecord, save_corpus
 
 MAX_NAME_LENGTH = 200
@@ -126,23 +127,34 @@ def ingest(
     counting_engine: EngineName | None = None,
     scheduler: str | None = None,
     on_stage: StageCallback | None = None,
+    text_separator: str | None = None,
 ) -> int:
     """Count the sources as one corpus and store it with its exact statistics; returns the new corpus id.
 
     ``counting_engine`` ("serial", "local" or "dask") and ``scheduler`` (a Dask scheduler address) choose
     where the text is tokenized (``app.ingest.counting.count_sources``; by default by input size).
     ``on_stage`` hears the name of each step after counting. The models are fitted afterwards, as a task
-    of their own (``app.services.tasks``)."""
+    of their own (``app.services.tasks``). ``text_separator`` says where the texts of a file end
+    (``app.ingest.texts``: ``file``, ``paragraph``, ``line`` or a marker line); every text is stored with
+    its word counts (``app.services.texts``)."""
     stage = on_stage or (lambda _name: None)
     name = check_name(name)
+    separator = check_text_separator(text_separator)
     if not sources:
         raise IngestionInputError("files: give at least one file or some pasted text")
     profile = profile or TokenizationProfile()
     with count_sources(
-        sources, profile, progress=progress, workdir=work_dir, engine=counting_engine, scheduler=scheduler
+        sources,
+        profile,
+        progress=progress,
+        workdir=work_dir,
+        engine=counting_engine,
+        scheduler=scheduler,
+        separator=separator,
     ) as result:
         stage("text-order statistics")
         spectrum = result.spectrum()
+        text_list, empty_skipped = result.text_counts()
         record = CorpusRecord(
             name=name,
             labels=labels or {},
@@ -160,14 +172,29 @@ def ingest(
                 share: (n, [tuple(p) for p in sp.pairs()]) for share, (n, sp) in result.prefix_spectra.items()
             },
             text_order=text_order_statistics(result.type_ids()),
+            texts=[(t.name, t.tokens, t.types, *t.packed()) for t in text_list],
+            texts_info={"separator": separator, "texts": len(text_list), "empty_skipped": empty_skipped},
         )
-    return store_with_exact_statistics(engine, record, stage)
+    stage("growth by texts")
+    return store_with_exact_statistics(engine, record, stage, texts.growth_results(text_list, result.types))
 
 
-def store_with_exact_statistics(engine: Engine, record: CorpusRecord, stage: StageCallback) -> int:
-    """Compute a new corpus's exact statistics, then store it with them in one transaction: a failure of
-    either stores nothing. Returns the new corpus id."""
+def check_text_separator(value: str | None) -> str:
+    try:
+        return text_separator(value)
+    except ValueError as exc:
+        raise IngestionInputError(str(exc)) from exc
+
+
+def store_with_exact_statistics(
+    engine: Engine,
+    record: CorpusRecord,
+    stage: StageCallback,
+    more_results: dict[str, tuple[str, dict]] | None = None,
+) -> int:
+    """Compute a new corpus's exact statistics, then store it with them (and ``more_results``, kind ->
+    (version, payload)) in one transaction: a failure of either stores nothing. Returns the new corpus id."""
     stage("exact statistics")
     results = modelling.exact_statistics(record.spectrum)
     stage("storing")
-    return save_corpus(engine, record, results, modelling.CACHE_KEY)
+    return save_corpus(engine, record, results, modelling.CACHE_KEY, more_results)

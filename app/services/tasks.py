@@ -69,10 +69,12 @@ def ingest_params(
     scratch: Path | None = None,
     owner_id: int | None = None,
     source_kind: str = "text",
+    text_separator: str = "file",
 ) -> dict[str, Any]:
     """What an ``ingest`` task needs: the files as (path, name shown), the corpus's name, labels and
     profile, the scratch folder to remove at the end, the member who will own the corpus and what the
-    files hold (``source_kind``: text, word-counts, spectrum or bundle; see ``app.services.exchange``)."""
+    files hold (``source_kind``: text, word-counts, spectrum or bundle; see ``app.services.exchange``) and,
+    for texts, where the texts of a file end (``text_separator``, see ``app.ingest.texts``)."""
     return {
         "source_kind": source_kind,
         "sources": [[str(path), shown] for path, shown in sources],
@@ -81,6 +83,7 @@ def ingest_params(
         "profile": profile.to_dict(),
         "scratch": str(scratch) if scratch else None,
         "owner_id": owner_id,
+        "text_separator": text_separator,
     }
 
 
@@ -168,6 +171,7 @@ def _run_ingest(engine: Engine, task: queue.TaskView, work_dir: Path, progress: 
             progress=progress.bytes,
             work_dir=work_dir,
             on_stage=progress.stage,
+            text_separator=params.get("text_separator"),
         )
     if params.get("owner_id") is not None:
         accounts.set_corpus_owner(engine, corpus_id, params["owner_id"])

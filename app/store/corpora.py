@@ -23,6 +23,7 @@ from app.store.tables import (
     BackgroundTask,
     CachedResult,
     Corpus,
+    CorpusText,
     GrowthPoint,
     IssuedCorpusId,
     PrefixSpectrumRow,
@@ -59,6 +60,10 @@ class CorpusRecord:
     text_order: dict[str, Any] = field(default_factory=dict)
     source_kind: str = "text"
     origin: dict[str, Any] | None = None
+    # The texts, in order: (name, tokens, types, packed word ranks, packed counts), see ``CorpusText``;
+    # ``texts_info`` says how they were found (None: a corpus without texts).
+    texts: list[tuple[str, int, int, bytes, bytes]] = field(default_factory=list)
+    texts_info: dict[str, Any] | None = None
 
 
 SOURCE_TITLES = {
@@ -197,11 +202,16 @@ def _issue_corpus_id(session: Session) -> int:
 
 
 def save_corpus(
-    engine: Engine, record: CorpusRecord, results: dict[str, dict] | None = None, results_version: str = ""
+    engine: Engine,
+    record: CorpusRecord,
+    results: dict[str, dict] | None = None,
+    results_version: str = "",
+    versioned_results: dict[str, tuple[str, dict]] | None = None,
 ) -> int:
     """Store a corpus with its counts, spectrum, growth and prefix spectra, and the ``results`` already
-    computed from them (kind -> payload, cached under ``results_version``), in one transaction; run by a
-    task, only while the task is still this process's (``app.store.tasks.confirm_in``)."""
+    computed from them (kind -> payload, cached under ``results_version``; ``versioned_results``: kind ->
+    (version, payload), each under its own), in one transaction; run by a task, only while the task is still
+    this process's (``app.store.tasks.confirm_in``)."""
     with transaction(engine) as session:
         corpus = Corpus(
             id=_issue_corpus_id(session),
@@ -218,6 +228,7 @@ def save_corpus(
             text_order_json=json.dumps(record.text_order),
             source_kind=record.source_kind,
             origin_json=json.dumps(record.origin, ensure_ascii=False) if record.origin else None,
+            texts_json=json.dumps(record.texts_info, ensure_ascii=False) if record.texts_info else None,
         )
         session.add(corpus)
         session.flush()
@@ -235,8 +246,16 @@ def save_corpus(
             ("corpus_id", "share", "m", "vm", "prefix_tokens"),
             ((cid, share, m, v, n) for share, (n, pairs) in record.prefix_spectra.items() for m, v in pairs),
         )
+        _bulk(
+            session,
+            CorpusText,
+            ("corpus_id", "position", "name", "tokens", "types", "word_ranks", "word_counts"),
+            ((cid, position, *text) for position, text in enumerate(record.texts, start=1)),
+        )
         for kind, payload in (results or {}).items():
             session.add(_cached_result(cid, kind, results_version, payload))
+        for kind, (version, payload) in (versioned_results or {}).items():
+            session.add(_cached_result(cid, kind, version, payload))
         tasks.confirm_in(session)  # a task that lost its lease meanwhile stores nothing (rolled back)
         return int(cid)
 
@@ -297,7 +316,7 @@ def get_corpora(engine: Engine, corpus_ids: list[int]) -> dict[int, Corpus]:
 def delete_corpus(engine: Engine, corpus_id: int) -> None:
     with transaction(engine) as session:
         get_corpus(engine, corpus_id)
-        for table in (WordCount, SpectrumRow, GrowthPoint, PrefixSpectrumRow, CachedResult):
+        for table in (WordCount, SpectrumRow, GrowthPoint, PrefixSpectrumRow, CachedResult, CorpusText):
             session.execute(delete(table).where(table.corpus_id == corpus_id))
         session.execute(delete(Corpus).where(Corpus.id == corpus_id))
         # Its model tasks go too: a later corpus that gets the same id must not inherit their state.
@@ -345,6 +364,39 @@ def prefix_spectra(engine: Engine, corpus_id: int) -> dict[str, tuple[int, list[
         for share, n, m, v in rows:
             out.setdefault(share, (int(n), []))[1].append((int(m), int(v)))
     return out
+
+
+def texts_info(corpus: Corpus) -> dict[str, Any] | None:
+    """How a corpus's texts were found (``separator``, ``texts``, ``empty_skipped``), or None for a corpus
+    without texts."""
+    return _stored_json(corpus.texts_json, dict) if corpus.texts_json else None
+
+
+def corpus_texts(
+    engine: Engine, corpus_id: int, limit: int | None = None, offset: int = 0
+) -> list[tuple[int, str, int, int]]:
+    """(position, name, tokens, types) of the corpus's texts in order (a page of them), without counts."""
+    with Session(engine) as session:
+        query = (
+            select(CorpusText.position, CorpusText.name, CorpusText.tokens, CorpusText.types)
+            .where(CorpusText.corpus_id == corpus_id)
+            .order_by(CorpusText.position)
+            .offset(offset)
+        )
+        if limit is not None:
+            query = query.limit(limit)
+        return [(int(p), n, int(t), int(v)) for p, n, t, v in session.execute(query)]
+
+
+def packed_text_counts(engine: Engine, corpus_id: int) -> list[tuple[int, bytes, bytes]]:
+    """(position, packed word ranks, packed counts) of every text of the corpus, in order."""
+    with Session(engine) as session:
+        rows = session.execute(
+            select(CorpusText.position, CorpusText.word_ranks, CorpusText.word_counts)
+            .where(CorpusText.corpus_id == corpus_id)
+            .order_by(CorpusText.position)
+        )
+        return [(int(p), bytes(r), bytes(c)) for p, r, c in rows]
 
 
 def word_counts(

@@ -9,7 +9,7 @@ from __future__ import annotations
 
 from datetime import UTC, datetime
 
-from sqlalchemy import BigInteger, Boolean, Column, ForeignKey, Integer, String, Text, false
+from sqlalchemy import BigInteger, Boolean, Column, ForeignKey, Integer, LargeBinary, String, Text, false
 from sqlmodel import Field, SQLModel
 from sqlmodel.sql.sqltypes import UTCDateTime
 
@@ -49,6 +49,9 @@ class Corpus(SQLModel, table=True):
     # and for a bundle where it came from (JSON: the kind of its data, name, exporting version...).
     source_kind: str | None = Field(default="text")
     origin_json: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
+    # How its texts were found (JSON: the separator and the empty texts skipped); None: a corpus without
+    # texts (from counts or a spectrum, or stored before 0008).
+    texts_json: str | None = Field(default=None, sa_column=Column(Text, nullable=True))
 
 
 class IssuedCorpusId(SQLModel, table=True):
@@ -68,6 +71,21 @@ class WordCount(SQLModel, table=True):
     corpus_id: int = Field(sa_column=_corpus_fk())
     word: str = Field(primary_key=True, sa_type=CODE_POINT_STRING)
     count: int = Field(sa_type=BigInteger)
+
+
+class CorpusText(SQLModel, table=True):
+    """One text of a corpus (a file, or a part of one between separators): its name, tokens, types and
+    word counts. The words are given by their ranks in the corpus's word list in code-point order, stored
+    as gaps between ascending ranks (uint32) and with their counts (int64), each little-endian and
+    zlib-compressed (``app.ingest.texts.TextCounts.packed``): a few bytes per distinct word of a text."""
+
+    corpus_id: int = Field(sa_column=_corpus_fk())
+    position: int = Field(primary_key=True, sa_type=BigInteger)
+    name: str = Field(sa_column=Column(Text, nullable=False))
+    tokens: int = Field(sa_type=BigInteger)
+    types: int = Field(sa_type=BigInteger)
+    word_ranks: bytes = Field(sa_column=Column(LargeBinary, nullable=False))
+    word_counts: bytes = Field(sa_column=Column(LargeBinary, nullable=False))
 
 
 class SpectrumRow(SQLModel, table=True):

@@ -13,10 +13,12 @@ from starlette.concurrency import run_in_threadpool
 
 from app.config import Settings
 from app.core import planning
+from app.ingest import texts as text_units
 from app.ingest.profiles import BUILTIN_PROFILES
 from app.ingest.readers import TextSource
 from app.services import estimator, exchange, ingestion, library, modelling, tasks
 from app.services.jobs import Dispatcher
+from app.services.texts import word_dispersion
 from app.store import corpora as store
 from app.store import tasks as queue
 from app.web import downloads
@@ -76,6 +78,7 @@ async def upload_corpus(
     labels: Annotated[str | None, Form()] = None,
     profile: Annotated[str | None, Form()] = None,
     kind: Annotated[str | None, Form(max_length=40)] = None,
+    text_separator: Annotated[str | None, Form(max_length=1000)] = None,
     wait: bool = False,
 ):
     """Ingest files (and/or pasted ``text``) as one corpus. With ``wait=1`` answer 201 with the summary once
@@ -86,6 +89,9 @@ async def upload_corpus(
     ``spectrum`` (rows frequency, types) or ``bundle`` (a file from ``/api/corpora/{id}/bundle``; its own
     name is kept when ``name`` is empty).
 
+    ``text_separator`` says where the texts of a file end: ``file`` (default: each file is one text),
+    ``paragraph`` (blank lines), ``line`` (each line), or a line holding only the given marker (e.g. ``###``).
+
     The route is a coroutine: copying the files and every store access run in the thread pool, and while
     it waits for the task it holds no thread (``asyncio.sleep`` between two looks at the job)."""
     try:
@@ -94,6 +100,9 @@ async def upload_corpus(
             name = ingestion.check_name(name or "")
         label_map = ingestion.parse_labels(labels)
         chosen = parse_profile(profile)
+        separator = ingestion.check_text_separator(text_separator)
+        if source_kind != "text" and separator != text_units.FILE:
+            raise ingestion.IngestionInputError("text_separator: only files of texts are split into texts")
         describe = TextSource.from_path if source_kind == "text" else plain_file
         upload = await run_in_threadpool(
             receive, files or [], text, settings.work_dir, settings.max_upload_mb, describe
@@ -110,6 +119,7 @@ async def upload_corpus(
         scratch=upload.directory,
         owner_id=member.id if member is not None else None,
         source_kind=source_kind,
+        text_separator=separator,
     )
     try:
         task = await run_in_threadpool(tasks.queue_upload, engine, params, upload.total_bytes)
@@ -263,11 +273,21 @@ def words(
     limit: Annotated[int, Query(ge=1, le=10_000)] = 100,
     offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
 ) -> dict:
-    source = store.source(corpus_or_404(engine, corpus_id))
+    corpus = corpus_or_404(engine, corpus_id)
+    source = store.source(corpus)
     if not source["word_list"]:
         return {"total": 0, "offset": offset, "words": [], "available": False, "note": no_word_list(source)}
     total, rows = store.word_counts(engine, corpus_id, search, limit, offset)
-    return {"total": total, "offset": offset, "words": [{"word": w, "count": c} for w, c in rows]}
+    spread = word_dispersion(engine, corpus, [w for w, _ in rows])
+    if spread is None:
+        return {"total": total, "offset": offset, "words": [{"word": w, "count": c} for w, c in rows]}
+    return {
+        "total": total,
+        "offset": offset,
+        "texts": spread["texts"],
+        "dispersion": spread["method"],
+        "words": [{"word": w, "count": c} | spread["words"].get(w, {}) for w, c in rows],
+    }
 
 
 @router.get("/corpora/{corpus_id}/spectrum.tsv")

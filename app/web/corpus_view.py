@@ -13,6 +13,7 @@ from app.core import planning
 from app.core.spectrum import Spectrum
 from app.services import memo, modelling
 from app.services.memo import RecentResults
+from app.services.texts import word_dispersion
 from app.store import corpora as store
 from app.store.tables import Corpus
 from app.web import figures
@@ -351,6 +352,12 @@ def _derived_context(
             "unseen": _section(damaged, "unseen", lambda: modelling.unseen_vocabulary(engine, corpus_id), []),
             "words": word_rows,
             "words_total": total_words,
+            "words_dispersion": _section(
+                damaged,
+                "dispersion",
+                lambda: word_dispersion(engine, corpus, [w for w, _ in word_rows]),
+                None,
+            ),
             "words_query": q or "",
             "words_page": page,
             "words_pages": max(1, -(-total_words // WORDS_PER_PAGE)),
