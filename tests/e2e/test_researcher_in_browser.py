@@ -201,7 +201,7 @@ def test_corpus_page_forms_plots_and_layout(server, browser, corpora, screenshot
     page.fill("#richness-form input[name=common_size]", "2000")
     page.click("#richness-form button[type=submit]")
     page.wait_for_selector("#richness table")
-    assert "at 2,000" in page.locator("#richness table thead").inner_text()
+    assert "at the common size (2,000)" in page.locator("#richness table thead").inner_text()
 
     # word search
     page.fill("#word-search input[name=q]", "retur")
