@@ -8,7 +8,7 @@ Each corpus is a multinomial sample (numpy, fixed seed) of n tokens from a Zipf-
 reading one. For each size the table gives the CPU time in milliseconds (``time.process_time``, the
 fastest of ``--repeat`` runs) of fitting each model once to the full spectrum, and of
 ``app.core.backtest.backtest`` (what the modelling service runs once per corpus and caches: every model on
-the corpus and on 8 x 3 random thinnings, and the recommended ensemble); and the ratio of each time to that
+the corpus and on 6 x 3 random thinnings, the recommended ensemble and 24 bootstrap replicates); and the ratio of each time to that
 of the smallest size measured in the same run, so that the growth with corpus size reads off directly.
 """
 
