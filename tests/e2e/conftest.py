@@ -144,3 +144,18 @@ def wait_until(page, expression: str, timeout_s: float = 30) -> None:
         if time.monotonic() > deadline:
             raise AssertionError(f"never true: {expression}")
         page.wait_for_timeout(100)
+
+
+def check_page(page, console, viewport: str) -> None:
+    """No sideways scrolling of the page at this width, and a clean console."""
+    assert page_width(page) <= VIEWPORTS[viewport]["width"], f"page scrolls sideways at {viewport}"
+    assert not console.problems(), console.problems()
+
+
+def in_view(page, selector: str) -> bool:
+    """Whether the element lies within the window as it is scrolled now."""
+    return page.evaluate(
+        "s => { const r = document.querySelector(s).getBoundingClientRect();"
+        " return r.top >= 0 && r.bottom <= window.innerHeight; }",
+        selector,
+    )

@@ -8,7 +8,7 @@ import re
 
 import pytest
 
-from tests.e2e.conftest import VIEWPORTS, get_json, needs_chromium, open_page, page_width
+from tests.e2e.conftest import VIEWPORTS, check_page, get_json, needs_chromium, open_page
 from tests.web.test_compare_texts import paragraphs
 
 pytestmark = [needs_chromium, pytest.mark.slow]
@@ -45,14 +45,12 @@ def test_comparison_of_collections_of_texts_in_a_browser(server, browser, tmp_pa
     row = page.locator("#text-tests-table tbody tr").first.inner_text()
     assert f"{pair['difference']:+.2f}" in row and f"{pair['p']:.4f}" in row
     assert page.locator("#keyness-table tbody tr").count() == len(api["distinctive_texts"]["words"]) > 0
-    assert page_width(page) <= VIEWPORTS["desktop"]["width"]
-    assert not console.problems(), console.problems()
+    check_page(page, console, "desktop")
     page.locator("#text-tests").screenshot(path=screenshots / "compare-texts-desktop.png")
     print(f"\ntext-level: {row} | token-level: {page.locator('#tests-table tbody tr').first.inner_text()}")
     context.close()
     context, page, console = open_page(browser, VIEWPORTS["phone"])
     page.goto(f"{server}/compare?{query}")
-    assert page_width(page) <= VIEWPORTS["phone"]["width"]
-    assert not console.problems(), console.problems()
+    check_page(page, console, "phone")
     page.locator("#text-tests").screenshot(path=screenshots / "compare-texts-phone.png")
     context.close()

@@ -14,7 +14,15 @@ import httpx
 import pytest
 
 from tests.conftest import stdlib_docstrings
-from tests.e2e.conftest import VIEWPORTS, get_json, needs_chromium, open_page, page_width, wait_until
+from tests.e2e.conftest import (
+    VIEWPORTS,
+    check_page,
+    get_json,
+    in_view,
+    needs_chromium,
+    open_page,
+    wait_until,
+)
 
 pytestmark = [pytest.mark.slow, needs_chromium]
 
@@ -38,19 +46,6 @@ def two(server) -> list[int]:
     return ids
 
 
-def clean(page, console, viewport: str) -> None:
-    assert page_width(page) <= VIEWPORTS[viewport]["width"], f"page scrolls sideways at {viewport}"
-    assert not console.problems(), console.problems()
-
-
-def in_view(page, selector: str) -> bool:
-    return page.evaluate(
-        "s => { const r = document.querySelector(s).getBoundingClientRect();"
-        " return r.top >= 0 && r.bottom <= window.innerHeight; }",
-        selector,
-    )
-
-
 @pytest.mark.parametrize("viewport", ["desktop", "phone"])
 def test_labels_note_and_problem_in_view(server, browser, two, viewport, screenshots):
     cid = two[0]
@@ -63,7 +58,7 @@ def test_labels_note_and_problem_in_view(server, browser, two, viewport, screens
     summary = get_json(f"{server}/api/corpora/{cid}")
     assert summary["name"] == f"Essays {viewport}"
     assert summary["labels"] == {"author": "Ada", "note": "This is a free text note"}
-    clean(page, console, viewport)
+    check_page(page, console, viewport)
     # a problem: beside the form, in view, focused, everything typed kept, nothing saved
     page.fill("#edit-form input[name=name]", "Renamed?")
     page.fill("#edit-form textarea[name=labels]", "=no key")
@@ -83,7 +78,7 @@ def test_upload_on_a_phone_and_a_re_upload_of_the_same_text(server, browser, two
     context, page, console = open_page(browser, VIEWPORTS[viewport])
     page.goto(f"{server}/upload")
     page.click("details.profiles summary")  # the folded table of profiles stays inside the screen
-    clean(page, console, viewport)
+    check_page(page, console, viewport)
     page.fill("input[name=name]", f"Letters again {viewport}")
     page.fill("textarea[name=text]", words(9_000, 15_000))
     page.click("#upload-form button[type=submit]")
@@ -103,7 +98,7 @@ def test_comparison_pair_problem_distinctive_words_and_confirmed_deletion(
     context, page, console = open_page(browser, VIEWPORTS[viewport])
     page.goto(f"{server}/compare?corpus={two[0]}&corpus={two[1]}&min_freq=3")
     page.wait_for_selector("#growth-plot .main-svg")
-    clean(page, console, viewport)
+    check_page(page, console, viewport)
     # words of one corpus only: "only in", no ratio; the others a log ratio with its interval
     table = get_json(f"{server}/api/compare?corpus={two[0]}&corpus={two[1]}&min_freq=3")["distinctive"]
     rows = page.locator("#distinctive-table tbody tr")
@@ -136,7 +131,7 @@ def test_comparison_pair_problem_distinctive_words_and_confirmed_deletion(
     row.locator("summary").click()
     assert any(r["slug"] == slug for r in get_json(f"{server}/api/comparisons"))
     assert row.locator("button").is_visible()
-    clean(page, console, viewport)
+    check_page(page, console, viewport)
     row.locator("button").click()
     page.wait_for_selector("#deleted-notice")
     assert not any(r["slug"] == slug for r in get_json(f"{server}/api/comparisons"))
@@ -168,7 +163,7 @@ def test_planning_answer_shown_on_its_plot_and_named_in_words(server, browser, t
     log = page.evaluate("document.getElementById('growth-plot').layout.xaxis.type") == "log"
     position = math.log10(answer) if log else answer
     assert low < position < high
-    clean(page, console, viewport)
+    check_page(page, console, viewport)
     page.screenshot(path=screenshots / f"read-planning-{viewport}.png", full_page=True)
     # a share of the population with the recommended model: models named in words
     page.goto(f"{server}/corpora/{cid}?share=0.9#planning")
@@ -189,5 +184,5 @@ def test_documentation_leads_back_and_logs_no_error(server, browser, viewport):
     page.wait_for_url(f"{server}/")
     for path in ("/", "/upload", "/estimate", "/comparisons"):
         page.goto(f"{server}{path}")
-        clean(page, console, viewport)
+        check_page(page, console, viewport)
     context.close()

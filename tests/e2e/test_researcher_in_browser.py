@@ -16,7 +16,15 @@ import httpx
 import pytest
 
 from tests.conftest import stdlib_docstrings
-from tests.e2e.conftest import VIEWPORTS, get_json, needs_chromium, open_page, page_width, wait_until
+from tests.e2e.conftest import (
+    VIEWPORTS,
+    check_page,
+    get_json,
+    in_view,
+    needs_chromium,
+    open_page,
+    wait_until,
+)
 
 pytestmark = [pytest.mark.slow, needs_chromium]
 
@@ -60,21 +68,6 @@ def corpora(server) -> dict[str, int]:
 
 def shoot(page, screenshots, name: str, viewport: str) -> None:
     page.screenshot(path=screenshots / f"{name}-{viewport}.png", full_page=True)
-
-
-def check_page(page, console, viewport: str) -> None:
-    """No sideways scrolling of the page at this width, and a clean console."""
-    assert page_width(page) <= VIEWPORTS[viewport]["width"], f"page scrolls sideways at {viewport}"
-    assert not console.problems(), console.problems()
-
-
-def in_view(page, selector: str) -> bool:
-    """Whether the element lies within the window as it is scrolled now."""
-    return page.evaluate(
-        "s => { const r = document.querySelector(s).getBoundingClientRect();"
-        " return r.top >= 0 && r.bottom <= window.innerHeight; }",
-        selector,
-    )
 
 
 @pytest.mark.parametrize("viewport", ["desktop", "phone"])

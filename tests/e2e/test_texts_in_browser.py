@@ -7,7 +7,14 @@ import re
 
 import pytest
 
-from tests.e2e.conftest import VIEWPORTS, get_json, needs_chromium, open_page, page_width, wait_until
+from tests.e2e.conftest import (
+    VIEWPORTS,
+    check_page,
+    get_json,
+    needs_chromium,
+    open_page,
+    wait_until,
+)
 
 pytestmark = [needs_chromium, pytest.mark.slow]
 
@@ -47,8 +54,7 @@ def test_upload_of_separated_texts_shows_them_on_the_corpus_page(server, browser
     wait_until(page, "document.getElementById('text-plan-answer').textContent.length > 0")
     answer = page.locator("#text-plan-answer").inner_text()
     assert re.search(r"About [\d,]+ more texts|Not applicable", answer), answer
-    assert page_width(page) <= VIEWPORTS["desktop"]["width"]
-    assert not console.problems(), console.problems()
+    check_page(page, console, "desktop")
     page.locator("#texts").screenshot(path=screenshots / "texts-section-desktop.png")
     print(f"\ntexts section: {summary} | plan: {answer}")
     context.close()
