@@ -186,8 +186,6 @@ def _page_settings(
 ) -> PageSettings:
     """The page's settings, each checked on its own: the corpora must hold (else 422, nothing to show), a
     bad setting is dropped for its default with its problem kept for the page (a form's problem beside it)."""
-    typed = {"common_size": common_size, "horizon": horizon, "first": first, "second": second}
-    typed |= {"min_freq": min_freq, "limit": limit}
     fields = {
         "common_size": {"common_size": common_size},
         "horizon": {"horizon": horizon},
@@ -195,6 +193,7 @@ def _page_settings(
         "min_freq": {"min_freq": min_freq},
         "limit": {"limit": limit},
     }
+    typed = {key: value for group in fields.values() for key, value in group.items()}
     kept: dict[str, str | None] = {}
     problems: dict[str, str] = {}
     settings = _query_settings(corpus)
