@@ -197,30 +197,30 @@ class Anchored:
             return None
         return float(np.sqrt(variance_types(self.corpus, int(round(n)))))
 
-    def _limits(self, n: float) -> tuple[float, float]:
-        value = float(self.types(n))
-        sd = self.types_sd(n)
-        band = getattr(self.predictor, "band", None)
-        if sd is not None:
-            low, high = value - Z90 * sd, value + Z90 * sd
-        elif band is not None:
-            low, high = band.limits(n / self.corpus.tokens, value)
-        else:
-            return value, value
-        low, high = range_within_possible(n, low, high, self.corpus.tokens, self.corpus.types)
-        return float(low), float(high)
-
     def types_low(self, n: ArrayLike) -> ArrayLike:
         """Lower end of the nominal 90% range of V(n) (scalar or array n)."""
-        return self._side(n, 0)
+        return self._range(n)[0]
 
     def types_high(self, n: ArrayLike) -> ArrayLike:
         """Upper end of the nominal 90% range of V(n) (scalar or array n)."""
-        return self._side(n, 1)
+        return self._range(n)[1]
 
-    def _side(self, n: ArrayLike, side: int) -> ArrayLike:
-        values = np.array([self._limits(float(x))[side] for x in np.atleast_1d(n)])
-        return as_output(values.reshape(np.shape(n)), n)
+    def _range(self, n: ArrayLike) -> tuple[ArrayLike, ArrayLike]:
+        """Both ends of the nominal 90% range of V(n), all sizes at once: for n <= N E[V(n)] -+ Z90 sd(n)
+        (exact random-sample spread), beyond N the predictor's own ``band`` (none: the prediction itself);
+        always inside ``range_within_possible``."""
+        sizes = np.atleast_1d(np.asarray(n, dtype=float))
+        value = np.asarray(self.types(sizes), dtype=float)
+        low, high = value.copy(), value.copy()
+        inside = sizes <= self.corpus.tokens
+        for i in np.flatnonzero(inside):
+            spread = Z90 * float(self.types_sd(sizes[i]))
+            low[i], high[i] = value[i] - spread, value[i] + spread
+        band = getattr(self.predictor, "band", None)
+        if band is not None and (~inside).any():
+            low[~inside], high[~inside] = band.limits(sizes[~inside] / self.corpus.tokens, value[~inside])
+        low, high = range_within_possible(sizes, low, high, self.corpus.tokens, self.corpus.types)
+        return as_output(low.reshape(np.shape(n)), n), as_output(high.reshape(np.shape(n)), n)
 
     def as_dict(self) -> dict[str, Any]:
         return self.predictor.as_dict()

@@ -36,8 +36,8 @@ from typing import Any, Literal, TypeVar, get_args
 
 import numpy as np
 
-from app.ingest.lifetime import die_with_parent
 from app.ingest.profiles import TokenizationProfile, Tokenizer
+from app.processes import die_with_parent
 
 EngineName = Literal["serial", "local", "dask"]
 ENGINES: tuple[str, ...] = get_args(EngineName)

@@ -13,6 +13,8 @@ import re
 import shutil
 from pathlib import Path
 
+from app.processes import process_running
+
 UPLOAD = "upload"
 """Kind of the folder that holds the copies of one upload's files."""
 TYPE_IDS = "lexigrowth-types"
@@ -23,16 +25,6 @@ _ENTRY = re.compile(rf"^(?:{UPLOAD}|{TYPE_IDS})-(\d+)-")
 def prefix(kind: str) -> str:
     """The name prefix of a new scratch entry of ``kind`` (``UPLOAD`` or ``TYPE_IDS``)."""
     return f"{kind}-{os.getpid()}-"
-
-
-def _running(pid: int) -> bool:
-    try:
-        os.kill(pid, 0)
-    except ProcessLookupError:
-        return False
-    except PermissionError:  # another user's process
-        return True
-    return True
 
 
 def remove_own(work_dir: Path) -> None:
@@ -55,7 +47,7 @@ def remove_orphans(work_dir: Path) -> list[str]:
     removed = []
     for entry in sorted(work_dir.iterdir()):
         match = _ENTRY.match(entry.name)
-        if match is None or _running(int(match.group(1))):
+        if match is None or process_running(int(match.group(1))):
             continue
         _remove_entry(entry)
         removed.append(entry.name)

@@ -36,7 +36,7 @@ from app.core.models.base import RANGE_LEVEL, Z90
 from app.core.spectrum import Spectrum
 from app.core.text_order import MAX_SEGMENTS, SegmentSpread, interpolate_spread
 from app.core.validity import checked_prediction
-from app.services import modelling, text_comparisons
+from app.services import memo, modelling, text_comparisons
 from app.services.export import table_text
 from app.services.memo import RecentResults
 from app.store import comparisons as saved
@@ -516,7 +516,8 @@ def _distinctive_refusal(corpora: list[Corpus]) -> str | None:
 def _distinctive(engine: Engine, pair: tuple[int, int], min_freq: int, limit: int) -> dict[str, Any]:
     found = store.get_corpora(engine, list(pair))
     refusal = _distinctive_refusal([found[cid] for cid in pair])
-    counts = [{}, {}] if refusal else [store.frequencies(engine, cid) for cid in pair]
+    counts = [{}, {}] if refusal else [store.frequencies(engine, cid) for cid in memo.checked(pair)]
+    memo.checkpoint()
     words = distinctive_words(counts[0], counts[1], min_freq) if all(counts) else []
     note = {"note": refusal} if refusal else {}
     return note | {
@@ -657,11 +658,13 @@ def _resolve(settings: ComparisonSettings, corpora: list[Corpus]) -> ComparisonS
 def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[Corpus]) -> dict[str, Any]:
     """Every number of the comparison page for resolved settings (see the module docstring)."""
     n0, horizon = settings.common_size, settings.horizon
-    members = [_member(engine, c, max(n0, horizon)) for c in corpora]
-    rows = [_size_matched_row(m, n0) for m in members]
+    # each section checks first that someone still waits for it (a page whose client has gone stops)
+    members = [_member(engine, c, max(n0, horizon)) for c in memo.checked(corpora)]
+    rows = [_size_matched_row(m, n0) for m in memo.checked(members)]
     tests, untested = _tests(rows)
-    random_order = [_random_order(engine, m.corpus) for m in members]
+    random_order = [_random_order(engine, m.corpus) for m in memo.checked(members)]
     by_texts, text_warnings = text_comparisons.text_tests(engine, corpora, n0)
+    memo.checkpoint()
     snapshot = {
         "kind": "lexigrowth comparison",
         "program_version": PROGRAM_VERSION,
@@ -676,7 +679,8 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
         "size_matched": {"tokens": n0, "rows": rows, "tests": tests, "untested": untested} | by_texts,
         "spread": _spread(members, n0),
         "growth": [
-            _growth(engine, m, horizon, curve) for m, (curve, _) in zip(members, random_order, strict=True)
+            _growth(engine, m, horizon, curve)
+            for m, (curve, _) in memo.checked(zip(members, random_order, strict=True))
         ],
         "legomena": _legomena(members, rows),
         "rank_frequency": [
@@ -684,8 +688,9 @@ def build_snapshot(engine: Engine, settings: ComparisonSettings, corpora: list[C
             | {"corpus_id": m.corpus.id}
             for m in members
         ],
-        "distinctive": _distinctive(engine, settings.pair, settings.min_freq, settings.limit),
     }
+    memo.checkpoint()
+    snapshot["distinctive"] = _distinctive(engine, settings.pair, settings.min_freq, settings.limit)
     snapshot["distinctive_texts"] = text_comparisons.distinctive_across_texts(engine, snapshot["distinctive"])
     return snapshot
 

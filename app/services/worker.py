@@ -33,7 +33,7 @@ from pathlib import Path
 from sqlalchemy.engine import Engine
 
 from app.ingest import scratch
-from app.ingest.lifetime import die_with_parent
+from app.processes import die_with_parent
 from app.services import modelling, tasks
 from app.store import tasks as queue
 from app.store.db import create_store_engine

@@ -36,6 +36,7 @@ from sqlalchemy.engine import Engine
 from sqlalchemy.exc import IntegrityError
 from sqlmodel import Session
 
+from app.processes import process_running
 from app.store.db import transaction
 from app.store.tables import BackgroundTask
 
@@ -354,13 +355,7 @@ def _owner_gone(owner: str | None, heartbeat: datetime | None, now: datetime) ->
     host, _, pid = (owner or "").partition("/")[0].rpartition(":")
     if host != socket.gethostname() or not pid.isdigit():
         return False  # another machine's process: trust its heartbeat
-    try:
-        os.kill(int(pid), 0)
-    except ProcessLookupError:
-        return True
-    except PermissionError:
-        return False
-    return False
+    return not process_running(int(pid))
 
 
 def abandoned(engine: Engine) -> list[TaskView]:

@@ -98,46 +98,60 @@ def cpu_seconds(pid: int) -> float:
     return (int(fields[11]) + int(fields[12])) / CLOCK_TICKS
 
 
-def heavy_page(base_url: str, corpus_id: int, variant: int) -> str:
-    """A corpus page with a prediction table at 29 sizes (every model at each): its own settings, so that
-    no kept page answers it."""
-    sizes = ",".join(str(1000 * k + variant) for k in range(1, 30))
-    return f"{base_url}/corpora/{corpus_id}?horizon={3 + variant}&sizes={sizes}"
+def heavy_page(base_url: str, corpus_ids: list[int], variant: int) -> str:
+    """The comparison of two large corpora (the heaviest page a member opens: size-matched tests, growth
+    curves, distinctive words) at its own common size, so that no kept page answers it."""
+    corpora = "&".join(f"corpus={cid}" for cid in corpus_ids)
+    return f"{base_url}/compare?{corpora}&common_size={100_000 + variant}"
 
 
 @pytest.mark.slow
 @pytest.mark.skipif(not Path("/proc/self/stat").exists(), reason="reads /proc (Linux)")
 def test_pages_whose_clients_have_gone_are_not_computed_to_their_end(tmp_path):
-    text = write_text(tmp_path / "text.txt", 300_000, new_word_every=3, min_letters=4, random_state=3)
+    texts = [
+        write_text(
+            tmp_path / f"text{i}.txt", 300_000, new_word_every=3 + i, min_letters=4, random_state=3 + i
+        )
+        for i in range(2)
+    ]
     with (
         running_server(tmp_path / "data") as server,
         httpx.Client(base_url=server.base_url, timeout=120) as http,
     ):
-        with text.path.open("rb") as f:
-            stored = http.post("/api/corpora?wait=1", data={"name": "medium"}, files={"files": ("m.txt", f)})
-        assert stored.status_code == 201, stored.text
-        corpus_id = stored.json()["id"]
-        assert models_status(http, corpus_id) == "ready"
-        http.get(f"/corpora/{corpus_id}")  # the page's shared parts (random-order band...) are computed
+        corpus_ids = []
+        for i, text in enumerate(texts):
+            with text.path.open("rb") as f:
+                stored = http.post(
+                    "/api/corpora?wait=1", data={"name": f"medium {i}"}, files={"files": ("m.txt", f)}
+                )
+            assert stored.status_code == 201, stored.text
+            corpus_ids.append(stored.json()["id"])
+        for corpus_id in corpus_ids:
+            assert models_status(http, corpus_id) == "ready"
+        assert (
+            http.get(heavy_page(server.base_url, corpus_ids, 0)).status_code == 200
+        )  # shared parts computed
         pid = server.process.pid
 
         before = cpu_seconds(pid)
-        assert httpx.get(heavy_page(server.base_url, corpus_id, 0), timeout=120).status_code == 200
+        assert httpx.get(heavy_page(server.base_url, corpus_ids, 1), timeout=120).status_code == 200
         one_page = cpu_seconds(pid) - before
 
         def abandon(variant: int) -> bool:
             try:
-                httpx.get(heavy_page(server.base_url, corpus_id, variant), timeout=0.1)
+                httpx.get(heavy_page(server.base_url, corpus_ids, variant), timeout=0.1)
             except httpx.TimeoutException:
                 return True
             return False
 
         before = cpu_seconds(pid)
         with ThreadPoolExecutor(ABANDONED_PAGES) as pool:
-            given_up = sum(pool.map(abandon, range(1, ABANDONED_PAGES + 1)))
+            given_up = sum(pool.map(abandon, range(2, ABANDONED_PAGES + 2)))
         time.sleep(5 + 2 * one_page)  # long enough for the pages to be computed, had they been
         spent = cpu_seconds(pid) - before
     print(f"one page {one_page:.2f} s of CPU; {given_up} abandoned pages then cost {spent:.2f} s")
     assert given_up == ABANDONED_PAGES
-    # computed to their end they would cost about ABANDONED_PAGES * one_page (8 x 0.6-1.5 s here)
-    assert spent < 0.25 * ABANDONED_PAGES * one_page, (spent, one_page)
+    # Computed to their end they would cost about ABANDONED_PAGES * one_page (8 x 0.4-0.6 s here); a page
+    # whose client left during a section (the distinctive words, most of its cost) ends that section
+    # first, so they cost 9-21% of that here, depending on how far each got in the client's 0.1 s.
+    assert spent < 0.5 * ABANDONED_PAGES * one_page, (spent, one_page)
