@@ -30,10 +30,13 @@ from datetime import datetime
 from pathlib import Path
 from typing import Any
 
+import numpy as np
+
 from app.ingest.counting import PREFIX_FRACTIONS, prefix_length
 from app.ingest.encoding import SAMPLE_BYTES, detect_encoding
 from app.ingest.names import clean_name
 from app.ingest.profiles import MAX_WORD_CHARS, TokenizationProfile
+from app.ingest.texts import TextCounts
 
 WORD_COUNTS = "word-counts"
 SPECTRUM = "spectrum"
@@ -42,7 +45,7 @@ TEXT = "text"
 SOURCE_KINDS = (TEXT, WORD_COUNTS, SPECTRUM, BUNDLE)
 
 BUNDLE_FORMAT = "lexigrowth-corpus-bundle"
-BUNDLE_VERSION = 1
+BUNDLE_VERSION = 2
 """The bundle format version this program writes and the newest it reads."""
 
 MAX_FREQUENCY = 10**7
@@ -376,12 +379,18 @@ CORPUS_FIELDS = frozenset(
     {
         "name", "labels", "profile", "source_kind", "origin", "sources", "content_hash", "program_version",
         "created_at", "tokens", "types", "hapaxes", "counts", "spectrum", "growth", "prefix_spectra",
-        "text_order",
+        "text_order", "texts",
     }
 )  # fmt: skip
 ORIGIN_FIELDS = frozenset(
     {"source_kind", "name", "exported_by", "exported_at", "created_at", "origin", "file"}
 )
+TEXTS_FIELDS = frozenset({"separator", "empty_skipped", "list"})
+TEXT_FIELDS = frozenset({"name", "tokens", "ranks", "counts"})
+MAX_BUNDLE_TEXTS = 1_000_000
+"""Most texts in a bundle (each at least one token)."""
+TEXT_NAME_CHARS = 300
+TEXT_SEPARATOR_CHARS = 100
 TEXT_ORDER_FIELDS = frozenset({"measured_tokens", "mattr", "mtld", "segments"})
 SEGMENT_FIELDS = frozenset({"size", "mean", "sd", "segments"})
 MAX_SEGMENT_SIZES = 100
@@ -608,6 +617,9 @@ class BundleCorpus:
     prefix_spectra: dict[str, tuple[int, list[tuple[int, int]]]] = field(default_factory=dict)
     text_order: dict[str, Any] = field(default_factory=dict)
     origin: dict[str, Any] = field(default_factory=dict)
+    texts: list[TextCounts] = field(default_factory=list)
+    texts_info: dict[str, Any] | None = None
+    """How the texts were found (``separator``, ``texts``, ``empty_skipped``), None without texts."""
 
 
 def decode_bundle(data: bytes, name: str = "bundle") -> BundleCorpus:
@@ -737,7 +749,69 @@ def _bundle_corpus(corpus: dict[str, Any], document: dict[str, Any]) -> BundleCo
         prefix_spectra=prefixes,
         text_order=text_order,
         origin=origin,
+        **_bundle_texts(corpus.get("texts"), counts, kind),
     )
+
+
+def _bundle_texts(value: Any, counts: dict[str, int], kind: str) -> dict[str, Any]:
+    """``texts`` and ``texts_info`` of a bundle's ``corpus.texts`` (null: none): every text's name, tokens
+    and word counts by rank in the code-point order of ``counts``; the texts add up to the corpus's counts."""
+    if value is None:
+        return {}
+    where = "corpus.texts"
+    if kind == SPECTRUM:
+        raise _refuse(where, "must be null: a corpus made from a spectrum has no texts")
+    if not isinstance(value, dict):
+        raise _refuse(where, "must be an object or null")
+    _known_keys(value, TEXTS_FIELDS, f"{where}.")
+    separator = _text_field(value.get("separator"), f"{where}.separator", TEXT_SEPARATOR_CHARS)
+    empty = _integer_field(value.get("empty_skipped", 0), f"{where}.empty_skipped", 0, MAX_BUNDLE_TEXTS)
+    listed = value.get("list")
+    if not isinstance(listed, list) or not 1 <= len(listed) <= MAX_BUNDLE_TEXTS:
+        raise _refuse(f"{where}.list", f"must be a list of 1 to {MAX_BUNDLE_TEXTS:,} texts")
+    types = len(counts)
+    totals = np.zeros(types, dtype=np.int64)
+    texts = []
+    for i, item in enumerate(listed):
+        at = f"{where}.list[{i}]"
+        if not isinstance(item, dict):
+            raise _refuse(at, "must be an object")
+        _known_keys(item, TEXT_FIELDS, f"{at}.")
+        name = _text_field(item.get("name"), f"{at}.name", TEXT_NAME_CHARS)
+        ranks, text_counts = (_integer_list(item.get(key), f"{at}.{key}") for key in ("ranks", "counts"))
+        if ranks.size != text_counts.size or ranks.size == 0:
+            raise _refuse(at, "must give as many ranks as counts, at least one")
+        if ranks[0] < 0 or ranks[-1] >= types or (np.diff(ranks) <= 0).any():
+            raise _refuse(f"{at}.ranks", f"must rise strictly within 0 .. {types - 1:,} (the corpus's words)")
+        if (text_counts < 1).any():
+            raise _refuse(f"{at}.counts", "must all be at least 1")
+        tokens = _integer_field(item.get("tokens"), f"{at}.tokens", 1, MAX_TOKENS)
+        if tokens != int(text_counts.sum()):
+            raise _refuse(
+                f"{at}.tokens", f"is {tokens:,}, but its counts add up to {int(text_counts.sum()):,}"
+            )
+        totals[ranks] += text_counts
+        texts.append(TextCounts(name, tokens, ranks, text_counts))
+    expected = np.array([counts[w] for w in sorted(counts)], dtype=np.int64)
+    differing = np.flatnonzero(totals != expected)
+    if differing.size:
+        rank = int(differing[0])
+        raise _refuse(
+            f"{where}.list",
+            f"does not add up to the corpus: word {rank:,} in code-point order occurs {int(totals[rank]):,} "
+            f"times in the texts and {int(expected[rank]):,} times in corpus.counts",
+        )
+    info = {"separator": separator, "texts": len(texts), "empty_skipped": empty}
+    return {"texts": texts, "texts_info": info}
+
+
+def _integer_list(value: Any, field_name: str) -> np.ndarray:
+    if not isinstance(value, list) or not all(type(v) is int for v in value):
+        raise _refuse(field_name, "must be a list of integers")
+    try:
+        return np.array(value, dtype=np.int64)
+    except OverflowError as exc:
+        raise _refuse(field_name, "holds an integer too large for a count") from exc
 
 
 def read_bundle(path: Path, name: str) -> BundleCorpus:

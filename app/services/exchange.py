@@ -32,6 +32,7 @@ from app.services.ingestion import (
 )
 from app.store import corpora as store
 from app.store.corpora import CorpusRecord
+from app.store.tables import Corpus
 
 COUNT_KINDS = (parse.WORD_COUNTS, parse.SPECTRUM, parse.BUNDLE)
 TEXT_COLUMN = "text column"
@@ -117,7 +118,8 @@ def _bundle_rules(bundle: parse.BundleCorpus, name: str | None, labels: dict[str
 
 def _record_from_bundle(
     files: list[tuple[Path, str]], name: str | None, labels: dict[str, str]
-) -> CorpusRecord:
+) -> tuple[CorpusRecord, list[TextCounts]]:
+    """The corpus of a bundle and its texts (none when the bundle carries none)."""
     if len(files) != 1:
         raise IngestionInputError("files: a bundle is one file; upload bundles one at a time")
     path, shown = files[0]
@@ -136,7 +138,9 @@ def _record_from_bundle(
         text_order=bundle.text_order,
         source_kind=parse.BUNDLE,
         origin=bundle.origin | {"file": shown},
-    )
+        texts=[(t.name, t.tokens, t.types, *t.packed()) for t in bundle.texts],
+        texts_info=bundle.texts_info,
+    ), bundle.texts
 
 
 def ingest_counts(
@@ -160,14 +164,13 @@ def ingest_counts(
     total = sum(path.stat().st_size for path, _ in files)
     if progress:
         progress(0, total)
-    text_list: list[TextCounts] = []
     if kind == parse.BUNDLE:
-        record = _record_from_bundle(files, name, labels or {})
+        record, text_list = _record_from_bundle(files, name, labels or {})
     else:
         record, text_list = _record_from_counts(
             kind, files, name or "", labels or {}, profile or TokenizationProfile()
         )
-    if text_list:
+    if text_list and not record.texts:
         record.texts = [(t.name, t.tokens, t.types, *t.packed()) for t in text_list]
         record.texts_info = {"separator": TEXT_COLUMN, "texts": len(text_list), "empty_skipped": 0}
     if progress:
@@ -207,8 +210,24 @@ def bundle_document(engine: Engine, corpus_id: int) -> dict[str, Any]:
             }
             or None,
             "text_order": modelling.stored_text_order(corpus)[0] or None,
+            "texts": _bundle_texts(engine, corpus),
         },
     }
+
+
+def _bundle_texts(engine: Engine, corpus: Corpus) -> dict[str, Any] | None:
+    """The texts a bundle carries (README): how they were found and each text's name, tokens and word counts
+    by rank in the code-point order of the corpus's word list; None for a corpus without texts."""
+    info = store.texts_info(corpus)
+    if info is None:
+        return None
+    listed = []
+    shown = store.corpus_texts(engine, corpus.id)
+    packed = store.packed_text_counts(engine, corpus.id)
+    for (_, name, tokens, _types), (_, packed_ranks, packed_counts) in zip(shown, packed, strict=True):
+        ranks, counts = TextCounts.unpack(packed_ranks, packed_counts)
+        listed.append({"name": name, "tokens": tokens, "ranks": ranks.tolist(), "counts": counts.tolist()})
+    return {"separator": info["separator"], "empty_skipped": info.get("empty_skipped", 0), "list": listed}
 
 
 def export_bundle(engine: Engine, corpus_id: int, compress: bool = True) -> bytes:

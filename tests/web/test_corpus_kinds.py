@@ -147,7 +147,7 @@ def test_bundles_round_trip_to_identical_numbers(client, stdlib_text):
     rest = {k: v for k, v in document.items() if k != "checksum"}
     canonical = json.dumps(rest, sort_keys=True, separators=(",", ":"), ensure_ascii=False).encode()
     assert document["checksum"] == {"algorithm": "sha256", "value": hashlib.sha256(canonical).hexdigest()}
-    assert document["format_version"] == 1 and document["corpus"]["source_kind"] == "text"
+    assert document["format_version"] == 2 and document["corpus"]["source_kind"] == "text"
 
     copy = upload(client, "bundle", "docs.json.gz", bundle, name=None)
     assert copy.status_code == 201, copy.text
@@ -194,7 +194,7 @@ def _set_count(document: dict) -> None:
 
 
 def _future(document: dict) -> None:
-    document["format_version"] = 2
+    document["format_version"] = 3
 
 
 def _tokens(document: dict) -> None:
@@ -231,7 +231,7 @@ def test_bad_files_get_a_clear_message_and_nothing_is_stored(client, kind, conte
     ("change", "fix_checksum", "message"),
     [
         (_set_count, False, "checksum does not match"),
-        (_future, True, "format version 2, made by a newer Lexigrowth"),
+        (_future, True, "format version 3, made by a newer Lexigrowth"),
         (_set_count, True, "corpus.counts disagree with corpus.spectrum"),
         (_tokens, True, "declared"),
     ],
