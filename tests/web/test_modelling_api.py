@@ -136,6 +136,33 @@ def test_estimate_from_totals_and_uniform(client):
     assert page.status_code == 200 and "500,000" in page.text
 
 
+def test_estimates_from_totals_carry_the_range_of_the_models_past_errors(client):
+    body = client.post(
+        "/api/estimate",
+        json={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400, "sizes": [200_000, 500_000]},
+    ).json()
+    rows = {row["tokens"]: row for row in body["predictions"]}
+    # At the given size V is the count itself; beyond it the range is the prediction divided and multiplied by
+    # 1 + the model's largest past error at that factor (15.34% at 4x, 36.43% at 10x: the accuracy benchmark).
+    assert rows[50_000]["types_low"] == pytest.approx(8_000) and rows[50_000]["types_high"] == pytest.approx(
+        8_000
+    )
+    for size, worst in ((200_000, 0.1534), (500_000, 0.3643)):
+        row = rows[size]
+        assert row["types_low"] == pytest.approx(row["types"] / (1 + worst))
+        assert row["types_high"] == pytest.approx(row["types"] * (1 + worst))
+        assert row["types_low"] >= 8_000 - 1e-6  # never below the types already seen
+    assert "not a confidence interval" in body["range_method"] and "few per cent" not in body["assumption"]
+    # Without the hapax count the model rests on an assumption the benchmark did not measure: no range.
+    totals = client.post("/api/estimate", json={"tokens": 50_000, "types": 8_000, "sizes": [500_000]}).json()
+    assert all(row["types_low"] is None for row in totals["predictions"])
+    assert totals["range_method"].startswith("no range")
+    page = client.get(
+        "/estimate", params={"tokens": 50_000, "types": 8_000, "hapaxes": 4_400, "sizes": "10x"}
+    )
+    assert "range of past errors" in page.text and f"{rows[500_000]['types_high']:,.0f}" in page.text
+
+
 def test_corpus_page_shows_models(docstring_corpus):
     client, cid, _ = docstring_corpus
     html = client.get(f"/corpora/{cid}", params={"sizes": "1000, 10x", "horizon": 20}).text
