@@ -553,11 +553,7 @@ def check_text_order(value: Any, tokens: int) -> dict[str, Any]:
     if not isinstance(segments, list) or len(segments) > MAX_SEGMENT_SIZES:
         raise _refuse("corpus.text_order.segments", f"must be a list of at most {MAX_SEGMENT_SIZES} objects")
     checked = []
-    for index, segment in enumerate(segments):
-        where = f"corpus.text_order.segments[{index}]"
-        if not isinstance(segment, dict):
-            raise _refuse(where, "must be an object")
-        _known_keys(segment, SEGMENT_FIELDS, f"{where}.")
+    for where, segment in _objects(segments, "corpus.text_order.segments", SEGMENT_FIELDS):
         size = _integer_field(segment.get("size"), f"{where}.size", 1, max(measured, 1))
         checked.append(
             {
@@ -772,11 +768,7 @@ def _bundle_texts(value: Any, counts: dict[str, int], kind: str) -> dict[str, An
     types = len(counts)
     totals = np.zeros(types, dtype=np.int64)
     texts = []
-    for i, item in enumerate(listed):
-        at = f"{where}.list[{i}]"
-        if not isinstance(item, dict):
-            raise _refuse(at, "must be an object")
-        _known_keys(item, TEXT_FIELDS, f"{at}.")
+    for at, item in _objects(listed, f"{where}.list", TEXT_FIELDS):
         name = _text_field(item.get("name"), f"{at}.name", TEXT_NAME_CHARS)
         ranks, text_counts = (_integer_list(item.get(key), f"{at}.{key}") for key in ("ranks", "counts"))
         if ranks.size != text_counts.size or ranks.size == 0:
@@ -803,6 +795,16 @@ def _bundle_texts(value: Any, counts: dict[str, int], kind: str) -> dict[str, An
         )
     info = {"separator": separator, "texts": len(texts), "empty_skipped": empty}
     return {"texts": texts, "texts_info": info}
+
+
+def _objects(items: list[Any], where: str, fields: frozenset[str]) -> Iterator[tuple[str, dict[str, Any]]]:
+    """Each item of a bundle's list with its place (``where[i]``), refused unless an object of known fields."""
+    for index, item in enumerate(items):
+        at = f"{where}[{index}]"
+        if not isinstance(item, dict):
+            raise _refuse(at, "must be an object")
+        _known_keys(item, fields, f"{at}.")
+        yield at, item
 
 
 def _integer_list(value: Any, field_name: str) -> np.ndarray:
