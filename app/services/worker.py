@@ -100,8 +100,8 @@ def _lane(
     stop: threading.Event,
 ) -> None:
     lane = threading.current_thread().name
-    if background and hasattr(os, "setpriority"):  # this thread only, and the threads it starts (sched(7))
-        os.setpriority(os.PRIO_PROCESS, threading.get_native_id(), BACKGROUND_NICENESS)
+    if background:
+        _this_thread_in_background()
     while not stop.is_set():
         try:
             task = queue.claim_next(engine, process, max_sizes, background)
@@ -119,6 +119,18 @@ def _lane(
             tasks.run(engine, task, work_dir, lambda _report: None)
         finally:
             running.pop(lane, None)
+
+
+def _this_thread_in_background() -> None:
+    """This thread, and the threads and processes it starts, at ``BACKGROUND_NICENESS`` (sched(7): the nice
+    value of a thread of its own)."""
+    if hasattr(os, "setpriority"):
+        os.setpriority(os.PRIO_PROCESS, threading.get_native_id(), BACKGROUND_NICENESS)
+
+
+def _warm_up() -> None:
+    _this_thread_in_background()
+    modelling.warm_up()
 
 
 def worker_main(database_url: str, work_dir: str, seen) -> None:
@@ -143,7 +155,6 @@ def worker_main(database_url: str, work_dir: str, seen) -> None:
 
     signal.signal(signal.SIGTERM, on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group: the server stops us
-    modelling.warm_up()
     lanes = [
         threading.Thread(
             target=_lane,
@@ -155,6 +166,9 @@ def worker_main(database_url: str, work_dir: str, seen) -> None:
     ]
     for lane in lanes:
         lane.start()
+    # After the lanes start, at the lowest priority: a draft sent while the server starts is claimed at
+    # once instead of waiting for the warm-up (which only spares later drafts the first calls' costs).
+    threading.Thread(target=_warm_up, name="warm-up", daemon=True).start()
     while any(lane.is_alive() for lane in lanes):
         seen.value = time.time()
         time.sleep(SIGN_OF_LIFE_EVERY)
