@@ -12,8 +12,9 @@ default this repository alone. For each, ``--repeat`` times, on a new store:
   page), each polled every 20 ms in a thread of its own; then at once a 200-word draft pasted as the
   Upload page sends it (``POST /api/corpora`` with the text), from the upload's answer to the corpus page
   with its models, while the demo corpora are being counted and fitted;
-- idle: the same server program without demo corpora, the draft sent once its task worker has given a sign
-  of life (``/api/health``) and then a second draft (the fastest shown).
+- idle: the same server program without demo corpora, the draft sent ``SETTLE_SECONDS`` after its task
+  worker's first sign of life (``/api/health``), when its warm-up is over, and then a second draft (the
+  fastest shown).
 
 The drafts are generated words (``ingest_throughput.write_generated_text``), different each time.
 Output: Markdown, with the machine; wall seconds, the median of the runs.
@@ -42,6 +43,7 @@ from ingest_throughput import cpu_model, write_generated_text  # noqa: E402 - a 
 REPO = Path(__file__).resolve().parent.parent
 POLL_SECONDS = 0.02
 DRAFT_WORDS = 200
+SETTLE_SECONDS = 5.0
 
 
 def _free_port() -> int:
@@ -145,6 +147,7 @@ def measure(code: Path, workdir: Path, words: list[str], repeat: int) -> dict[st
         server = Server(code, workdir, demo=False)
         try:
             server.wait_for_worker()
+            time.sleep(SETTLE_SECONDS)
             found.setdefault("draft, idle", []).append(
                 min(server.draft(text(), f"draft {i}") for i in range(2))
             )
