@@ -463,7 +463,7 @@ def backtest(
     ``Ensemble``). Every fitted model gets its own band: its own bootstrap spread and backtest bias.
 
     ``warm_start``: the fits to thinnings, prefixes and bootstrap replicates start from the model's fit to
-    the whole corpus (one least-squares descent each, about half the work; the same results within the
+    the whole corpus (one least-squares descent each instead of one per guess; the same results within the
     solver's tolerance, ``tests/core/test_backtest_warm_start.py``) instead of from every initial guess.
     """
     if spectrum.tokens and not spectrum.hapaxes:

@@ -11,7 +11,8 @@ never take, so that a member's upload never waits behind it.
 The whole worker process, every thread included (the numerical libraries start theirs when they are
 imported), runs at a lower CPU priority than its server (``TASK_NICENESS``), so that background work never
 slows the pages down; the background lane, and the counting processes it starts, lower still
-(``BACKGROUND_NICENESS``), so that the members' tasks take the cores first. It dies with its server: on Linux it asks the kernel for SIGTERM when its parent ends
+(``BACKGROUND_NICENESS``), so that the members' tasks take the cores first. It dies with its server: on
+Linux it asks the kernel for SIGTERM when its parent ends
 (even by ``kill -9``), and so do the counting processes it starts (``app.ingest.engines``). On SIGTERM it
 marks its running uploads failed (removing their scratch), puts running model reports back in the queue,
 and exits at once.

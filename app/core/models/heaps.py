@@ -63,6 +63,7 @@ class Heaps(VocabularyModel):
     def fit(
         self, spectrum: Spectrum, m_max: int = 15, near: Mapping[str, float] | None = None
     ) -> FittedModel:
+        # closed form: ``near``, the start of a least-squares fit, has no use here
         """Least squares in log-log on the exact random-order curve at FIT_POINTS sizes in [N/10, N]."""
         N = spectrum.tokens
         if spectrum.types < 2:

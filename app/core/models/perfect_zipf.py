@@ -163,6 +163,7 @@ class PerfectZipf(VocabularyModel):
     def fit(
         self, spectrum: Spectrum, m_max: int = 15, near: Mapping[str, float] | None = None
     ) -> FittedModel:
+        # closed form: ``near``, the start of a least-squares fit, has no use here
         params = perfect_zipf_params(spectrum.tokens, spectrum.types, spectrum.hapaxes)
         return FittedModel(self, params, spectrum.tokens, spectrum, m_max)
 
