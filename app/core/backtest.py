@@ -107,13 +107,20 @@ class BacktestRun:
 
 
 def _check(
-    model: VocabularyModel, part: Spectrum, spectrum: Spectrum, kind: str, label: str, draw: int
+    model: VocabularyModel,
+    part: Spectrum,
+    spectrum: Spectrum,
+    kind: str,
+    label: str,
+    draw: int,
+    near: FittedModel | None = None,
 ) -> BacktestRun:
-    """Fit one model on ``part`` and compare its prediction at N (anchored at the part's V, as every
-    prediction beyond the corpus size is: ``app.core.anchored``) with the full spectrum."""
+    """Fit one model on ``part`` (from the start ``near``, the model's fit to the whole corpus, when given)
+    and compare its prediction at N (anchored at the part's V, as every prediction beyond the corpus size
+    is: ``app.core.anchored``) with the full spectrum."""
     N = spectrum.tokens
     try:
-        fitted = Anchored(model.fit(part), part)
+        fitted = Anchored(model.fit(part, near=None if near is None else near.params), part)
         with np.errstate(divide="ignore", invalid="ignore"):
             types_error = 100 * (float(fitted.types(N)) / spectrum.types - 1)
             observed = spectrum.dense(LEGOMENA)
@@ -353,13 +360,15 @@ def bootstrap_spreads(
     spectrum: Spectrum,
     replicates: int = BOOTSTRAP_REPLICATES,
     factors: Sequence[float] = BOOTSTRAP_FACTORS,
+    warm_start: bool = True,
 ) -> BootstrapSpreads:
     """Each model's own sampling spread by parametric bootstrap (Efron & Tibshirani 1993, ch. 6): draw
     ``replicates`` spectra of N tokens from the recovered population (``PopulationSpectrum.sample_spectrum``,
     the least committal estimate of the population: a histogram, open or closed as the data say), refit
     every model of ``fitted`` on each and predict V(t N) anchored at the replicate's own V; the ensemble
     combines its members' replicate predictions with its own weights (replicates where a member of weight
-    > 0 failed are left out of its spread)."""
+    > 0 failed are left out of its spread). ``warm_start``: each refit starts from the model's fit to the
+    corpus (``VocabularyModel.fit``'s ``near``) instead of from every initial guess."""
     rng = np.random.default_rng(BOOTSTRAP_STATE)
     per_model: dict[str, list[np.ndarray]] = {name: [] for name in fitted}
     combined: list[np.ndarray] = []
@@ -371,7 +380,7 @@ def bootstrap_spreads(
         for name, model in fitted.items():
             try:
                 with np.errstate(all="ignore"):
-                    refit = model.model.fit(replicate)
+                    refit = model.model.fit(replicate, near=model.params if warm_start else None)
                     values = np.asarray(Anchored(refit, replicate).types(sizes), dtype=float)
             except (ValueError, ArithmeticError, np.linalg.LinAlgError):
                 continue
@@ -444,6 +453,7 @@ def backtest(
     random_states: Sequence[int] = RANDOM_STATES,
     fractions: Sequence[float] = FRACTIONS,
     models: Mapping[str, VocabularyModel] = MODELS,
+    warm_start: bool = True,
 ) -> BacktestReport:
     """Fit every model on the corpus and on its thinnings and prefixes, and build the recommended ensemble.
 
@@ -451,6 +461,10 @@ def backtest(
     once per state. A model is usable when it fits the full corpus and at least half of its random
     backtests; the usable models are the ensemble's members, weighted by ``evidence_weights`` (see
     ``Ensemble``). Every fitted model gets its own band: its own bootstrap spread and backtest bias.
+
+    ``warm_start``: the fits to thinnings, prefixes and bootstrap replicates start from the model's fit to
+    the whole corpus (one least-squares descent each instead of one per guess; the same results within the
+    solver's tolerance, ``tests/core/test_backtest_warm_start.py``) instead of from every initial guess.
     """
     if spectrum.tokens and not spectrum.hapaxes:
         raise ValueError(
@@ -472,9 +486,9 @@ def backtest(
         parts += [(RANDOM, f"{p:g}", draw, thin(spectrum, p, rng)) for p in fractions]
     parts += [(TEXT_ORDER, label, 0, prefix) for label, prefix in (prefix_spectra or {}).items()]
     runs = tuple(
-        _check(model, part, spectrum, kind, label, draw)
+        _check(model, part, spectrum, kind, label, draw, fitted.get(name) if warm_start else None)
         for kind, label, draw, part in parts
-        for model in models.values()
+        for name, model in models.items()
     )
 
     # Random runs as (runs x models) matrices of relative errors, aligned by part.
@@ -504,7 +518,7 @@ def backtest(
     )
     population = fitted.get("population_spectrum")
     spreads = (
-        bootstrap_spreads(fitted, recommended, population, spectrum)
+        bootstrap_spreads(fitted, recommended, population, spectrum, warm_start=warm_start)
         if population is not None
         else BootstrapSpreads((), {}, ())
     )

@@ -32,12 +32,15 @@ from app.store.corpora import count_corpora, get_corpus
 
 INGEST = "ingest"
 MODELS = "models"
-UPLOAD_PRIORITY = 1
-"""A member's upload is counted before queued model reports of other corpora and before the demo corpora."""
-NEW_REPORT_PRIORITY = 2
-"""The model report of a member's new corpus comes before that member's next upload (other members' tasks
-are interleaved by fair shares, ``app.store.tasks.claim_next``)."""
+UPLOAD_PRIORITY = 2
+"""A member's upload is counted before that member's queued model reports and before the demo corpora."""
+NEW_REPORT_PRIORITY = 1
+"""The model report of a member's new corpus comes after that member's uploads still to count (uploads
+first: each page of counts is there sooner, and ten uploads at once wait for no report), before reports a
+page asks for again (0); other members' tasks are interleaved by fair shares (``app.store.tasks.claim_next``)."""
 DEMO_PRIORITY = -1
+"""Background work: the demo corpora and their reports, claimed only by the worker's background lane
+(``app.services.worker``), after every member's work."""
 ANONYMOUS = "anonymous"
 DEMO = "demo"
 """The members of tasks without a lab member: the anonymous user (one member for fair shares) and the

@@ -2,13 +2,17 @@
 supervisor that keeps it running.
 
 Each server process starts one (``TaskWorker``); any number of them may serve one store, each claiming
-queued tasks safely and fairly (``app.store.tasks``). A worker has two lanes (threads): one takes any task,
-the other only small ones (``SMALL_TASKS``), so that a colleague's draft is counted and fitted at once while
-large corpora are being ingested and fitted: it waits for one small task at most.
+queued tasks safely and fairly (``app.store.tasks``). A worker has three lanes (threads, ``LANES``): two
+for the members' tasks, one of any size and one for small ones only (``SMALL_TASKS``), so that a
+colleague's draft is counted and fitted at once while large corpora are being ingested and fitted (it waits
+for one small task at most); and one for background work (the demo corpora), which the members' lanes
+never take, so that a member's upload never waits behind it.
 
 The whole worker process, every thread included (the numerical libraries start theirs when they are
 imported), runs at a lower CPU priority than its server (``TASK_NICENESS``), so that background work never
-slows the pages down. It dies with its server: on Linux it asks the kernel for SIGTERM when its parent ends
+slows the pages down; the background lane, and the counting processes it starts, lower still
+(``BACKGROUND_NICENESS``), so that the members' tasks take the cores first. It dies with its server: on
+Linux it asks the kernel for SIGTERM when its parent ends
 (even by ``kill -9``), and so do the counting processes it starts (``app.ingest.engines``). On SIGTERM it
 marks its running uploads failed (removing their scratch), puts running model reports back in the queue,
 and exits at once.
@@ -46,6 +50,13 @@ TASK_NICENESS = 10
 """How much lower than the server's the worker's CPU priority is (``nice``; its counting processes inherit
 it): when pages and background tasks want the same cores, the pages are answered first, and the tasks use
 whatever the pages leave (on an idle machine they run at full speed)."""
+BACKGROUND_NICENESS = 19
+"""The nice value of the background lane (the lowest priority; sched(7)): while a member's task wants the
+cores, the demo corpora get about a seventh of the CPU time of that task (nice 10 weighs 110, nice 19 weighs
+15 in the kernel's scheduler), and all of it otherwise."""
+LANES = (("members", None, False), ("small", SMALL_TASKS, False), ("background", None, True))
+"""The lanes: (name, the kinds and largest sizes it takes or None for any, ``background``: True for
+background tasks only, False for the members' only; see ``app.store.tasks.claim_next``)."""
 POLL_SECONDS = 0.1
 STOP_SECONDS = 5.0
 SIGN_OF_LIFE_EVERY = 1.0
@@ -81,12 +92,20 @@ def lower_priority(niceness: int = TASK_NICENESS) -> int:
 
 
 def _lane(
-    engine, work_dir: Path, process: str, max_sizes: dict | None, running: dict, stop: threading.Event
+    engine,
+    work_dir: Path,
+    process: str,
+    max_sizes: dict | None,
+    background: bool,
+    running: dict,
+    stop: threading.Event,
 ) -> None:
     lane = threading.current_thread().name
+    if background:
+        _this_thread_in_background()
     while not stop.is_set():
         try:
-            task = queue.claim_next(engine, process, max_sizes)
+            task = queue.claim_next(engine, process, max_sizes, background)
         except Exception:  # noqa: BLE001 - a busy or restarting database: try again
             log.exception("cannot claim a task")
             stop.wait(1.0)
@@ -96,11 +115,23 @@ def _lane(
             continue
         running[lane] = task
         try:
-            # A new corpus's model report is queued (before its member's next upload) and taken from the
-            # queue in fair order like any other task.
+            # A new corpus's model report is queued (after its member's uploads still to count) and taken
+            # from the queue in fair order like any other task.
             tasks.run(engine, task, work_dir, lambda _report: None)
         finally:
             running.pop(lane, None)
+
+
+def _this_thread_in_background() -> None:
+    """This thread, and the threads and processes it starts, at ``BACKGROUND_NICENESS`` (sched(7): the nice
+    value of a thread of its own)."""
+    if hasattr(os, "setpriority"):
+        os.setpriority(os.PRIO_PROCESS, threading.get_native_id(), BACKGROUND_NICENESS)
+
+
+def _warm_up() -> None:
+    _this_thread_in_background()
+    modelling.warm_up()
 
 
 def worker_main(database_url: str, work_dir: str, seen) -> None:
@@ -125,15 +156,20 @@ def worker_main(database_url: str, work_dir: str, seen) -> None:
 
     signal.signal(signal.SIGTERM, on_sigterm)
     signal.signal(signal.SIGINT, signal.SIG_IGN)  # Ctrl-C reaches the whole group: the server stops us
-    modelling.warm_up()
     lanes = [
         threading.Thread(
-            target=_lane, name=name, args=(engine, Path(work_dir), process, size, running, stop), daemon=True
+            target=_lane,
+            name=name,
+            args=(engine, Path(work_dir), process, sizes, background, running, stop),
+            daemon=True,
         )
-        for name, size in (("any", None), ("small", SMALL_TASKS))
+        for name, sizes, background in LANES
     ]
     for lane in lanes:
         lane.start()
+    # After the lanes start, at the lowest priority: a draft sent while the server starts is claimed at
+    # once instead of waiting for the warm-up (which only spares later drafts the first calls' costs).
+    threading.Thread(target=_warm_up, name="warm-up", daemon=True).start()
     while any(lane.is_alive() for lane in lanes):
         seen.value = time.time()
         time.sleep(SIGN_OF_LIFE_EVERY)

@@ -14,7 +14,7 @@ a process that is gone (or frozen for ``STALE_AFTER``) loses its tasks.
 Fair shares: a task works for a ``member`` (a lab member, the anonymous user, the demo); ``claim_next`` serves
 the member with the fewest tasks running, then the one served longest ago (round robin), then by priority,
 model reports of small corpora first, then the oldest. Background tasks (priority below 0, the demo corpora)
-come after every member's.
+come after every member's; a lane may take only members' tasks or only background ones (``background``).
 """
 
 from __future__ import annotations
@@ -217,7 +217,9 @@ def claim(engine: Engine, task_id: str, process: str) -> TaskView | None:
     return get(engine, task_id) if claimed == 1 else None
 
 
-def _next_candidate(session: Session, max_sizes: dict[str, int] | None) -> str | None:
+def _next_candidate(
+    session: Session, max_sizes: dict[str, int] | None, background: bool | None
+) -> str | None:
     """The queued task to claim next (see the module's docstring for the order)."""
     if session.exec(select(BackgroundTask.id).where(BackgroundTask.state == QUEUED).limit(1)).first() is None:
         return None  # the usual answer of an idle worker's look, by the index on state alone
@@ -239,6 +241,8 @@ def _next_candidate(session: Session, max_sizes: dict[str, int] | None) -> str |
         .outerjoin(recent, recent.c.member == BackgroundTask.member)
         .where(BackgroundTask.state == QUEUED)
     )
+    if background is not None:
+        query = query.where(BackgroundTask.priority < 0 if background else BackgroundTask.priority >= 0)
     if max_sizes is not None:
         query = query.where(
             or_(
@@ -260,9 +264,12 @@ def _next_candidate(session: Session, max_sizes: dict[str, int] | None) -> str |
     return session.exec(query.limit(1)).scalar()
 
 
-def claim_next(engine: Engine, process: str, max_sizes: dict[str, int] | None = None) -> TaskView | None:
+def claim_next(
+    engine: Engine, process: str, max_sizes: dict[str, int] | None = None, background: bool | None = None
+) -> TaskView | None:
     """Take the next queued task for ``process``; None if none. With ``max_sizes`` ({kind: largest size
-    hint}), only a task of one of those kinds and sizes.
+    hint}), only a task of one of those kinds and sizes; with ``background`` True only a background task
+    (priority below 0), False only a member's (0 and above), None either.
 
     Order: tasks of priority 0 and above before background ones (below 0); among them the member with the
     fewest tasks running, then the one whose last claim is oldest (or who has none within
@@ -270,7 +277,7 @@ def claim_next(engine: Engine, process: str, max_sizes: dict[str, int] | None = 
     priority; then model reports of smaller corpora; then the oldest."""
     for _ in range(5):  # another process may take the candidate between the look and the claim
         with Session(engine) as session:
-            candidate = _next_candidate(session, max_sizes)
+            candidate = _next_candidate(session, max_sizes, background)
         if candidate is None:
             return None
         claimed = claim(engine, candidate, process)

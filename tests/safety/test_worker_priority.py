@@ -1,5 +1,6 @@
 """Background work yields the CPU to pages: every thread of the task worker of a real server (its lanes,
-its heartbeat threads and the numerical libraries' threads alike) runs at a lower priority.
+its heartbeat threads and the numerical libraries' threads alike) runs at a lower priority, and the lane of
+the demo corpora at the lowest.
 
 On Linux the nice value belongs to each thread (sched(7)), so each one is read: field 19 of
 /proc/PID/task/TID/stat (proc(5))."""
@@ -12,7 +13,7 @@ from pathlib import Path
 import httpx
 import pytest
 
-from app.services.worker import TASK_NICENESS
+from app.services.worker import BACKGROUND_NICENESS, TASK_NICENESS
 from tests.safety.server import running_server
 
 PROC = Path("/proc")
@@ -65,8 +66,14 @@ def test_every_thread_of_the_task_worker_runs_at_a_lower_cpu_priority_than_its_s
                 threads = thread_niceness(health["pid"])
                 break
             time.sleep(0.1)
-        # main thread and two lanes at least; the numerical libraries add theirs on a machine with several
-        # cores (none on one core), and each is read too
-        assert len(threads) >= 3, threads
-        assert set(threads.values()) == {expected}, (server_nice, threads)
+        # main thread and three lanes at least; the numerical libraries add theirs on a machine with
+        # several cores (none on one core), and each is read too
+        assert len(threads) >= 4, threads
+        values = sorted(threads.values())
+        # the background lane alone lower still (a thread's nice value can only be raised without privileges)
+        assert values.count(BACKGROUND_NICENESS) >= 1 and set(values) <= {expected, BACKGROUND_NICENESS}, (
+            server_nice,
+            threads,
+        )
+        assert values.count(expected) >= 3 or expected == BACKGROUND_NICENESS, (server_nice, threads)
         assert thread_niceness(server.process.pid)[server.process.pid] == server_nice  # the server: as it was

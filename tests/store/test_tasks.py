@@ -214,3 +214,27 @@ def test_the_lane_for_small_tasks_takes_only_the_kinds_and_sizes_it_is_given(eng
     small = {"ingest": 256 * 1024, "models": 50_000}
     assert [queue.claim_next(engine, "small", small).id for _ in range(2)] == [draft.id, report.id]
     assert queue.claim_next(engine, "small", small) is None
+
+
+def test_the_members_lanes_never_take_background_work_and_the_background_lane_only_that(engine):
+    demo = queue.enqueue(engine, "ingest", {}, size_hint=1_000, priority=-1, member="demo")
+    demo_report = queue.enqueue(engine, "models", {}, size_hint=300, priority=-1, member="demo")
+    small = {"ingest": 256 * 1024, "models": 50_000}
+    assert queue.claim_next(engine, "members", None, background=False) is None
+    assert queue.claim_next(engine, "small", small, background=False) is None
+    draft = queue.enqueue(engine, "ingest", {}, size_hint=2_000, priority=2, member="member 1")
+    assert queue.claim_next(engine, "background", None, background=True).id == demo.id  # the draft not
+    assert queue.claim_next(engine, "small", small, background=False).id == draft.id
+    assert queue.claim_next(engine, "background", None, background=True).id == demo_report.id
+
+
+def test_a_members_uploads_are_counted_before_that_members_new_reports(engine):
+    # ingest tasks at the upload priority (2), the new corpora's reports at the new-report one (1)
+    first_report = queue.enqueue(engine, "models", {}, size_hint=300, priority=1, member="member 1")
+    uploads = [queue.enqueue(engine, "ingest", {"n": i}, priority=2, member="member 1") for i in range(3)]
+    order = []
+    for _ in range(4):
+        task = queue.claim_next(engine, "me", background=False)
+        order.append(task.id)
+        queue.finish(engine, task)
+    assert order == [*(u.id for u in uploads), first_report.id]

@@ -320,6 +320,10 @@ class VocabularyModel(ABC):
     reads_spectrum: ClassVar[bool] = True
     """False for a model fitted to the totals alone: it ignores the spectrum a corpus has, so it is shown for
     comparison but gets no weight in the recommendation (the same law fitted to the spectrum competes)."""
+    warm_start: ClassVar[bool] = True
+    """Whether a fit from the one start ``near`` (``fit``) lands where the fit from every initial guess does,
+    within the solver's tolerance: False for a model whose cost is so flat along a ridge that different
+    starts end at different parameters of near-equal cost; it is always fitted from every guess."""
 
     @abstractmethod
     def expected_types(self, n: ArrayLike, params: Mapping[str, float]) -> ArrayLike:
@@ -409,9 +413,12 @@ class VocabularyModel(ABC):
 
         return residuals
 
-    def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:
+    def fit(
+        self, spectrum: Spectrum, m_max: int = 15, near: Mapping[str, float] | None = None
+    ) -> FittedModel:
         """Fit by ``estimate`` (by default: minimise the cost of the module docstring from every initial
-        guess; the lowest cost wins) and check the expectations for soundness."""
+        guess; the lowest cost wins), or from the one start ``near`` (``_estimate_near``), and check the
+        expectations for soundness."""
         if spectrum.types == 0:
             raise ValueError("cannot fit a model to an empty spectrum")
         if spectrum.types < MIN_TYPES_TO_FIT:
@@ -424,7 +431,9 @@ class VocabularyModel(ABC):
                 f"{self.name}: not fitted to fewer than {self.min_tokens:,} tokens ({spectrum.tokens:,} here): "
                 "its parameters are not identified on so few"
             )
-        params = self.estimate(spectrum, m_max)
+        params = (
+            self.estimate(spectrum, m_max) if near is None else self._estimate_near(spectrum, m_max, near)
+        )
         self.check_growth(params, spectrum.tokens)
         return FittedModel(self, params, spectrum.tokens, spectrum, m_max)
 
@@ -432,11 +441,29 @@ class VocabularyModel(ABC):
         """The parameters that ``fit`` wraps in a FittedModel: here the least-squares cost of the module
         docstring. A model fitted another way (a closed form, a linear program) overrides this hook only;
         the checks, the FittedModel and every verb stay shared."""
+        return self._least_squares(spectrum, m_max, self.initial_guesses(spectrum))
+
+    def _least_squares(self, spectrum: Spectrum, m_max: int, starts: list[Mapping[str, float]]) -> Params:
         residuals = self._residuals(spectrum, m_max, lambda d, e: d / np.sqrt(np.maximum(e, 1e-12)))
-        best = _minimise(residuals, [self.to_unconstrained(g) for g in self.initial_guesses(spectrum)])
+        with np.errstate(all="ignore"):  # a start on a domain's end maps to an infinite coordinate: skipped
+            thetas = [theta for g in starts if np.all(np.isfinite(theta := self.to_unconstrained(g)))]
+        best = _minimise(residuals, thetas)
         if best is None:
             raise ValueError(f"{self.name}: no initial guess led to a finite cost")
         return self.from_unconstrained(best)
+
+    def _estimate_near(self, spectrum: Spectrum, m_max: int, near: Mapping[str, float]) -> Params:
+        """Warm start: the least-squares fit from the one start ``near``, the parameters fitted to a spectrum
+        like this one (the whole corpus, for its thinnings and bootstrap replicates), where the minimum
+        found from every initial guess usually lies close by; one descent instead of one per guess. A
+        model fitted another way (``estimate`` overridden) or without ``warm_start`` is fitted as always, and
+        so is a spectrum on which the start leads to no finite cost."""
+        if type(self).estimate is not VocabularyModel.estimate or not self.warm_start:
+            return self.estimate(spectrum, m_max)
+        try:
+            return self._least_squares(spectrum, m_max, [near])
+        except ValueError:
+            return self.estimate(spectrum, m_max)
 
     def check_growth(self, params: Mapping[str, float], tokens: int) -> None:
         """Raise ValueError unless E[V(n)] is finite, within [0, n] and non-decreasing for n from 1 to

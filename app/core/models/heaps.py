@@ -60,7 +60,10 @@ class Heaps(VocabularyModel):
         shares = beta * np.exp(gammaln(m - beta) - gammaln(1 - beta) - gammaln(m + 1))
         return np.asarray(self.expected_types(n, params)) * shares
 
-    def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:
+    def fit(
+        self, spectrum: Spectrum, m_max: int = 15, near: Mapping[str, float] | None = None
+    ) -> FittedModel:
+        # closed form: ``near``, the start of a least-squares fit, has no use here
         """Least squares in log-log on the exact random-order curve at FIT_POINTS sizes in [N/10, N]."""
         N = spectrum.tokens
         if spectrum.types < 2:

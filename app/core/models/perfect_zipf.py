@@ -160,7 +160,10 @@ class PerfectZipf(VocabularyModel):
             out[here] = params["zipf_types"] * legomena_shares(size / params["zipf_size"], m_arr[here])
         return out
 
-    def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:
+    def fit(
+        self, spectrum: Spectrum, m_max: int = 15, near: Mapping[str, float] | None = None
+    ) -> FittedModel:
+        # closed form: ``near``, the start of a least-squares fit, has no use here
         params = perfect_zipf_params(spectrum.tokens, spectrum.types, spectrum.hapaxes)
         return FittedModel(self, params, spectrum.tokens, spectrum, m_max)
 
@@ -174,7 +177,9 @@ class PerfectZipfTotals(PerfectZipf):
     title = "perfect Zipf from totals (assumes x = 1)"
     reads_spectrum = False
 
-    def fit(self, spectrum: Spectrum, m_max: int = 15) -> FittedModel:
+    def fit(
+        self, spectrum: Spectrum, m_max: int = 15, near: Mapping[str, float] | None = None
+    ) -> FittedModel:
         return FittedModel(
             self, perfect_zipf_params(spectrum.tokens, spectrum.types), spectrum.tokens, spectrum, m_max
         )
