@@ -32,9 +32,19 @@ DataDir = Annotated[
 
 
 def _engine(data_dir: Path | None):
-    from app.store.db import make_engine
+    from app.services.corpora import open_store
 
-    return make_engine(_settings(data_dir).resolved_database_url)
+    return open_store(_settings(data_dir).resolved_database_url)
+
+
+def is_loopback(host: str) -> bool:
+    """Whether a listening address is reachable from this machine only."""
+    if host.lower() == "localhost":
+        return True
+    try:
+        return ipaddress.ip_address(host.strip("[]")).is_loopback
+    except ValueError:
+        return False
 
 
 def _every_address(host: str) -> bool:
@@ -71,12 +81,12 @@ def serve(
     """
     import uvicorn
 
+    from app.config import LOOPBACK_NAMES
     from app.main import create_app
-    from app.store.accounts import any_account
-    from app.web.security import LOOPBACK_NAMES, is_loopback
+    from app.services.accounts import lab_mode_on
 
     settings = _settings(data_dir)
-    lab = any_account(_engine(data_dir))
+    lab = lab_mode_on(_engine(data_dir))
     if not is_loopback(host) and not lab:
         typer.echo(
             f"error: refusing to listen on {host}: without accounts the dashboard has no sign-in, and anyone "
@@ -179,16 +189,14 @@ def ingest(
     ] = "file",
 ) -> None:
     """Count FILES as one corpus (or read them as counts, a spectrum or a bundle), store it, fit its models."""
-    from app.ingest.profiles import get_profile
-    from app.ingest.readers import UnreadableFileError
     from app.services.ingestion import IngestionInputError, parse_labels
-    from app.store.db import make_engine
+    from app.services.sources import INPUT_ERRORS, profile_named
 
     settings = _settings(data_dir)
-    engine = make_engine(settings.resolved_database_url)
+    engine = _engine(data_dir)
     try:
         labels = parse_labels("\n".join(label or []))
-        chosen = get_profile(profile)
+        chosen = profile_named(profile)
         if kind == "text":
             corpus_id = _ingest_texts(
                 engine, settings, files, name or "", labels, chosen, count_engine, scheduler, text_separator
@@ -197,7 +205,7 @@ def ingest(
             raise IngestionInputError("--text-separator: only files of texts are split into texts")
         else:
             corpus_id = _ingest_counts(engine, kind, files, name, labels, chosen)
-    except (UnreadableFileError, IngestionInputError, ValueError, FileNotFoundError) as exc:
+    except (*INPUT_ERRORS, FileNotFoundError) as exc:
         typer.echo(f"error: {exc}", err=True)
         raise typer.Exit(code=2) from exc
     _report_and_fit(engine, settings, corpus_id, fit)
@@ -217,10 +225,10 @@ def _ingest_texts(
     engine, settings, files, name: str, labels: dict, profile, count_engine, scheduler, text_separator: str
 ) -> int:
     """Texts counted with a progress bar on standard error."""
-    from app.ingest.readers import TextSource
     from app.services.ingestion import ingest as run_ingest
+    from app.services.sources import text_file
 
-    sources = [TextSource.from_path(f) for f in files]
+    sources = [text_file(f) for f in files]
     total = sum(s.size for s in sources)
     with typer.progressbar(length=max(total, 1), label="counting", file=sys.stderr) as bar:
         last = [0]
@@ -245,11 +253,12 @@ def _ingest_texts(
 
 def _report_and_fit(engine, settings, corpus_id: int, fit: bool) -> None:
     """Print the new corpus's totals and fit its models now (or leave them queued)."""
+    from app.services.corpora import lookup, summary
+    from app.services.jobs import failed
     from app.services.modelling import PredictionError, model_report
     from app.services.tasks import queue_models, run_now
-    from app.store.corpora import get_corpus, summary
 
-    s = summary(get_corpus(engine, corpus_id))
+    s = summary(lookup(engine, corpus_id))
     typer.echo(
         f"stored corpus {corpus_id} '{s['name']}': {s['tokens']:,} tokens, {s['types']:,} types, "
         f"{s['hapaxes']:,} hapax legomena"
@@ -260,7 +269,7 @@ def _report_and_fit(engine, settings, corpus_id: int, fit: bool) -> None:
         return
     typer.echo("fitting models...", err=True)
     ended = run_now(engine, task, settings.work_dir)
-    if ended.state == "failed":
+    if failed(ended):
         typer.echo(f"models: {ended.message}")
         return
     try:
@@ -274,13 +283,10 @@ def _report_and_fit(engine, settings, corpus_id: int, fit: bool) -> None:
 @app.command("list")
 def list_command(data_dir: DataDir = None) -> None:
     """List the stored corpora."""
-    from app.store.corpora import list_corpora, summary
-    from app.store.db import make_engine
+    from app.services.corpora import summaries
 
-    engine = make_engine(_settings(data_dir).resolved_database_url)
     typer.echo(f"{'id':>4}  {'tokens':>12}  {'types':>10}  {'hapax':>6}  name")
-    for corpus in list_corpora(engine):
-        s = summary(corpus)
+    for s in summaries(_engine(data_dir)):
         typer.echo(
             f"{s['id']:>4}  {s['tokens']:>12,}  {s['types']:>10,}  {s['hapax_share']:>6.1%}  {s['name']}"
         )
@@ -302,21 +308,20 @@ def export(
 ) -> None:
     """Print the frequency spectrum of a corpus as TSV: a commented header (corpus, profile, tokens, types,
     version), then the columns occurrences and types; with --bundle, the whole corpus as a bundle."""
+    from app.services.corpora import CorpusNotFoundError, lookup, spectrum
     from app.services.exchange import export_bundle
     from app.services.export import spectrum_tsv
-    from app.store.corpora import CorpusNotFoundError, get_corpus, spectrum_pairs
-    from app.store.db import make_engine
 
-    engine = make_engine(_settings(data_dir).resolved_database_url)
+    engine = _engine(data_dir)
     try:
-        corpus = get_corpus(engine, corpus_id)
+        corpus = lookup(engine, corpus_id)
     except CorpusNotFoundError as exc:
         typer.echo(f"error: {exc}", err=True)
         raise typer.Exit(code=2) from exc
     data = (
         export_bundle(engine, corpus_id)
         if bundle
-        else spectrum_tsv(spectrum_pairs(engine, corpus_id), corpus).encode("utf-8")
+        else spectrum_tsv(spectrum(engine, corpus_id), corpus).encode("utf-8")
     )
     if output is not None:
         output.write_bytes(data)
@@ -363,10 +368,10 @@ def user_add(
     data_dir: DataDir = None,
 ) -> None:
     """Add a member. From the first account on, the dashboard asks everyone to sign in."""
-    from app.store.accounts import AccountError, add_account, check_name
+    from app.services.accounts import AccountError, add_member, check_name
 
     try:
-        member = add_account(_engine(data_dir), check_name(name), _password(password_stdin), admin)
+        member = add_member(_engine(data_dir), check_name(name), _password(password_stdin), admin)
     except AccountError as exc:
         raise _fail(exc) from exc
     typer.echo(f"added {'admin' if member.is_admin else 'member'} {member.name} (lab mode: sign-in required)")
@@ -375,10 +380,10 @@ def user_add(
 @users.command("list")
 def user_list(data_dir: DataDir = None) -> None:
     """List the members with their role and number of API tokens."""
-    from app.store.accounts import list_accounts
+    from app.services.accounts import members
 
     typer.echo(f"{'id':>4}  {'role':<6}  {'tokens':>6}  name")
-    for member, tokens in list_accounts(_engine(data_dir)):
+    for member, tokens in members(_engine(data_dir)):
         typer.echo(
             f"{member.id:>4}  {'admin' if member.is_admin else 'member':<6}  {tokens:>6}  {member.name}"
         )
@@ -399,14 +404,14 @@ def user_password(
     data_dir: DataDir = None,
 ) -> None:
     """Set a new password for a member: every session of theirs ends; their API tokens are revoked or kept."""
-    from app.store.accounts import AccountError, list_accounts, member_exists, set_password
+    from app.services.accounts import AccountError, member_exists, members, set_password
 
     engine = _engine(data_dir)
     try:
         if not member_exists(engine, name):
             raise AccountError(f"no account called {name!r}")
         password = _password(password_stdin)
-        tokens = next(n for member, n in list_accounts(engine) if member.name == name)
+        tokens = next(n for member, n in members(engine) if member.name == name)
         if revoke_tokens is None:
             revoke_tokens = bool(tokens) and typer.confirm(
                 f"{name} has {tokens} API token(s), which keep working after a password change. Revoke them?",
@@ -435,9 +440,9 @@ def user_unlock(
 ) -> None:
     """Forget failed sign-ins (of a name from every address, of an address, or all of them with neither),
     so that nobody has to wait before signing in again."""
-    from app.store.signins import clear
+    from app.services.accounts import forget_failed_sign_ins
 
-    forgotten = clear(_engine(data_dir), name, address)
+    forgotten = forget_failed_sign_ins(_engine(data_dir), name, address)
     typer.echo(f"forgot the failed sign-ins of {forgotten} name and address pair(s) or address(es)")
 
 
@@ -453,7 +458,7 @@ def user_token(
 
     Scripts send it in the header 'Authorization: Bearer TOKEN'.
     """
-    from app.store.accounts import AccountError, new_token, revoke_tokens
+    from app.services.accounts import AccountError, new_token, revoke_tokens
 
     try:
         if revoke:

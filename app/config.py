@@ -14,6 +14,8 @@ REPO_ROOT = Path(__file__).resolve().parent.parent
 TEMPLATES_DIR = REPO_ROOT / "templates"
 STATIC_DIR = REPO_ROOT / "static"
 DEMO_DIR = REPO_ROOT / "demo_corpora"
+LOOPBACK_NAMES = frozenset({"localhost", "127.0.0.1", "::1"})
+"""The names of this computer itself: the server always answers for them; listening on them needs no accounts."""
 
 try:
     PROGRAM_VERSION = version("lexigrowth")

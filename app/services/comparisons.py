@@ -44,6 +44,9 @@ from app.store import corpora as store
 from app.store.corpora import CorpusNotFoundError
 from app.store.tables import Corpus, SavedComparison
 
+ComparisonNotFoundError = saved.ComparisonNotFoundError
+"""No saved comparison at the address asked for."""
+
 MIN_CORPORA, MAX_CORPORA = 2, 8
 MAX_TOKENS = modelling.MAX_PREDICTION_TOKENS
 MAX_MIN_FREQ = 10**9
@@ -883,6 +886,11 @@ def delete_saved(engine: Engine, slug: str, publisher: Publisher) -> None:
     if not publisher.may_manage(saved.creator_of(engine, slug)):
         raise NotAllowedError("only the member who saved this comparison, or an admin, may delete it")
     saved.delete_comparison(engine, slug)
+
+
+def is_public(engine: Engine, slug: str) -> bool:
+    """Whether the saved comparison at this address may be opened without signing in."""
+    return saved.is_public(engine, slug)
 
 
 def may_manage(engine: Engine, slug: str, publisher: Publisher) -> bool:

@@ -19,6 +19,19 @@ WORKER_SILENT_SECONDS = 30.0
 STAGES = ("queued", "starting", "reading", "counting", "text-order statistics", "exact statistics", "storing")
 """The stages of an ingestion in order (then "done" or "failed"); the model report follows as its own task."""
 
+Task = queue.TaskView
+"""A background task as the store last saw it: id, kind, state, stage, progress, message, its corpus."""
+
+
+def failed(task: Task) -> bool:
+    """Whether the task ended without its result (``task.message`` says why)."""
+    return task.state == queue.FAILED
+
+
+def succeeded(task: Task) -> bool:
+    """Whether the task ended with its result stored."""
+    return task.state == queue.DONE
+
 
 def as_job(task: queue.TaskView, models: queue.TaskView | None = None) -> dict[str, Any]:
     """The job's JSON: state (``status``), stage, bytes counted of all, the corpus once it exists and the
@@ -48,6 +61,10 @@ class Dispatcher:
 
     def submit(self, task: queue.TaskView) -> queue.TaskView:
         return tasks.run_now(self.engine, task, self.work_dir) if self.inline else task
+
+    def current(self, task: Task) -> Task:
+        """The task as the store sees it now (as it was if it has since been removed)."""
+        return queue.get(self.engine, task.id) or task
 
     def job(self, task_id: str) -> dict[str, Any] | None:
         task = queue.get(self.engine, task_id)

@@ -104,6 +104,11 @@ def same_content(engine: Engine, corpus: Corpus) -> list[dict[str, Any]]:
     ]
 
 
+def delete_comparison(engine: Engine, slug: str) -> None:
+    """Delete a saved comparison (the caller checks who may: its creator or an admin)."""
+    saved.delete_comparison(engine, slug)
+
+
 def saved_comparisons(engine: Engine) -> list[dict[str, Any]]:
     """Every saved comparison, newest first: slug, address, corpora names, common size, when, who, public."""
     out = []

@@ -12,20 +12,16 @@ from sqlalchemy.engine import Engine
 from starlette.concurrency import run_in_threadpool
 
 from app.config import Settings
-from app.core import planning
-from app.ingest import texts as text_units
-from app.ingest.profiles import BUILTIN_PROFILES
-from app.ingest.readers import TextSource
-from app.services import estimator, exchange, ingestion, library, modelling, tasks
-from app.services.jobs import Dispatcher
+from app.core.planning import Target
+from app.services import corpora, estimator, exchange, ingestion, library, modelling, sources, tasks
+from app.services import planning as plan_targets
+from app.services.jobs import Dispatcher, Task, failed, succeeded
 from app.services.texts import word_dispersion
-from app.store import corpora as store
-from app.store import tasks as queue
 from app.web import downloads
-from app.web.deps import INPUT_ERRORS, corpus_or_404, engine_of, input_error, jobs_of, settings_of
+from app.web.deps import corpus_or_404, engine_of, input_error, jobs_of, settings_of
 from app.web.forms import optional
 from app.web.jsonsafe import FiniteJSONResponse
-from app.web.uploads import parse_profile, plain_file, receive
+from app.web.uploads import receive
 
 router = APIRouter(prefix="/api", tags=["api"])
 
@@ -53,12 +49,12 @@ def health(request: Request, jobs: Annotated[Dispatcher, Depends(jobs_of)]) -> d
 @router.get("/profiles")
 def profiles() -> dict:
     """The built-in tokenization profiles."""
-    return {name: p.to_dict() for name, p in BUILTIN_PROFILES.items()}
+    return {name: p.to_dict() for name, p in sources.profiles().items()}
 
 
 @router.get("/corpora")
 def list_corpora(engine: EngineDep) -> list[dict]:
-    return [store.summary(c) for c in store.list_corpora(engine)]
+    return corpora.summaries(engine)
 
 
 # The pasted text is one form field: it may be as large as the body limit allows (app.web.limits), which
@@ -99,15 +95,15 @@ async def upload_corpus(
         if source_kind != "bundle" or name:
             name = ingestion.check_name(name or "")
         label_map = ingestion.parse_labels(labels)
-        chosen = parse_profile(profile)
+        chosen = sources.parse_profile(profile)
         separator = ingestion.check_text_separator(text_separator)
-        if source_kind != "text" and separator != text_units.FILE:
+        if source_kind != "text" and sources.splits_texts(separator):
             raise ingestion.IngestionInputError("text_separator: only files of texts are split into texts")
-        describe = TextSource.from_path if source_kind == "text" else plain_file
+        describe = sources.text_file if source_kind == "text" else sources.plain_file
         upload = await run_in_threadpool(
             receive, files or [], text, settings.work_dir, settings.max_upload_mb, describe
         )
-    except INPUT_ERRORS as exc:
+    except sources.INPUT_ERRORS as exc:
         raise input_error(exc) from exc
 
     member = request.state.viewer.member  # in lab mode, the uploader owns the corpus
@@ -128,18 +124,18 @@ async def upload_corpus(
         raise
     task = await run_in_threadpool(jobs.submit, task)
     if wait:
-        task = await wait_for(request, engine, task, settings.upload_wait_seconds)
+        task = await wait_for(request, jobs, task, settings.upload_wait_seconds)
     if not (wait and task.finished):
         job = await run_in_threadpool(jobs.job, task.id)
         return FiniteJSONResponse(job | {"url": f"/api/jobs/{task.id}"}, status_code=202)
-    if task.state == queue.FAILED:
+    if failed(task):
         raise HTTPException(status_code=422, detail=task.message)
-    corpus = await run_in_threadpool(store.get_corpus, engine, task.corpus_id)
+    corpus = await run_in_threadpool(corpora.lookup, engine, task.corpus_id)
     same = await run_in_threadpool(library.same_content, engine, corpus)
-    return with_warnings(store.summary(corpus)) | {"same_content": same}
+    return with_warnings(corpora.summary(corpus)) | {"same_content": same}
 
 
-async def wait_for(request: Request, engine: Engine, task: queue.TaskView, seconds: float) -> queue.TaskView:
+async def wait_for(request: Request, jobs: Dispatcher, task: Task, seconds: float) -> Task:
     """The task once finished, or as it stands after ``seconds`` or when the client has gone (the task goes
     on); looks at it every ``WAIT_POLL_SECONDS`` at first, less often as it takes longer (at most every
     ``WAIT_POLL_MAX_SECONDS``)."""
@@ -148,7 +144,7 @@ async def wait_for(request: Request, engine: Engine, task: queue.TaskView, secon
     while not task.finished and time.monotonic() < deadline and not await request.is_disconnected():
         await asyncio.sleep(min(pause, max(0.0, deadline - time.monotonic())))
         pause = min(pause * 1.5, WAIT_POLL_MAX_SECONDS)
-        task = await run_in_threadpool(queue.get, engine, task.id) or task
+        task = await run_in_threadpool(jobs.current, task)
     return task
 
 
@@ -184,7 +180,7 @@ def corpus_summary(
     any extrapolation (e.g. a text under 1,000 tokens) and ``same_content``: the other corpora counted from
     the same content (id, name, url, counted_at)."""
     corpus = corpus_or_404(engine, corpus_id)
-    summary = with_warnings(store.summary(corpus)) | {"same_content": library.same_content(engine, corpus)}
+    summary = with_warnings(corpora.summary(corpus)) | {"same_content": library.same_content(engine, corpus)}
     return summary | {"models": jobs.models_status(corpus_id)}
 
 
@@ -196,7 +192,7 @@ def delete_corpus(corpus_id: CorpusId, engine: EngineDep, request: Request) -> R
         raise HTTPException(
             status_code=403, detail="only the member who uploaded this corpus, or an admin, may delete it"
         )
-    store.delete_corpus(engine, corpus_id)
+    corpora.delete(engine, corpus_id)
     return Response(status_code=204)
 
 
@@ -214,7 +210,7 @@ def spectrum(
     """The frequency spectrum [[m, V_m], ...], m ascending: at most 10,000 rows from ``offset`` (``rows``:
     how many there are; a corpus of 10^8 tokens has a few thousand), all of them in ``download``."""
     corpus = corpus_or_404(engine, corpus_id)
-    pairs = store.spectrum_pairs(engine, corpus_id)
+    pairs = corpora.spectrum(engine, corpus_id)
     shown = pairs[offset : offset + limit]
     download = f"/api/corpora/{corpus_id}/spectrum.tsv"
     out = {
@@ -246,7 +242,7 @@ def growth(
     and ``models``: each model's prediction from the corpus size to ``horizon`` times it, as
     ``/predict`` serves it, with its nominal 90% range (``status`` pending or failed while there is none)."""
     corpus = corpus_or_404(engine, corpus_id)
-    source = store.source(corpus)
+    source = corpora.made_from(corpus)
     try:
         loaded = modelling.load_models(engine, corpus_id)
     except modelling.ModelsPendingError:
@@ -259,7 +255,7 @@ def growth(
         )
         models = {"status": "ready", "curves": curves, "failures": failures}
     return {
-        "text_order": [{"tokens": n, "types": v} for n, v in store.growth_points(engine, corpus_id)],
+        "text_order": [{"tokens": n, "types": v} for n, v in corpora.text_order_growth(engine, corpus_id)],
         "random_order": modelling.random_order_growth(engine, corpus_id),
         "models": models,
     } | ({} if source["text_order"] else {"text_order_note": no_text_order(source)})
@@ -274,10 +270,10 @@ def words(
     offset: Annotated[int, Query(ge=0, le=10**9)] = 0,
 ) -> dict:
     corpus = corpus_or_404(engine, corpus_id)
-    source = store.source(corpus)
+    source = corpora.made_from(corpus)
     if not source["word_list"]:
         return {"total": 0, "offset": offset, "words": [], "available": False, "note": no_word_list(source)}
-    total, rows = store.word_counts(engine, corpus_id, search, limit, offset)
+    total, rows = corpora.word_counts(engine, corpus_id, search, limit, offset)
     spread = word_dispersion(engine, corpus, [w for w, _ in rows])
     if spread is None:
         return {"total": total, "offset": offset, "words": [{"word": w, "count": c} for w, c in rows]}
@@ -293,16 +289,16 @@ def words(
 @router.get("/corpora/{corpus_id}/spectrum.tsv")
 def spectrum_tsv(corpus_id: CorpusId, engine: EngineDep) -> Response:
     corpus = corpus_or_404(engine, corpus_id)
-    return downloads.spectrum_tsv_response(corpus, store.spectrum_pairs(engine, corpus_id))
+    return downloads.spectrum_tsv_response(corpus, corpora.spectrum(engine, corpus_id))
 
 
 @router.get("/corpora/{corpus_id}/words.csv")
 def words_csv(corpus_id: CorpusId, engine: EngineDep) -> Response:
     corpus = corpus_or_404(engine, corpus_id)
-    source = store.source(corpus)
+    source = corpora.made_from(corpus)
     if not source["word_list"]:
         raise HTTPException(status_code=409, detail=no_word_list(source))
-    return downloads.word_counts_csv_response(corpus, store.word_counts(engine, corpus_id, limit=None)[1])
+    return downloads.word_counts_csv_response(corpus, corpora.word_counts(engine, corpus_id, limit=None)[1])
 
 
 @router.get("/corpora/{corpus_id}/bundle")
@@ -368,9 +364,9 @@ def models(corpus_id: CorpusId, engine: EngineDep, jobs: Annotated[Dispatcher, D
         if exc.status_code != 503:
             raise
         task = jobs.models_state(corpus_id)
-        if task.state == queue.FAILED:
+        if failed(task):
             raise HTTPException(status_code=422, detail=task.message) from exc
-        if task.state == queue.DONE:  # finished between the two looks
+        if succeeded(task):  # finished between the two looks
             return _modelling_call(modelling.model_report, engine, corpus_id)
         body = {"status": task.state, "stage": task.stage, "detail": exc.detail}
         return FiniteJSONResponse(body, status_code=202, headers={"Retry-After": "1"})
@@ -436,9 +432,7 @@ class UniformEstimate(BaseModel):
 @router.post("/estimate")
 def estimate(request: TotalsEstimate) -> dict:
     """From tokens and types (and hapax legomena when known): predicted legomena and growth."""
-    target = None
-    if request.plan_types is not None or request.plan_new_type_rate is not None:
-        target = planning_target(request.plan_types, request.plan_new_type_rate, None, None)
+    target = planning_target(request.plan_types, request.plan_new_type_rate, None, None, required=False)
     return _modelling_call(
         estimator.estimate_from_totals, request.tokens, request.types, request.hapaxes, request.sizes, target
     )
@@ -451,27 +445,20 @@ def estimate_uniform(request: UniformEstimate) -> dict:
 
 
 def planning_target(
-    types: float | None, new_type_rate: float | None, coverage: float | None, share: float | None
-) -> planning.Target:
-    """Exactly one of the four planning targets, as a Target (a clear 422 otherwise)."""
-    given = {
-        k: v
-        for k, v in {
-            "types": types,
-            "new_type_rate": new_type_rate,
-            "coverage": coverage,
-            "share": share,
-        }.items()
-        if v is not None
-    }
-    if len(given) != 1:
+    types: float | None,
+    new_type_rate: float | None,
+    coverage: float | None,
+    share: float | None,
+    required: bool = True,
+) -> Target | None:
+    """The one planning target given (``app.services.planning``), a clear 422 otherwise."""
+    try:
+        return plan_targets.planning_target(types, new_type_rate, coverage, share, required=required)
+    except plan_targets.TargetChoiceError as exc:
         raise HTTPException(
             status_code=422, detail="give exactly one target: types, new_type_rate, coverage or share"
-        )
-    ((kind, value),) = given.items()
-    try:
-        return planning.Target(kind, value)
-    except ValueError as exc:
+        ) from exc
+    except plan_targets.TargetValueError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
 
 

@@ -21,9 +21,7 @@ from pydantic import BaseModel, ConfigDict, Field
 from sqlalchemy.engine import Engine
 
 from app.services import comparisons as service
-from app.services import memo
-from app.store.comparisons import ComparisonNotFoundError
-from app.store.corpora import CorpusNotFoundError
+from app.services import corpora, memo
 from app.web.api import MAX_CORPUS_ID
 from app.web.compare_figures import comparison_figures
 from app.web.deps import engine_of
@@ -61,7 +59,7 @@ def _manage(action, engine: Engine, slug: str, *args) -> None:
         raise HTTPException(status_code=404, detail="no saved comparison at this address")
     try:
         action(engine, slug, *args)
-    except ComparisonNotFoundError as exc:
+    except service.ComparisonNotFoundError as exc:
         raise HTTPException(status_code=404, detail="no saved comparison at this address") from exc
     except service.NotAllowedError as exc:
         raise HTTPException(status_code=403, detail=str(exc)) from exc
@@ -220,7 +218,7 @@ def _snapshot(engine: Engine, live: service.LiveComparison) -> dict[str, Any]:
 def _live_version(engine: Engine, settings: service.ComparisonSettings) -> service.LiveComparison:
     try:
         return service.live_version(engine, settings)
-    except CorpusNotFoundError as exc:
+    except corpora.CorpusNotFoundError as exc:
         raise HTTPException(status_code=404, detail=f"{exc}: it cannot be compared") from exc
     except service.ComparisonInputError as exc:
         raise HTTPException(status_code=422, detail=str(exc)) from exc
@@ -232,7 +230,7 @@ def _saved(engine: Engine, slug: str, viewer: Viewer) -> dict[str, Any]:
         raise HTTPException(status_code=404, detail="no saved comparison at this address")
     try:
         snapshot = service.saved_comparison(engine, slug)
-    except ComparisonNotFoundError as exc:
+    except service.ComparisonNotFoundError as exc:
         raise HTTPException(status_code=404, detail="no saved comparison at this address") from exc
     if not viewer.anonymous:
         return snapshot

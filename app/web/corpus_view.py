@@ -11,11 +11,10 @@ from sqlalchemy.engine import Engine
 
 from app.core import planning
 from app.core.spectrum import Spectrum
-from app.services import memo, modelling
+from app.services import corpora, memo, modelling
+from app.services.corpora import StoredCorpus
 from app.services.memo import RecentResults
 from app.services.texts import word_dispersion
-from app.store import corpora as store
-from app.store.tables import Corpus
 from app.web import figures
 
 log = logging.getLogger("lexigrowth.pages")
@@ -239,7 +238,7 @@ class ViewVersion(NamedTuple):
     report_stamp: tuple[str, bool] | None  # None while the model report is being computed
 
 
-def view_version(engine: Engine, corpus: Corpus) -> ViewVersion:
+def view_version(engine: Engine, corpus: StoredCorpus) -> ViewVersion:
     stamp = modelling.report_stamps(engine, [corpus.id]).get(corpus.id)
     return ViewVersion(
         str(engine.url), modelling.CACHE_KEY, corpus.id, corpus.content_hash, corpus.created_at, stamp
@@ -248,7 +247,7 @@ def view_version(engine: Engine, corpus: Corpus) -> ViewVersion:
 
 def corpus_context(
     engine: Engine,
-    corpus: Corpus,
+    corpus: StoredCorpus,
     version: ViewVersion,
     q: str | None,
     page: int,
@@ -262,7 +261,7 @@ def corpus_context(
     rest depends only on ``version`` (``view_version``) and the settings, and is kept in PAGE_VIEWS."""
     settings = (q, page, sizes_text, horizon_factor, common_size, target, plan_model)
     derived = PAGE_VIEWS.get((version, settings), lambda: _derived_context(engine, corpus, *settings))
-    return {"corpus": store.summary(corpus)} | derived
+    return {"corpus": corpora.summary(corpus)} | derived
 
 
 def _section(damaged: dict[str, str], name: str, compute: Callable[[], Any], fallback: Any) -> Any:
@@ -279,7 +278,7 @@ def _section(damaged: dict[str, str], name: str, compute: Callable[[], Any], fal
 
 def _derived_context(
     engine: Engine,
-    corpus: Corpus,
+    corpus: StoredCorpus,
     q: str | None,
     page: int,
     sizes_text: str | None,
@@ -291,7 +290,7 @@ def _derived_context(
     corpus_id = corpus.id
     tokens = corpus.tokens
     damaged: dict[str, str] = {}
-    pairs = store.spectrum_pairs(engine, corpus_id)
+    pairs = corpora.spectrum(engine, corpus_id)
     sizes = parse_sizes(sizes_text, tokens)
     planned = plan_section(engine, corpus_id, target, plan_model)
     memo.checkpoint()  # between the sections: stop if everyone who asked for this page has gone
@@ -316,7 +315,7 @@ def _derived_context(
     def growth_section() -> dict[str, Any]:
         return {
             "growth_figure": figures.growth_lines(
-                store.growth_points(engine, corpus_id),
+                corpora.text_order_growth(engine, corpus_id),
                 modelling.random_order_growth(engine, corpus_id)["points"],
                 models.get("curves"),
                 models.get("recommended_curve_band"),
@@ -326,7 +325,7 @@ def _derived_context(
         }
 
     common = common_size or min(tokens, 10_000)
-    total_words, word_rows = store.word_counts(
+    total_words, word_rows = corpora.word_counts(
         engine, corpus_id, q, WORDS_PER_PAGE, (page - 1) * WORDS_PER_PAGE
     )
     richness = _section(

@@ -6,14 +6,9 @@ from fastapi import HTTPException, Request
 from sqlalchemy.engine import Engine
 
 from app.config import Settings
-from app.ingest.readers import UnreadableFileError
-from app.services.ingestion import IngestionInputError
+from app.services import corpora
 from app.services.jobs import Dispatcher
-from app.store.corpora import CorpusNotFoundError, get_corpus
-from app.store.tables import Corpus
 from app.web.uploads import UploadTooLargeError
-
-INPUT_ERRORS = (IngestionInputError, UnreadableFileError, ValueError)
 
 
 def engine_of(request: Request) -> Engine:
@@ -28,10 +23,10 @@ def jobs_of(request: Request) -> Dispatcher:
     return request.app.state.jobs
 
 
-def corpus_or_404(engine: Engine, corpus_id: int) -> Corpus:
+def corpus_or_404(engine: Engine, corpus_id: int) -> corpora.StoredCorpus:
     try:
-        return get_corpus(engine, corpus_id)
-    except CorpusNotFoundError as exc:
+        return corpora.lookup(engine, corpus_id)
+    except corpora.CorpusNotFoundError as exc:
         raise HTTPException(status_code=404, detail=str(exc)) from exc
 
 

@@ -8,11 +8,11 @@ from collections.abc import Iterable, Iterator
 from fastapi import Response
 from fastapi.responses import StreamingResponse
 
+from app.services.corpora import StoredCorpus
 from app.services.export import spectrum_tsv_pieces, table_pieces
-from app.store.tables import Corpus
 
 
-def file_stem(corpus: Corpus) -> str:
+def file_stem(corpus: StoredCorpus) -> str:
     return re.sub(r"[^A-Za-z0-9._-]+", "-", corpus.name).strip("-")[:60] or f"corpus-{corpus.id}"
 
 
@@ -31,13 +31,13 @@ def streamed_attachment(pieces: Iterator[str], filename: str, media_type: str) -
     )
 
 
-def spectrum_tsv_response(corpus: Corpus, pairs: Iterable[tuple[int, int]]) -> StreamingResponse:
+def spectrum_tsv_response(corpus: StoredCorpus, pairs: Iterable[tuple[int, int]]) -> StreamingResponse:
     return streamed_attachment(
         spectrum_tsv_pieces(pairs, corpus), f"{file_stem(corpus)}-spectrum.tsv", "text/tab-separated-values"
     )
 
 
-def word_counts_csv_response(corpus: Corpus, rows: Iterable[tuple[str, int]]) -> StreamingResponse:
+def word_counts_csv_response(corpus: StoredCorpus, rows: Iterable[tuple[str, int]]) -> StreamingResponse:
     return streamed_attachment(
         table_pieces(["word", "count"], rows),
         f"{file_stem(corpus)}-word-counts.csv",
@@ -45,6 +45,6 @@ def word_counts_csv_response(corpus: Corpus, rows: Iterable[tuple[str, int]]) ->
     )
 
 
-def bundle_response(corpus: Corpus, data: bytes, compressed: bool) -> Response:
+def bundle_response(corpus: StoredCorpus, data: bytes, compressed: bool) -> Response:
     suffix, media_type = (".json.gz", "application/gzip") if compressed else (".json", "application/json")
     return attachment(data, f"{file_stem(corpus)}-bundle{suffix}", media_type)

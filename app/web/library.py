@@ -11,11 +11,9 @@ from fastapi.responses import HTMLResponse, RedirectResponse
 from pydantic import BaseModel, ConfigDict, Field
 from sqlalchemy.engine import Engine
 
-from app.services import library
+from app.services import corpora, library
 from app.services.ingestion import IngestionInputError
 from app.services.jobs import Dispatcher
-from app.store import comparisons as saved
-from app.store import corpora as store
 from app.web.api import CorpusId, with_warnings
 from app.web.deps import corpus_or_404, engine_of, jobs_of
 from app.web.forms import require_confirmation
@@ -70,7 +68,7 @@ def delete_corpus_from_page(
 ):
     corpus = _owned(engine, corpus_id, viewer)
     require_confirmation(confirm)
-    store.delete_corpus(engine, corpus_id)
+    corpora.delete(engine, corpus_id)
     return RedirectResponse(f"/?deleted={corpus.name[:200]}", status_code=303)
 
 
@@ -98,7 +96,7 @@ def _delete_comparison(engine: Engine, slug: str, viewer: Viewer) -> None:
         raise HTTPException(status_code=404, detail="no saved comparison at this address")
     if not viewer.may_delete(rows[slug]["creator_id"]):
         raise HTTPException(status_code=403, detail=NOT_CREATOR)
-    saved.delete_comparison(engine, slug)
+    library.delete_comparison(engine, slug)
 
 
 @router.post("/comparisons/{slug}/delete", include_in_schema=False)

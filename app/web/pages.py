@@ -13,12 +13,11 @@ from fastapi.responses import HTMLResponse, RedirectResponse, Response
 from sqlalchemy.engine import Engine
 
 from app.config import TEMPLATES_DIR
-from app.core import planning
-from app.ingest.profiles import BUILTIN_PROFILES
-from app.services import estimator, library, memo, modelling
+from app.core.planning import Target
+from app.services import corpora, estimator, library, memo, modelling, sources
+from app.services import planning as plan_targets
 from app.services.jobs import Dispatcher
 from app.services.memo import RecentResults
-from app.store import corpora as store
 from app.web import api, assets, corpus_view, figures
 from app.web.caching import GZIP_LEVEL
 from app.web.deps import corpus_or_404, engine_of, jobs_of
@@ -96,7 +95,7 @@ def library_page(request: Request, engine: EngineDep, jobs: Annotated[Dispatcher
     arriving = jobs.uploads_under_way()
 
     def build_context() -> dict[str, Any]:
-        every = [store.summary(c) for c in store.list_corpora(engine)]
+        every = corpora.summaries(engine)
         chosen = [v[:500] for v in request.query_params.getlist("label")]
         search = (request.query_params.get("search") or "")[:200]
         return {
@@ -112,7 +111,7 @@ def library_page(request: Request, engine: EngineDep, jobs: Annotated[Dispatcher
 
     if arriving:  # their progress changes from one view to the next (the page reloads itself meanwhile)
         return render(request, "library.html", **build_context())
-    return render_kept(request, "library.html", store.library_version(engine), build_context)
+    return render_kept(request, "library.html", corpora.library_version(engine), build_context)
 
 
 @router.get("/favicon.ico")
@@ -124,13 +123,10 @@ def favicon() -> RedirectResponse:
 
 @router.get("/upload", response_class=HTMLResponse)
 def upload(request: Request):
-    return render(request, "upload.html", profiles=BUILTIN_PROFILES, json_url="/api/profiles")
+    return render(request, "upload.html", profiles=sources.profiles(), json_url="/api/profiles")
 
 
-PLAN_FIELDS = ("types", "new_type_rate", "coverage", "share")
-
-
-def _planning_target(form: FormInput) -> planning.Target | None:
+def _planning_target(form: FormInput) -> Target | None:
     """The one planning target typed into the Planning form (empty fields are not given), or None."""
     values = {
         "types": form.number("types", "types", above=0, at_most=1e13),
@@ -138,18 +134,15 @@ def _planning_target(form: FormInput) -> planning.Target | None:
         "coverage": form.number("coverage", "coverage", above=0, below=1),
         "share": form.number("share", "share of all types", above=0, below=1),
     }
-    given = {kind: value for kind, value in values.items() if value is not None}
-    if form.errors_of(*PLAN_FIELDS) or not given:
+    if form.errors_of(*plan_targets.TARGET_KINDS):
         return None
-    if len(given) > 1:
-        form.fail("types", "Fill in one target only: types, new-type rate, coverage or share of all types.")
-        return None
-    ((kind, value),) = given.items()
     try:
-        return planning.Target(kind, value)
-    except ValueError as exc:
-        form.fail(kind, str(exc))
-        return None
+        return plan_targets.planning_target(**values, required=False)
+    except plan_targets.TargetChoiceError:
+        form.fail("types", "Fill in one target only: types, new-type rate, coverage or share of all types.")
+    except plan_targets.TargetValueError as exc:
+        form.fail(exc.kind, str(exc))
+    return None
 
 
 @router.get("/corpora/{corpus_id}", response_class=HTMLResponse)
@@ -234,11 +227,7 @@ def estimate_page(request: Request):
         form.fail("plan_types", "Planning: fill in a number of types or a new-type rate, not both.")
     if tokens and types and not form.errors_of(*totals_fields):
         try:
-            target = None
-            if plan_types is not None:
-                target = planning.Target("types", plan_types)
-            elif plan_rate is not None:
-                target = planning.Target("new_type_rate", plan_rate)
+            target = plan_targets.planning_target(types=plan_types, new_type_rate=plan_rate, required=False)
             sizes = corpus_view.parse_sizes(form.text("sizes")[:500] or None, tokens)
             result = estimator.estimate_from_totals(tokens, types, hapaxes, sizes, target)
         except (ValueError, ArithmeticError) as exc:

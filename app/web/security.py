@@ -40,7 +40,6 @@ the first 64 kB of the body only (before the first file of an upload), so a refu
 from __future__ import annotations
 
 import hmac
-import ipaddress
 import logging
 import math
 import os
@@ -61,10 +60,9 @@ from starlette.concurrency import run_in_threadpool
 from starlette.datastructures import Headers, MutableHeaders
 from starlette.types import ASGIApp, Message, Receive, Scope, Send
 
-from app.config import Settings
-from app.store import accounts, sessions, signins
-from app.store import comparisons as saved_comparisons
-from app.store.accounts import Member
+from app.config import LOOPBACK_NAMES, Settings
+from app.services import accounts, comparisons
+from app.services.accounts import Member
 from app.web.pages import render
 
 log = logging.getLogger("lexigrowth.security")
@@ -89,8 +87,7 @@ MULTIPART = "multipart/form-data"
 OWN_SITE = frozenset({"same-origin", "none"})
 TOKEN_FIELD_BYTES = 64 * 1024  # a form's token field is looked for this far into its body, no further
 FORM_BODY_BYTES = 1 << 20  # a form without files (sign-in, save, delete): a few hundred bytes in practice
-LOOPBACK_NAMES = frozenset({"localhost", "127.0.0.1", "::1"})
-SIGN_IN_ALLOWANCE = signins.Allowance(pair=5, address=20)
+SIGN_IN_ALLOWANCE = accounts.SignInAllowance(pair=5, address=20)
 
 # Plotly fills an empty <style> element through the CSS object model (which a policy does not restrict);
 # allowing exactly the empty element (this is the SHA-256 of "") lets it do that and nothing else inline.
@@ -218,16 +215,6 @@ def _long_enough(key: str, source: str) -> str:
     return key
 
 
-def is_loopback(host: str) -> bool:
-    """Whether a listening address is reachable from this machine only."""
-    if host.lower() == "localhost":
-        return True
-    try:
-        return ipaddress.ip_address(host.strip("[]")).is_loopback
-    except ValueError:
-        return False
-
-
 class Guard:
     """Decides lab mode, identifies the viewer of a request and refuses what they may not see."""
 
@@ -238,7 +225,7 @@ class Guard:
 
     def lab_mode(self) -> bool:
         """Lab mode, once on, stays on: accounts are never deleted."""
-        if not self._lab and accounts.any_account(self.engine):
+        if not self._lab and accounts.lab_mode_on(self.engine):
             self._lab = True
         return self._lab
 
@@ -273,7 +260,7 @@ class Guard:
         viewer = Viewer(lab=True, session=self._session(request.cookies.get(SESSION_COOKIE)))
         session_id = viewer.session.get("sid")
         if "sid" in viewer.session or "uid" in viewer.session:  # "uid": a cookie of an older version
-            member = sessions.member_of(self.engine, session_id) if isinstance(session_id, str) else None
+            member = accounts.session_member(self.engine, session_id) if isinstance(session_id, str) else None
             if member is not None:
                 viewer.member = member
             else:  # signed out, password changed or expired: forget the sign-in
@@ -281,12 +268,14 @@ class Guard:
         return viewer
 
     def start_session(self, viewer: Viewer, member: Member) -> None:
-        viewer.sign_in(member, sessions.start(self.engine, member.id, timedelta(seconds=SESSION_MAX_AGE)))
+        viewer.sign_in(
+            member, accounts.start_session(self.engine, member, timedelta(seconds=SESSION_MAX_AGE))
+        )
 
     def end_session(self, viewer: Viewer) -> None:
         session_id = viewer.session.get("sid")
         if isinstance(session_id, str):
-            sessions.end(self.engine, session_id)
+            accounts.end_session(self.engine, session_id)
         viewer.forget_session()
 
     def refusal(self, viewer: Viewer, request: Request) -> Response | None:
@@ -302,7 +291,7 @@ class Guard:
         if (
             permalink
             and request.method in ("GET", "HEAD")
-            and saved_comparisons.is_public(self.engine, permalink.group(1) or permalink.group(2))
+            and comparisons.is_public(self.engine, permalink.group(1) or permalink.group(2))
         ):
             return None
         if path.startswith("/api/") or path == "/openapi.json":
@@ -604,7 +593,7 @@ def login(
     guard: Guard = request.app.state.guard
     engine = request.app.state.engine
     address = guard.client_address(request)
-    wait = signins.attempt(engine, name, address, SIGN_IN_ALLOWANCE)
+    wait = accounts.sign_in_wait(engine, name, address, SIGN_IN_ALLOWANCE)
     if wait > 0:
         seconds = math.ceil(wait)
         after = (
@@ -636,7 +625,7 @@ def login(
             error="Wrong name or password.",
             json_url=None,
         )
-    signins.succeeded(engine, name, address)
+    accounts.sign_in_succeeded(engine, name, address)
     guard.start_session(viewer, member)
     log.info("%s signed in", member.name)
     return RedirectResponse(safe_next(next), status_code=303)
@@ -649,13 +638,9 @@ def logout(request: Request) -> RedirectResponse:
     return RedirectResponse("/login", status_code=303)
 
 
-def _token_count(engine: Engine, member: Member) -> int:
-    return next((n for m, n in accounts.list_accounts(engine) if m.id == member.id), 0)
-
-
 def _password_page(request: Request, status_code: int = 200, **context: Any) -> HTMLResponse:
     viewer = viewer_of(request)
-    tokens = _token_count(request.app.state.engine, viewer.member)
+    tokens = accounts.token_count(request.app.state.engine, viewer.member)
     context = {"done": None, "error": None} | context
     return render(request, "password.html", status_code=status_code, tokens=tokens, json_url=None, **context)
 
@@ -684,7 +669,7 @@ def change_password(
     guard: Guard = request.app.state.guard
     engine = request.app.state.engine
     name, address = viewer.member.name, guard.client_address(request)
-    if signins.attempt(engine, name, address, SIGN_IN_ALLOWANCE) > 0:
+    if accounts.sign_in_wait(engine, name, address, SIGN_IN_ALLOWANCE) > 0:
         return _password_page(
             request, 429, error="Too many wrong passwords from this address: try again later."
         )
@@ -696,7 +681,7 @@ def change_password(
         change = accounts.set_password(engine, name, new, revoke_tokens=revoke_tokens)
     except accounts.AccountError as exc:
         return _password_page(request, 422, error=str(exc))
-    signins.succeeded(engine, name, address)
+    accounts.sign_in_succeeded(engine, name, address)
     guard.start_session(viewer, accounts.member_by_id(engine, viewer.member.id))
     log.info("%s changed their password", name)
     others = change.sessions_ended - 1

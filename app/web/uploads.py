@@ -2,19 +2,16 @@
 
 from __future__ import annotations
 
-import json
 import shutil
-import tempfile
 from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path, PurePath
 
 from fastapi import UploadFile
 
-from app.ingest import scratch
-from app.ingest.profiles import BUILTIN_PROFILES, TokenizationProfile
-from app.ingest.readers import TextSource
+from app.services import sources
 from app.services.ingestion import IngestionInputError
+from app.services.sources import Source
 
 COPY_BLOCK = 1 << 20
 PASTED_NAME = "pasted text"
@@ -32,29 +29,12 @@ def safe_file_name(raw: str | None) -> str:
     return name[:200] or "upload.txt"
 
 
-def parse_profile(value: str | None) -> TokenizationProfile:
-    """A built-in profile name, or a JSON object of profile settings."""
-    value = (value or "").strip()
-    if not value:
-        return BUILTIN_PROFILES["default"]
-    if value.startswith("{"):
-        try:
-            return TokenizationProfile.from_dict(json.loads(value))
-        except (json.JSONDecodeError, TypeError) as exc:
-            raise IngestionInputError(f"profile: not a valid profile object ({exc})") from exc
-    if value not in BUILTIN_PROFILES:
-        raise IngestionInputError(
-            f"profile: unknown profile {value!r} (known: {', '.join(BUILTIN_PROFILES)})"
-        )
-    return BUILTIN_PROFILES[value]
-
-
 @dataclass
 class ReceivedUpload:
     """Scratch copies of the uploaded files (deleted by ``cleanup``) and the sources to read."""
 
     directory: Path
-    sources: list[TextSource] = field(default_factory=list)
+    sources: list[Source] = field(default_factory=list)
 
     @property
     def total_bytes(self) -> int:
@@ -64,23 +44,17 @@ class ReceivedUpload:
         shutil.rmtree(self.directory, ignore_errors=True)
 
 
-def plain_file(path: Path, display_name: str) -> TextSource:
-    """A received file described without checking it as a text (a word-count list, spectrum or bundle is
-    read by ``app.ingest.counts``)."""
-    return TextSource(name=display_name, kind=path.suffix.lower(), size=path.stat().st_size, path=path)
-
-
 def receive(
     files: list[UploadFile],
     pasted_text: str | None,
     work_dir: Path,
     max_mb: int,
-    describe: Callable[[Path, str], TextSource] = TextSource.from_path,
+    describe: Callable[[Path, str], Source] = sources.text_file,
 ) -> ReceivedUpload:
     """Copy uploads to a private scratch folder (capped at ``max_mb`` in all) and open them as text sources
     (``describe``: how a received file is checked, by default as a text)."""
     limit = max_mb * (1 << 20)
-    upload = ReceivedUpload(Path(tempfile.mkdtemp(prefix=scratch.prefix(scratch.UPLOAD), dir=work_dir)))
+    upload = ReceivedUpload(sources.upload_folder(work_dir))
     try:
         used = 0
         for index, file in enumerate(f for f in files if f is not None and (f.filename or f.size)):
