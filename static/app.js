@@ -36,7 +36,7 @@
 
   // Plots in or near the window are drawn at once; the others when they scroll into view (their box keeps its
   // height meanwhile, so the page does not jump).
-  var nearView = "300px 0px";
+  var nearView = "200% 0px";  // within two window heights below: drawn with the first view
   var observer = window.IntersectionObserver ? new IntersectionObserver(function (entries) {
     entries.forEach(function (entry) {
       if (entry.isIntersecting) { observer.unobserve(entry.target); draw(entry.target); }

@@ -56,7 +56,7 @@ def test_partial_bundle_draws_below_the_fold_on_scrolling(server, browser, two):
     page.wait_for_timeout(1000)
     before = drawn(page)
     below = page.evaluate(
-        f"{SHOWN_PLOTS}.filter(el => el.getBoundingClientRect().top > 2 * innerHeight).map(el => el.id)"
+        f"{SHOWN_PLOTS}.filter(el => el.getBoundingClientRect().top > 3 * innerHeight).map(el => el.id)"
     )
     assert "rank-plot" in below and not before["rank-plot"]  # not drawn while out of view
     heights = page.evaluate(f"{SHOWN_PLOTS}.map(el => el.getBoundingClientRect().height)")
