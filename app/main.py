@@ -84,11 +84,11 @@ def create_app(settings: Settings | None = None) -> FastAPI:
 
     app.mount(security.SWAGGER_ASSETS, StaticFiles(directory=swagger_ui_path), name="swagger-ui")
 
-    @app.get("/static/vendor/plotly.min.js", include_in_schema=False)
+    @app.get(assets.PLOTLY_JS_URL, include_in_schema=False)
     def plotly_js(request: Request) -> Response:
         return assets.serve(assets.plotly_assets()[0], request)
 
-    @app.get("/static/vendor/plotly.css", include_in_schema=False)
+    @app.get(assets.PLOTLY_CSS_URL, include_in_schema=False)
     def plotly_css(request: Request) -> Response:
         return assets.serve(assets.plotly_assets()[1], request)
 

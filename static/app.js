@@ -1,27 +1,68 @@
-// Renders every embedded figure with the locally served plotly.js, and makes tables sortable.
+// Renders every embedded figure with the locally served plotly.js (when it scrolls into view), offers each as
+// SVG and PNG, and makes tables sortable.
 (function () {
   "use strict";
 
-  function plotConfig(filename) {
+  // Saved plots are named after the page (the corpus, or the corpora compared) and the plot.
+  function downloadName(el) {
+    var h1 = document.querySelector("h1");
+    var page = h1 ? (h1.dataset.downloadName || h1.textContent) : "";
+    var stem = (page + " " + (el.dataset.filename || "figure")).toLowerCase();
+    return stem.replace(/[^\p{L}\p{N}]+/gu, "-").replace(/^-+|-+$/g, "").slice(0, 120) || "figure";
+  }
+
+  function plotConfig(el) {
+    var filename = downloadName(el);
     return {
       displaylogo: false,
       responsive: true,
       toImageButtonOptions: { format: "png", filename: filename, scale: 2 },
       modeBarButtonsToAdd: [{
         name: "Download plot as SVG",
-        icon: window.Plotly && Plotly.Icons ? Plotly.Icons.disk : undefined,
+        icon: Plotly.Icons.disk,
         click: function (gd) { Plotly.downloadImage(gd, { format: "svg", filename: filename }); }
       }]
     };
   }
 
+  // Each plot is drawn once (a promise kept on its element), with its figure from the JSON beside it.
+  function draw(el) {
+    if (!el.lexigrowthDrawn) {
+      var fig = JSON.parse(document.getElementById(el.dataset.figure).textContent);
+      el.lexigrowthDrawn = Plotly.react(el, fig.data, fig.layout, plotConfig(el));
+    }
+    return el.lexigrowthDrawn;
+  }
+
+  // Plots in or near the window are drawn at once; the others when they scroll into view (their box keeps its
+  // height meanwhile, so the page does not jump).
+  var nearView = "200% 0px";  // within two window heights below: drawn with the first view
+  var observer = window.IntersectionObserver ? new IntersectionObserver(function (entries) {
+    entries.forEach(function (entry) {
+      if (entry.isIntersecting) { observer.unobserve(entry.target); draw(entry.target); }
+    });
+  }, { rootMargin: nearView }) : null;
+
   function renderFigures(root) {
     if (!window.Plotly) { return; }
     (root || document).querySelectorAll("[data-figure]").forEach(function (el) {
-      var source = document.getElementById(el.dataset.figure);
-      if (!source) { return; }
-      var fig = JSON.parse(source.textContent);
-      Plotly.react(el, fig.data, fig.layout, plotConfig(el.dataset.filename || "figure"));
+      if (!document.getElementById(el.dataset.figure)) { return; }
+      if (observer) { observer.observe(el); } else { draw(el); }
+    });
+  }
+
+  // The "SVG" and "PNG" buttons under each plot (the toolbar has both too, but shows only on hover).
+  function downloadButtons() {
+    document.querySelectorAll("[data-download-format]").forEach(function (button) {
+      button.addEventListener("click", function () {
+        var el = document.getElementById(button.dataset.plot);
+        if (!window.Plotly || !el) { return; }
+        draw(el).then(function () {
+          var options = { format: button.dataset.downloadFormat, filename: downloadName(el) };
+          if (options.format === "png") { options.scale = 2; }
+          Plotly.downloadImage(el, options);
+        });
+      });
     });
   }
 
@@ -72,6 +113,7 @@
   window.Lexigrowth = { renderFigures: renderFigures };
   document.addEventListener("DOMContentLoaded", function () {
     renderFigures(document);
+    downloadButtons();
     viewControls(document);
     scrollCues();
     window.addEventListener("resize", scrollCues);

@@ -30,6 +30,10 @@ log = logging.getLogger("lexigrowth.pages")
 templates = make_templates(TEMPLATES_DIR)
 templates.env.globals["glossary"] = GLOSSARY
 templates.env.globals["plotly_map_style_id"] = assets.plotly_assets()[2]
+templates.env.globals["plotly_js_url"] = assets.versioned_url(assets.PLOTLY_JS_URL, assets.plotly_assets()[0])
+templates.env.globals["plotly_css_url"] = assets.versioned_url(
+    assets.PLOTLY_CSS_URL, assets.plotly_assets()[1]
+)
 EngineDep = Annotated[Engine, Depends(engine_of)]
 
 

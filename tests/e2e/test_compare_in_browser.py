@@ -105,7 +105,7 @@ def test_upload_compare_save_and_reopen_in_a_browser(server, browser, texts, scr
         page.hover("#growth-plot")
         with page.expect_download() as download:
             page.click(f'#growth-plot .modebar-btn[data-title*="{fmt.upper()}"]')
-        assert download.value.suggested_filename == f"type-growth.{fmt}"
+        assert download.value.suggested_filename == f"alpha-vs-beta-type-growth.{fmt}"
 
     # the growth axis switch shows the normalised figure and keeps the choice in the URL
     page.check("input[name=growth-scale][value=share]")

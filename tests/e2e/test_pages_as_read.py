@@ -97,6 +97,7 @@ def test_comparison_pair_problem_distinctive_words_and_confirmed_deletion(
 ):
     context, page, console = open_page(browser, VIEWPORTS[viewport])
     page.goto(f"{server}/compare?corpus={two[0]}&corpus={two[1]}&min_freq=3")
+    page.locator("#growth-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#growth-plot .main-svg")
     check_page(page, console, viewport)
     # words of one corpus only: "only in", no ratio; the others a log ratio with its interval
@@ -154,6 +155,7 @@ def test_planning_answer_shown_on_its_plot_and_named_in_words(server, browser, t
     page.click("#plan-form button[type=submit]")
     page.wait_for_selector("#plan-answer, #planning .error-box")
     assert page.locator("#plan-answer").count() == 1, page.inner_text("#planning")
+    page.locator("#growth-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#growth-plot .main-svg")
     answer = get_json(f"{server}/api/corpora/{cid}/plan?types={2 * types}")["tokens"]
     assert answer > tokens

@@ -90,6 +90,7 @@ def test_upload_pasted_tiny_text_warns_before_any_extrapolation(server, browser,
     corpus_id = int(page.url.rsplit("/", 1)[1])
     summary = get_json(f"{server}/api/corpora/{corpus_id}")
     assert summary["tokens"] < 1000 and summary["warnings"] and "fewer than 1,000" in summary["warnings"][0]
+    page.locator("#growth-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#growth-plot .main-svg")
     check_page(page, console, viewport)
     shoot(page, screenshots, "upload-tiny-corpus", viewport)
@@ -102,6 +103,7 @@ def test_corpus_page_forms_plots_and_layout(server, browser, corpora, screenshot
     summary = get_json(f"{server}/api/corpora/{cid}")
     context, page, console = open_page(browser, VIEWPORTS[viewport])
     page.goto(f"{server}/corpora/{cid}")
+    page.locator("#growth-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#growth-plot .main-svg")
     shoot(page, screenshots, "corpus", viewport)
     check_page(page, console, viewport)
@@ -228,6 +230,7 @@ def test_estimator_in_both_modes(server, browser, screenshots, viewport):
     api = httpx.post(f"{server}/api/estimate", json={"tokens": 50000, "types": 8000, "sizes": sizes}).json()
     shown = page.locator("#totals-table tbody tr td:nth-child(3)").all_inner_texts()
     assert shown == [f"{r['types']:,.0f}" for r in api["predictions"] if r["tokens"] in sizes]
+    page.locator("#estimate-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#estimate-plot .main-svg")
     check_page(page, console, viewport)
     shoot(page, screenshots, "estimator-totals", viewport)
@@ -288,6 +291,7 @@ def test_library_filters_and_comparison_settings(server, browser, corpora, scree
     for name in ("Ada essays", "Bo letters"):
         page.check(f"input[aria-label='select {name}']")
     page.click("#compare-button")
+    page.locator("#growth-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#growth-plot .main-svg")
     small = min(get_json(f"{server}/api/corpora/{i}")["tokens"] for i in corpora.values())
     page.fill("#settings-form input[name=common_size]", str(small + 1000))
@@ -312,6 +316,7 @@ def test_library_filters_and_comparison_settings(server, browser, corpora, scree
         else:
             side = "first" if word["log_ratio"] > 0 else "second"
             assert shown.startswith(f"more in {names[table[side]]}")
+    page.locator("#legomena-plot").scroll_into_view_if_needed()  # drawn when in view
     page.wait_for_selector("#legomena-plot .main-svg")
     check_page(page, console, viewport)
     shoot(page, screenshots, "comparison-above-smallest", viewport)

@@ -255,7 +255,7 @@ def test_anonymous_requests_are_refused_or_sent_to_sign_in(lab):
         assert response.headers["www-authenticate"] == "Bearer" and "sign in" in response.json()["detail"]
     assert anonymous.get("/api/health").json()["status"] == "ok"
     assert anonymous.get("/static/style.css").status_code == 200
-    assert anonymous.get("/static/vendor/plotly.min.js").status_code == 200
+    assert anonymous.get("/static/vendor/plotly-basic.min.js").status_code == 200
     login = anonymous.get("/login")
     assert login.status_code == 200 and "Sign in" in login.text
     assert get_corpus(lab.app.state.engine, lab.corpora[0]).owner_id is not None  # nothing was deleted
